@@ -1,0 +1,302 @@
+package lustre
+
+import (
+	"bufio"
+	"fmt"
+	"io"
+	"math"
+	"time"
+)
+
+// maxLine is the longest line, newline included, that Parse reads; a longer
+// line is skipped and counted as malformed. Real lines are under 200 bytes,
+// so the limit only bounds memory on garbage input.
+const maxLine = 1024
+
+// maxStampSec bounds the seconds of a timestamp so that time.Unix can
+// represent it and give the same value back; real stamps are ~2^31.
+const maxStampSec = 1 << 62
+
+// maxTokens is the most whitespace-separated tokens a valid line has:
+// name, count, "samples", [unit], min, max, sum, sumsq.
+const maxTokens = 8
+
+// Counter is one line of an llite stats file:
+// "<name> <count> samples [<unit>] [<min> <max> <sum> [<sumsq>]]", printed by
+// lprocfs_stats_seq_show in lustre/obdclass/lprocfs_status.c.
+type Counter struct {
+	// Name is the counter name as printed, e.g. "read_bytes" or "open".
+	Name string
+	// Samples is the number of events counted (calls, for most counters).
+	Samples uint64
+	// Unit is the unit as printed without its brackets, e.g. "bytes",
+	// "usecs", "reqs" or "regs" (sic, Lustre 2.13 and older).
+	Unit string
+	// Fields is how many numbers followed the unit: 0 (count only),
+	// 3 (min, max, sum) or 4 (min, max, sum, sumsq).
+	Fields int
+	// Min and Max are the smallest and largest sample; zero when Fields is 0.
+	Min, Max uint64
+	// Sum is the total of all samples (bytes for a bytes counter, µs for a
+	// latency counter); zero when Fields is 0.
+	Sum uint64
+	// SumSq is the sum of squared samples; zero unless Fields is 4. It
+	// overflows easily, so nothing should rely on it.
+	SumSq uint64
+}
+
+// Stats is one parsed llite stats file
+// (/sys/kernel/debug/lustre/llite/<inst>/stats, or /proc/fs/lustre/llite/<inst>/stats
+// before Lustre 2.12).
+type Stats struct {
+	// SnapshotTime is when Lustre summed the counters. It is wall-clock time
+	// except on 2.15.0 and 2.15.1, where it is time since boot. A missing
+	// line, or one printed as 0, leaves it zero.
+	SnapshotTime time.Time
+	// StartTime is when the counters were created or last cleared (2.15+).
+	// It is zero when the line is absent or printed as 0 (2.15.0, 2.15.1).
+	StartTime time.Time
+	// HasStartTime reports whether StartTime was read from the file.
+	HasStartTime bool
+	// Counters holds the counter lines in file order. Lustre omits counters
+	// whose count is zero, so a counter that is absent is zero.
+	Counters []Counter
+	// Malformed counts lines that were skipped because they did not parse.
+	Malformed int
+}
+
+// Lookup returns the first counter called name.
+func (s Stats) Lookup(name string) (Counter, bool) {
+	for _, c := range s.Counters {
+		if c.Name == name {
+			return c, true
+		}
+	}
+	return Counter{}, false
+}
+
+// Raw returns the cumulative counters the agent consumes: "<name>" maps to
+// Samples for every counter, and "<name>.sum" maps to Sum for counters with a
+// sum (Fields >= 3) whose unit is a size ("bytes" or "pages"). Sums of
+// latencies are left out because the agent counts operations and bytes, not
+// time; min, max and sumsq are left out because they are not cumulative. If a
+// name repeats, the later line wins.
+func (s Stats) Raw() map[string]uint64 {
+	m := make(map[string]uint64, len(s.Counters)+4)
+	for i := range s.Counters {
+		c := &s.Counters[i]
+		m[c.Name] = c.Samples
+		if c.Fields >= 3 && isSizeUnit(c.Unit) {
+			m[sumKey(c.Name)] = c.Sum
+		}
+	}
+	return m
+}
+
+// Parse reads one llite stats file in any layout from Lustre 2.5 to 2.17.
+//
+// Lines that do not parse are skipped and counted in Stats.Malformed, so one
+// bad line does not lose the rest of the file. The only error is a read
+// error from r, returned with whatever was parsed before it.
+func Parse(r io.Reader) (Stats, error) {
+	st, err := parse(bufio.NewReaderSize(r, maxLine), make([]Counter, 0, 40))
+	if err != nil {
+		return st, fmt.Errorf("lustre: reading stats: %w", err)
+	}
+	return st, nil
+}
+
+// parse reads lines from br and appends counters to counters[:0], so that
+// the Source can reuse both the reader's buffer and the slice. The error is
+// br's, unwrapped.
+func parse(br *bufio.Reader, counters []Counter) (Stats, error) {
+	st := Stats{Counters: counters[:0]}
+	for {
+		line, err := br.ReadSlice('\n')
+		if err == bufio.ErrBufferFull {
+			st.Malformed++
+			for err == bufio.ErrBufferFull {
+				_, err = br.ReadSlice('\n')
+			}
+		} else if len(line) > 0 {
+			st.parseLine(line)
+		}
+		switch err {
+		case nil:
+		case io.EOF:
+			return st, nil
+		default:
+			return st, err
+		}
+	}
+}
+
+// parseLine adds one line to st. Blank lines are ignored.
+func (st *Stats) parseLine(line []byte) {
+	var tok [maxTokens + 1][]byte
+	n := split(line, &tok)
+	if n == 0 {
+		return
+	}
+	switch string(tok[0]) {
+	case "snapshot_time", "start_time", "elapsed_time":
+		t, ok := parseStamp(tok[:n])
+		if !ok {
+			st.Malformed++
+			return
+		}
+		switch string(tok[0]) {
+		case "snapshot_time":
+			st.SnapshotTime = t
+		case "start_time":
+			st.StartTime, st.HasStartTime = t, !t.IsZero()
+		}
+		return
+	}
+	c, ok := parseCounter(tok[:n])
+	if !ok {
+		st.Malformed++
+		return
+	}
+	st.Counters = append(st.Counters, c)
+}
+
+// split stores up to maxTokens+1 whitespace-separated tokens of line in tok
+// and returns how many it stored; maxTokens+1 means "too many". The tokens
+// alias line, so nothing is allocated.
+func split(line []byte, tok *[maxTokens + 1][]byte) int {
+	n := 0
+	i := 0
+	for i < len(line) {
+		for i < len(line) && isSpace(line[i]) {
+			i++
+		}
+		if i == len(line) {
+			break
+		}
+		if n == len(tok) {
+			return n
+		}
+		start := i
+		for i < len(line) && !isSpace(line[i]) {
+			i++
+		}
+		tok[n] = line[start:i]
+		n++
+	}
+	return n
+}
+
+// spaceMask has bit b set for each byte b that separates tokens: space,
+// \t, \n, \v, \f and \r. The set matches what Write refuses inside names
+// and units, so that anything Write accepts parses back.
+const spaceMask = 1<<' ' | 1<<'\t' | 1<<'\n' | 1<<'\v' | 1<<'\f' | 1<<'\r'
+
+// isSpace reports whether b separates tokens, with one compare and one bit
+// test, since split calls it for every byte.
+func isSpace(b byte) bool {
+	return b <= ' ' && uint64(1)<<b&spaceMask != 0
+}
+
+// parseCounter parses the tokens of one counter line.
+func parseCounter(tok [][]byte) (Counter, bool) {
+	var c Counter
+	if len(tok) != 4 && len(tok) != 7 && len(tok) != 8 {
+		return c, false
+	}
+	if string(tok[2]) != "samples" {
+		return c, false
+	}
+	unit := tok[3]
+	if len(unit) < 3 || unit[0] != '[' || unit[len(unit)-1] != ']' {
+		return c, false
+	}
+	var ok bool
+	if c.Samples, ok = parseUint(tok[1]); !ok {
+		return c, false
+	}
+	c.Fields = len(tok) - 4
+	if c.Fields >= 3 {
+		// Lustre prints these with %lld: a '-' sign fails parseUint, which
+		// is what we want, since a negative count or sum is corrupt.
+		if c.Min, ok = parseUint(tok[4]); !ok {
+			return c, false
+		}
+		if c.Max, ok = parseUint(tok[5]); !ok {
+			return c, false
+		}
+		if c.Sum, ok = parseUint(tok[6]); !ok {
+			return c, false
+		}
+	}
+	if c.Fields == 4 {
+		if c.SumSq, ok = parseUint(tok[7]); !ok {
+			return c, false
+		}
+	}
+	c.Name = internName(tok[0])
+	c.Unit = internUnit(unit[1 : len(unit)-1])
+	return c, true
+}
+
+// parseStamp parses "<name> <sec>.<frac> secs.nsecs|secs.usecs". Before 2.10
+// the fraction is microseconds printed with %lu, not zero-padded, so ".5" is
+// 5 µs; from 2.10 it is nanoseconds printed with %09lu. Both are read as an
+// integer count of the unit the line names. A stamp of 0 gives the zero Time.
+func parseStamp(tok [][]byte) (time.Time, bool) {
+	if len(tok) != 3 {
+		return time.Time{}, false
+	}
+	var scale, limit uint64
+	switch string(tok[2]) {
+	case "secs.nsecs":
+		scale, limit = 1, 1e9
+	case "secs.usecs":
+		scale, limit = 1e3, 1e6
+	default:
+		return time.Time{}, false
+	}
+	v := tok[1]
+	dot := -1
+	for i, b := range v {
+		if b == '.' {
+			dot = i
+			break
+		}
+	}
+	if dot < 0 {
+		return time.Time{}, false
+	}
+	sec, ok := parseUint(v[:dot])
+	if !ok || sec > maxStampSec {
+		return time.Time{}, false
+	}
+	frac, ok := parseUint(v[dot+1:])
+	if !ok || frac >= limit {
+		return time.Time{}, false
+	}
+	if sec == 0 && frac == 0 {
+		return time.Time{}, true
+	}
+	return time.Unix(int64(sec), int64(frac*scale)), true
+}
+
+// parseUint parses a non-empty run of ASCII digits that fits in a uint64.
+// It works on the byte slice directly so that parsing allocates nothing.
+func parseUint(b []byte) (uint64, bool) {
+	if len(b) == 0 {
+		return 0, false
+	}
+	var v uint64
+	for _, c := range b {
+		d := uint64(c) - '0'
+		if d > 9 {
+			return 0, false
+		}
+		if v > (math.MaxUint64-d)/10 {
+			return 0, false
+		}
+		v = v*10 + d
+	}
+	return v, true
+}

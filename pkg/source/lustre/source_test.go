@@ -1,0 +1,162 @@
+package lustre_test
+
+import (
+	"context"
+	"errors"
+	"os"
+	"path/filepath"
+	"testing"
+	"time"
+
+	"github.com/stretchr/testify/require"
+
+	"sluice/pkg/source"
+	"sluice/pkg/source/lustre"
+)
+
+var _ source.Source = (*lustre.Source)(nil)
+
+// fixedNow is the clock the Source tests inject.
+var fixedNow = time.Unix(1718000200, 0)
+
+func nowFunc() time.Time { return fixedNow }
+
+func TestSourceTree(t *testing.T) {
+	t.Parallel()
+	// testdata/lustre/tree follows the llite directory of Lustre 2.12+
+	// (instance names from lustre/llite/llite_lib.c, files in 2.16 layout
+	// from lustre/obdclass/lprocfs_status.c); its README file is skipped.
+	src := lustre.NewSource(filepath.Join(testdata, "tree"), nowFunc)
+	require.Equal(t, "lustre", src.Name())
+	got, err := src.Read(context.Background())
+	require.NoError(t, err)
+	want := []source.Reading{
+		{
+			Key:   "lustre:home-ffff9a0c6789a000",
+			Epoch: "1717000000.000000000",
+			Time:  fixedNow,
+			Counters: map[string]uint64{
+				"write_bytes": 10, "write_bytes.sum": 40960,
+				"write": 10, "open": 3, "getattr": 12,
+			},
+		},
+		{
+			Key:   "lustre:scratch-ffff9a0c12345000",
+			Epoch: "1717990000.000000001",
+			Time:  fixedNow,
+			Counters: map[string]uint64{
+				"read_bytes": 1200, "read_bytes.sum": 2472242752,
+				"write_bytes": 300, "write_bytes.sum": 161303766,
+				"read": 1200, "write": 300, "ioctl": 7, "open": 42, "close": 42,
+			},
+		},
+	}
+	require.Equal(t, want, got)
+}
+
+// writeMount creates <root>/<inst>/stats holding the given fixture case.
+func writeMount(t testing.TB, root, inst, fixtureCase string) {
+	t.Helper()
+	dir := filepath.Join(root, inst)
+	require.NoError(t, os.MkdirAll(dir, 0o755))
+	require.NoError(t, os.WriteFile(filepath.Join(dir, "stats"), readFixture(t, fixtureCase), 0o644))
+}
+
+// keys returns the reading keys in order.
+func keys(rs []source.Reading) []string {
+	var ks []string
+	for _, r := range rs {
+		ks = append(ks, r.Key)
+	}
+	return ks
+}
+
+func TestSourceMountsComeAndGo(t *testing.T) {
+	t.Parallel()
+	root := t.TempDir()
+	src := lustre.NewSource(root, nowFunc)
+	ctx := context.Background()
+
+	// The llite directory exists but nothing is mounted.
+	_, err := src.Read(ctx)
+	require.ErrorIs(t, err, source.ErrNoData)
+
+	writeMount(t, root, "scratch-ffff9a0c12345000", "v2_16_header")
+	got, err := src.Read(ctx)
+	require.NoError(t, err)
+	require.Equal(t, []string{"lustre:scratch-ffff9a0c12345000"}, keys(got))
+	first := got[0]
+	require.Len(t, first.Counters, 36)
+
+	// A second mount appears, on a 2.12 client layout without start_time.
+	writeMount(t, root, "proj-ffff9a0c00001000", "v2_12_regs")
+	got, err = src.Read(ctx)
+	require.NoError(t, err)
+	require.Equal(t, []string{"lustre:proj-ffff9a0c00001000", "lustre:scratch-ffff9a0c12345000"}, keys(got))
+	require.Empty(t, got[0].Epoch, "2.12 has no start_time")
+	require.Equal(t, "1717990000.000000001", got[1].Epoch)
+	// Buffers are reused between reads, but earlier readings stay intact.
+	require.Equal(t, first, got[1])
+
+	// The first mount is unmounted; its directory goes away.
+	require.NoError(t, os.RemoveAll(filepath.Join(root, "scratch-ffff9a0c12345000")))
+	got, err = src.Read(ctx)
+	require.NoError(t, err)
+	require.Equal(t, []string{"lustre:proj-ffff9a0c00001000"}, keys(got))
+
+	// A mount that vanishes between listing and opening looks like a
+	// dangling entry; a directory without stats and a stray file are not
+	// mounts. All are skipped silently.
+	require.NoError(t, os.Symlink(filepath.Join(root, "gone"), filepath.Join(root, "gone-ffff9a0c00002000")))
+	require.NoError(t, os.Mkdir(filepath.Join(root, "empty-ffff9a0c00003000"), 0o755))
+	require.NoError(t, os.WriteFile(filepath.Join(root, "stray"), nil, 0o644))
+	require.NoError(t, os.Symlink(filepath.Join(root, "stray"), filepath.Join(root, "file-link")))
+	got, err = src.Read(ctx)
+	require.NoError(t, err)
+	require.Equal(t, []string{"lustre:proj-ffff9a0c00001000"}, keys(got))
+
+	require.NoError(t, os.RemoveAll(filepath.Join(root, "proj-ffff9a0c00001000")))
+	_, err = src.Read(ctx)
+	require.ErrorIs(t, err, source.ErrNoData)
+}
+
+func TestSourceMissingRoot(t *testing.T) {
+	t.Parallel()
+	root := filepath.Join(t.TempDir(), "llite")
+	_, err := lustre.NewSource(root, nowFunc).Read(context.Background())
+	require.ErrorIs(t, err, source.ErrNoData)
+	require.ErrorContains(t, err, root)
+}
+
+func TestSourceBadFileDoesNotHideOthers(t *testing.T) {
+	t.Parallel()
+	root := t.TempDir()
+	writeMount(t, root, "scratch-ffff9a0c12345000", "v2_16_header")
+	// A "stats" that cannot be read: a directory (read fails with EISDIR).
+	bad := filepath.Join(root, "broken-ffff9a0c00004000", "stats")
+	require.NoError(t, os.MkdirAll(bad, 0o755))
+	got, err := lustre.NewSource(root, nowFunc).Read(context.Background())
+	require.Error(t, err)
+	require.ErrorContains(t, err, bad)
+	require.False(t, errors.Is(err, source.ErrNoData))
+	require.Equal(t, []string{"lustre:scratch-ffff9a0c12345000"}, keys(got))
+}
+
+func TestSourceMalformedCounted(t *testing.T) {
+	t.Parallel()
+	root := t.TempDir()
+	writeMount(t, root, "scratch-ffff9a0c12345000", "malformed_lines")
+	got, err := lustre.NewSource(root, nil).Read(context.Background())
+	require.NoError(t, err)
+	require.Len(t, got, 1)
+	require.Equal(t, 10, got[0].Malformed)
+	require.False(t, got[0].Time.IsZero(), "nil now means time.Now")
+}
+
+func TestSourceCanceled(t *testing.T) {
+	t.Parallel()
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	_, err := lustre.NewSource(filepath.Join(testdata, "tree"), nowFunc).Read(ctx)
+	require.ErrorIs(t, err, context.Canceled)
+}
