@@ -1,0 +1,169 @@
+// Package level classifies a per-node rate as normal, elevated or critical
+// against per-metric cut points.
+//
+// # Basics
+//
+// [Cuts] holds two cut points per metric. A rate strictly above the
+// critical cut is [Critical], above the elevated cut [Elevated], otherwise
+// [Normal]. [DefaultCuts] are rule-of-thumb seed values used until the
+// centre's learned baseline replaces them.
+//
+// # Caveats
+//
+// The defaults are common practice, not measurements of any system: a
+// compute node sustaining under about 1 metadata op/s or about 10 kB/s is not
+// I/O-relevant, and a node can sustain a few GB/s of streaming I/O. Sites
+// should override them (or let the baseline learn them).
+package level
+
+import (
+	"encoding/json"
+	"fmt"
+
+	"sluice/pkg/metric"
+)
+
+// Level is a window's class for one metric.
+type Level uint8
+
+// The levels, in increasing severity.
+const (
+	Normal Level = iota
+	Elevated
+	Critical
+)
+
+// String returns the level's name as used in the API and labels.
+func (l Level) String() string {
+	switch l {
+	case Normal:
+		return "normal"
+	case Elevated:
+		return "elevated"
+	case Critical:
+		return "critical"
+	}
+	return fmt.Sprintf("level(%d)", uint8(l))
+}
+
+// MarshalText encodes the level by name.
+func (l Level) MarshalText() ([]byte, error) { return []byte(l.String()), nil }
+
+// UnmarshalText decodes a level name.
+func (l *Level) UnmarshalText(b []byte) error {
+	for _, c := range []Level{Normal, Elevated, Critical} {
+		if c.String() == string(b) {
+			*l = c
+			return nil
+		}
+	}
+	return fmt.Errorf("unknown level %q", b)
+}
+
+// Cut is the pair of cut points of one metric, in the metric's rate unit
+// (bytes/s or ops/s per node).
+type Cut struct {
+	Elevated float64 `json:"elevated"`
+	Critical float64 `json:"critical"`
+}
+
+// Cuts holds one Cut per metric.
+type Cuts [metric.Count]Cut
+
+// IdleBytesPerSecond and IdleOpsPerSecond are the rates below which a
+// metric is treated as idle on a node (common practice, see package doc).
+const (
+	IdleBytesPerSecond = 10e3
+	IdleOpsPerSecond   = 1
+)
+
+// DefaultCuts returns the seed cut points, per node (common practice
+// rules of thumb; see the package doc and the README's table).
+func DefaultCuts() Cuts {
+	var c Cuts
+	set := func(id metric.ID, elevated, critical float64) { c[id] = Cut{elevated, critical} }
+	set(metric.ReadBytes, 1e9, 3e9)
+	set(metric.WriteBytes, 1e9, 3e9)
+	set(metric.ReadOps, 2000, 20000)
+	set(metric.WriteOps, 2000, 20000)
+	set(metric.Opens, 200, 2000)
+	set(metric.Closes, 200, 2000)
+	set(metric.Creates, 100, 1000)
+	set(metric.Removes, 100, 1000)
+	set(metric.StatOps, 1000, 10000)
+	set(metric.MetaUpdates, 100, 1000)
+	set(metric.Syncs, 50, 500)
+	set(metric.OtherOps, 1000, 10000)
+	return c
+}
+
+// Validate checks that every cut is positive and elevated <= critical.
+func (c Cuts) Validate() error {
+	for i, cut := range c {
+		id := metric.ID(i)
+		if cut.Elevated <= 0 || cut.Critical <= 0 {
+			return fmt.Errorf("cut points for %s must be positive, got elevated %g critical %g", id, cut.Elevated, cut.Critical)
+		}
+		if cut.Elevated > cut.Critical {
+			return fmt.Errorf("cut points for %s: elevated %g is above critical %g", id, cut.Elevated, cut.Critical)
+		}
+	}
+	return nil
+}
+
+// Classify returns the level of rate for metric id.
+func (c Cuts) Classify(id metric.ID, rate float64) Level {
+	switch cut := c[id]; {
+	case rate > cut.Critical:
+		return Critical
+	case rate > cut.Elevated:
+		return Elevated
+	}
+	return Normal
+}
+
+// Idle reports whether rate is below the idle floor of metric id.
+func Idle(id metric.ID, rate float64) bool {
+	if id.IsBytes() {
+		return rate < IdleBytesPerSecond
+	}
+	return rate < IdleOpsPerSecond
+}
+
+// Levels holds one level per metric.
+type Levels [metric.Count]Level
+
+// MarshalJSON writes levels as an object keyed by metric name.
+func (ls Levels) MarshalJSON() ([]byte, error) {
+	m := make(map[string]string, metric.Count)
+	for i, l := range ls {
+		m[metric.ID(i).String()] = l.String()
+	}
+	return json.Marshal(m)
+}
+
+// UnmarshalJSON reads the object MarshalJSON writes.
+func (ls *Levels) UnmarshalJSON(b []byte) error {
+	var m map[string]Level
+	if err := json.Unmarshal(b, &m); err != nil {
+		return fmt.Errorf("levels: %w", err)
+	}
+	*ls = Levels{}
+	for name, l := range m {
+		id, err := metric.Parse(name)
+		if err != nil {
+			return fmt.Errorf("levels: %w", err)
+		}
+		ls[id] = l
+	}
+	return nil
+}
+
+// Max returns the highest level.
+func (ls Levels) Max() Level {
+	var m Level
+	for _, l := range ls {
+		m = max(m, l)
+	}
+	return m
+}

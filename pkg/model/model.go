@@ -1,0 +1,86 @@
+// Package model holds the aggregator's data records: jobs, windows and
+// flags, as the tracker keeps them, the store persists them and the HTTP API
+// returns them.
+//
+// # Basics
+//
+// Records are plain data with JSON tags; they carry no behaviour beyond
+// small helpers. Rates are per node: a job's value for a metric is the mean
+// over its reporting nodes of each node's rate.
+//
+// # Caveats
+//
+// The JSON field names are part of the HTTP API (v1) and of the store
+// schema; renaming one is a schema change.
+package model
+
+import (
+	"time"
+
+	"sluice/pkg/level"
+	"sluice/pkg/metric"
+)
+
+// JobMeta is what the scheduler hooks tell about a job.
+type JobMeta struct {
+	ID      string    `json:"id"`
+	User    string    `json:"user,omitempty"`
+	Account string    `json:"account,omitempty"`
+	Name    string    `json:"name,omitempty"`
+	Nodes   []string  `json:"nodes,omitempty"` // node list from the job events
+	Start   time.Time `json:"start"`
+	End     time.Time `json:"end,omitzero"`
+	Exit    int32     `json:"exit_code,omitempty"`
+	// Announced is false when the job is known only from samples (no job
+	// start event has arrived).
+	Announced bool `json:"announced"`
+}
+
+// Ended reports whether a job end event has arrived.
+func (m JobMeta) Ended() bool { return !m.End.IsZero() }
+
+// Window is one closed fixed span of a job's life.
+type Window struct {
+	Job   string    `json:"job"`
+	Index int       `json:"index"` // 0 for the span starting at the job's start
+	Start time.Time `json:"start"`
+	End   time.Time `json:"end"`
+	Nodes int       `json:"nodes"` // nodes that reported in the window
+	// Rates is the mean over reporting nodes of each node's rate
+	// (bytes/s or ops/s), indexed by metric.ID.
+	Rates  metric.Rates `json:"rates"`
+	Levels level.Levels `json:"levels"`
+}
+
+// Flag is a finding about a running job: why, since when, how strong.
+type Flag struct {
+	ID     string      `json:"id"`
+	Job    string      `json:"job"`
+	Reason string      `json:"reason"` // e.g. "critical:creates"
+	Metric metric.ID   `json:"metric"`
+	Level  level.Level `json:"level"`
+	Value  float64     `json:"value"` // per-node rate when raised (latest while active)
+	Peak   float64     `json:"peak"`  // highest per-node rate while active
+	Cut    float64     `json:"cut"`   // the cut point crossed
+	Nodes  int         `json:"nodes"` // nodes reporting when raised
+	Since  time.Time   `json:"since"` // first evaluation above the cut
+	Raised time.Time   `json:"raised"`
+	// Cleared is zero while the flag is active.
+	Cleared time.Time `json:"cleared,omitzero"`
+}
+
+// Active reports whether the flag has not been cleared.
+func (f Flag) Active() bool { return f.Cleared.IsZero() }
+
+// Summary is a running or recently ended job as the API lists it.
+type Summary struct {
+	JobMeta
+	State       string       `json:"state"` // "running" or "ended"
+	NodesSeen   int          `json:"nodes_seen"`
+	LastSample  time.Time    `json:"last_sample,omitzero"`
+	Live        metric.Rates `json:"live"` // live-window per-node rates
+	LiveLevels  level.Levels `json:"live_levels"`
+	Windows     int          `json:"windows"` // closed windows
+	LastWindow  *Window      `json:"last_window,omitempty"`
+	ActiveFlags []Flag       `json:"flags"`
+}

@@ -1,0 +1,280 @@
+// Package store keeps the aggregator's state in one bbolt file: jobs (with
+// their open windows, so a restart resumes mid-window), closed windows,
+// flags and each node's applied sequence numbers.
+//
+// # Basics
+//
+// [Open] takes the file lock with a timeout, so a second aggregator on the
+// same file fails fast with [ErrLocked] instead of hanging. Writes go
+// through [Store.Apply], one transaction per [Batch]; the aggregator batches
+// a second's worth of changes into one. Records are JSON, keyed as:
+//
+//	meta     "schema" -> "1", "watermark" -> RFC 3339 time
+//	jobs     job id -> tracker.JobState
+//	windows  job id, 0x00, 8-byte big-endian index -> model.Window
+//	flags    flag id -> model.Flag
+//	nodes    node -> tracker.SeqSet
+//
+// # Caveats
+//
+// Values returned by the read methods are decoded copies; nothing refers to
+// memory bbolt owns after a transaction ends. The schema version is checked
+// on open: a file from a newer schema is refused rather than misread.
+package store
+
+import (
+	"encoding/binary"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"time"
+
+	bolt "go.etcd.io/bbolt"
+	bolterr "go.etcd.io/bbolt/errors"
+
+	"sluice/pkg/model"
+	"sluice/pkg/tracker"
+)
+
+// SchemaVersion is the layout version this package reads and writes.
+const SchemaVersion = "1"
+
+var (
+	bucketMeta    = []byte("meta")
+	bucketJobs    = []byte("jobs")
+	bucketWindows = []byte("windows")
+	bucketFlags   = []byte("flags")
+	bucketNodes   = []byte("nodes")
+	allBuckets    = [][]byte{bucketMeta, bucketJobs, bucketWindows, bucketFlags, bucketNodes}
+)
+
+// ErrLocked means another process holds the file.
+var ErrLocked = errors.New("store file is locked by another process")
+
+// ErrSchema means the file was written with a schema this build cannot read.
+var ErrSchema = errors.New("unsupported store schema")
+
+// Options configures Open. Zero values mean defaults.
+type Options struct {
+	// LockTimeout bounds the wait for the file lock; zero means 1 second.
+	LockTimeout time.Duration
+}
+
+// Store is an open state file.
+type Store struct {
+	db   *bolt.DB
+	path string
+}
+
+// Open opens or creates the file at path.
+func Open(path string, opts Options) (*Store, error) {
+	if opts.LockTimeout == 0 {
+		opts.LockTimeout = time.Second
+	}
+	db, err := bolt.Open(path, 0o600, &bolt.Options{Timeout: opts.LockTimeout})
+	if errors.Is(err, bolterr.ErrTimeout) {
+		return nil, fmt.Errorf("open %s: %w (waited %s; is another aggregator running on it?)", path, ErrLocked, opts.LockTimeout)
+	}
+	if err != nil {
+		return nil, fmt.Errorf("open %s: %w", path, err)
+	}
+	s := &Store{db: db, path: path}
+	if err := s.init(); err != nil {
+		db.Close()
+		return nil, err
+	}
+	return s, nil
+}
+
+func (s *Store) init() error {
+	return s.db.Update(func(tx *bolt.Tx) error {
+		for _, b := range allBuckets {
+			if _, err := tx.CreateBucketIfNotExists(b); err != nil {
+				return fmt.Errorf("create bucket %s: %w", b, err)
+			}
+		}
+		meta := tx.Bucket(bucketMeta)
+		switch v := meta.Get([]byte("schema")); {
+		case v == nil:
+			return meta.Put([]byte("schema"), []byte(SchemaVersion))
+		case string(v) != SchemaVersion:
+			return fmt.Errorf("%s: %w %q (this build reads %q)", s.path, ErrSchema, v, SchemaVersion)
+		}
+		return nil
+	})
+}
+
+// Close releases the file.
+func (s *Store) Close() error { return s.db.Close() }
+
+// Path is the file's path.
+func (s *Store) Path() string { return s.path }
+
+// Check runs bbolt's consistency check and returns the first problem.
+func (s *Store) Check() error {
+	return s.db.View(func(tx *bolt.Tx) error {
+		for err := range tx.Check() {
+			return err
+		}
+		return nil
+	})
+}
+
+// Batch is a set of changes written in one transaction.
+type Batch struct {
+	Jobs      []tracker.JobState
+	GoneJobs  []string
+	Windows   []model.Window
+	Flags     []model.Flag
+	Nodes     map[string]tracker.SeqSet
+	Watermark time.Time
+}
+
+// Empty reports whether the batch would write nothing.
+func (b *Batch) Empty() bool {
+	return len(b.Jobs) == 0 && len(b.GoneJobs) == 0 && len(b.Windows) == 0 && len(b.Flags) == 0 && len(b.Nodes) == 0 && b.Watermark.IsZero()
+}
+
+// Apply writes a batch in one transaction.
+func (s *Store) Apply(b *Batch) error {
+	err := s.db.Update(func(tx *bolt.Tx) error {
+		for i := range b.Jobs {
+			if err := putJSON(tx.Bucket(bucketJobs), []byte(b.Jobs[i].Meta.ID), &b.Jobs[i]); err != nil {
+				return err
+			}
+		}
+		for _, id := range b.GoneJobs {
+			if err := tx.Bucket(bucketJobs).Delete([]byte(id)); err != nil {
+				return err
+			}
+		}
+		for i := range b.Windows {
+			w := &b.Windows[i]
+			if err := putJSON(tx.Bucket(bucketWindows), windowKey(w.Job, w.Index), w); err != nil {
+				return err
+			}
+		}
+		for i := range b.Flags {
+			if err := putJSON(tx.Bucket(bucketFlags), []byte(b.Flags[i].ID), &b.Flags[i]); err != nil {
+				return err
+			}
+		}
+		for n, seqs := range b.Nodes {
+			if err := putJSON(tx.Bucket(bucketNodes), []byte(n), &seqs); err != nil {
+				return err
+			}
+		}
+		if !b.Watermark.IsZero() {
+			return tx.Bucket(bucketMeta).Put([]byte("watermark"), []byte(b.Watermark.UTC().Format(time.RFC3339Nano)))
+		}
+		return nil
+	})
+	if err != nil {
+		return fmt.Errorf("store %s: apply batch: %w", s.path, err)
+	}
+	return nil
+}
+
+func putJSON(b *bolt.Bucket, key []byte, v any) error {
+	data, err := json.Marshal(v)
+	if err != nil {
+		return fmt.Errorf("encode record %q: %w", key, err)
+	}
+	return b.Put(key, data)
+}
+
+func windowKey(job string, idx int) []byte {
+	k := make([]byte, 0, len(job)+9)
+	k = append(k, job...)
+	k = append(k, 0)
+	return binary.BigEndian.AppendUint64(k, uint64(idx))
+}
+
+// State is everything a restarting aggregator loads.
+type State struct {
+	Jobs      []tracker.JobState
+	Nodes     map[string]tracker.SeqSet
+	Watermark time.Time
+}
+
+// Load reads the jobs, node sequence sets and watermark.
+func (s *Store) Load() (State, error) {
+	st := State{Nodes: map[string]tracker.SeqSet{}}
+	err := s.db.View(func(tx *bolt.Tx) error {
+		err := tx.Bucket(bucketJobs).ForEach(func(k, v []byte) error {
+			var j tracker.JobState
+			if err := json.Unmarshal(v, &j); err != nil {
+				return fmt.Errorf("job %q: %w", k, err)
+			}
+			st.Jobs = append(st.Jobs, j)
+			return nil
+		})
+		if err != nil {
+			return err
+		}
+		err = tx.Bucket(bucketNodes).ForEach(func(k, v []byte) error {
+			var n tracker.SeqSet
+			if err := json.Unmarshal(v, &n); err != nil {
+				return fmt.Errorf("node %q: %w", k, err)
+			}
+			st.Nodes[string(k)] = n
+			return nil
+		})
+		if err != nil {
+			return err
+		}
+		if v := tx.Bucket(bucketMeta).Get([]byte("watermark")); v != nil {
+			wm, err := time.Parse(time.RFC3339Nano, string(v))
+			if err != nil {
+				return fmt.Errorf("watermark %q: %w", v, err)
+			}
+			st.Watermark = wm
+		}
+		return nil
+	})
+	if err != nil {
+		return State{}, fmt.Errorf("store %s: load: %w", s.path, err)
+	}
+	return st, nil
+}
+
+// Windows returns a job's closed windows in index order.
+func (s *Store) Windows(job string) ([]model.Window, error) {
+	var ws []model.Window
+	prefix := append([]byte(job), 0)
+	err := s.db.View(func(tx *bolt.Tx) error {
+		c := tx.Bucket(bucketWindows).Cursor()
+		for k, v := c.Seek(prefix); k != nil && len(k) == len(prefix)+8 && string(k[:len(prefix)]) == string(prefix); k, v = c.Next() {
+			var w model.Window
+			if err := json.Unmarshal(v, &w); err != nil {
+				return fmt.Errorf("window %q: %w", k, err)
+			}
+			ws = append(ws, w)
+		}
+		return nil
+	})
+	if err != nil {
+		return nil, fmt.Errorf("store %s: windows of %s: %w", s.path, job, err)
+	}
+	return ws, nil
+}
+
+// Flags returns every stored flag, active and cleared, for every job,
+// ordered by id.
+func (s *Store) Flags() ([]model.Flag, error) {
+	var fs []model.Flag
+	err := s.db.View(func(tx *bolt.Tx) error {
+		return tx.Bucket(bucketFlags).ForEach(func(k, v []byte) error {
+			var f model.Flag
+			if err := json.Unmarshal(v, &f); err != nil {
+				return fmt.Errorf("flag %q: %w", k, err)
+			}
+			fs = append(fs, f)
+			return nil
+		})
+	})
+	if err != nil {
+		return nil, fmt.Errorf("store %s: flags: %w", s.path, err)
+	}
+	return fs, nil
+}

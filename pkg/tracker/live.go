@@ -1,0 +1,247 @@
+package tracker
+
+import (
+	"fmt"
+	"time"
+
+	"sluice/pkg/level"
+	"sluice/pkg/metric"
+	"sluice/pkg/model"
+)
+
+// EventKind says what changed.
+type EventKind int
+
+// The kinds of change a tracker reports.
+const (
+	JobSeen      EventKind = iota + 1 // first sample or start event of a job
+	WindowClosed                      // a window closed; Window is set
+	FlagRaised                        // a flag was raised; Flag is set
+	FlagCleared                       // a flag was cleared; Flag is set
+	JobEnded                          // a job finished; its windows are closed
+)
+
+// Event is one change, for the caller to persist and report.
+type Event struct {
+	Kind   EventKind
+	Job    string
+	Window *model.Window
+	Flag   *model.Flag
+}
+
+// evaluate recomputes a job's live window and steps each metric's
+// hysteresis: RaiseAfter evaluations in a row above the critical cut raise
+// a flag, ClearAfter in a row at or below it clear the flag.
+func (t *Tracker) evaluate(j *JobState) {
+	from := j.LastSample.Add(-t.opts.Live)
+	var nodes []*Accum
+	for node, slices := range j.Live {
+		keep := slices[:0]
+		a := &Accum{}
+		for _, s := range slices {
+			if s.End.After(from) {
+				keep = append(keep, s)
+				a.Seconds += s.Seconds
+				a.Values.Add(s.Values)
+			}
+		}
+		if len(keep) == 0 {
+			delete(j.Live, node)
+			continue
+		}
+		j.Live[node] = keep
+		nodes = append(nodes, a)
+	}
+	j.LiveRates = meanRate(nodes)
+	j.LiveNodes = len(nodes)
+	for i, r := range j.LiveRates {
+		id := metric.ID(i)
+		j.LiveLevels[i] = t.opts.Cuts.Classify(id, r)
+		t.step(j, id, r)
+	}
+	t.dirtyJobs[j.Meta.ID] = struct{}{}
+}
+
+func (t *Tracker) step(j *JobState, id metric.ID, rate float64) {
+	h := &j.Hyst[id]
+	cut := t.opts.Cuts[id].Critical
+	now := j.LastSample
+	if rate > cut {
+		if h.Above == 0 {
+			h.Since = now
+		}
+		h.Above++
+		h.Below = 0
+		if f := h.Flag; f != nil {
+			f.Value, f.Peak = rate, max(f.Peak, rate)
+			return
+		}
+		if h.Above >= t.opts.RaiseAfter {
+			h.Flag = &model.Flag{
+				ID:     fmt.Sprintf("%s/critical:%s/%d", j.Meta.ID, id, h.Since.Unix()),
+				Job:    j.Meta.ID,
+				Reason: "critical:" + id.String(),
+				Metric: id, Level: level.Critical,
+				Value: rate, Peak: rate, Cut: cut,
+				Nodes: j.LiveNodes, Since: h.Since, Raised: now,
+			}
+			t.emit(Event{Kind: FlagRaised, Job: j.Meta.ID, Flag: cloneFlag(h.Flag)})
+		}
+		return
+	}
+	h.Above = 0
+	if h.Flag == nil {
+		return
+	}
+	h.Flag.Value = rate
+	h.Below++
+	if h.Below >= t.opts.ClearAfter {
+		h.Flag.Cleared = now
+		t.emit(Event{Kind: FlagCleared, Job: j.Meta.ID, Flag: h.Flag})
+		*h = Hysteresis{}
+	}
+}
+
+func cloneFlag(f *model.Flag) *model.Flag {
+	c := *f
+	return &c
+}
+
+// Job returns a copy of a job's summary.
+func (t *Tracker) Job(id string) (model.Summary, bool) {
+	j, ok := t.jobs[id]
+	if !ok {
+		return model.Summary{}, false
+	}
+	return summarize(j), true
+}
+
+// Summaries lists every tracked job, running first, then by id.
+func (t *Tracker) Summaries() []model.Summary {
+	out := make([]model.Summary, 0, len(t.jobs))
+	for _, id := range t.sortedJobIDs() {
+		out = append(out, summarize(t.jobs[id]))
+	}
+	slicesStableRunningFirst(out)
+	return out
+}
+
+func summarize(j *JobState) model.Summary {
+	s := model.Summary{
+		JobMeta:     j.Meta,
+		State:       "running",
+		NodesSeen:   len(j.Live),
+		LastSample:  j.LastSample,
+		Live:        j.LiveRates,
+		LiveLevels:  j.LiveLevels,
+		Windows:     j.Closed,
+		ActiveFlags: []model.Flag{},
+	}
+	s.Nodes = append([]string(nil), j.Meta.Nodes...)
+	if j.Finished {
+		s.State = "ended"
+	}
+	if j.LastWindow != nil {
+		w := *j.LastWindow
+		s.LastWindow = &w
+	}
+	for _, h := range j.Hyst {
+		if h.Flag != nil {
+			s.ActiveFlags = append(s.ActiveFlags, *h.Flag)
+		}
+	}
+	return s
+}
+
+func slicesStableRunningFirst(s []model.Summary) {
+	running := s[:0:0]
+	var ended []model.Summary
+	for _, x := range s {
+		if x.State == "running" {
+			running = append(running, x)
+		} else {
+			ended = append(ended, x)
+		}
+	}
+	copy(s, append(running, ended...))
+}
+
+// DirtyJobs returns copies of the jobs changed since the last call and
+// the ids of jobs forgotten since then, for the store.
+func (t *Tracker) DirtyJobs() (changed []JobState, gone []string) {
+	for id := range t.dirtyJobs {
+		if j, ok := t.jobs[id]; ok {
+			changed = append(changed, j.clone())
+		}
+	}
+	clear(t.dirtyJobs)
+	gone, t.gone = t.gone, nil
+	return changed, gone
+}
+
+// DirtyNodes returns copies of the sequence sets changed since the last
+// call.
+func (t *Tracker) DirtyNodes() map[string]SeqSet {
+	out := make(map[string]SeqSet, len(t.dirtyNodes))
+	for n := range t.dirtyNodes {
+		s := t.nodes[n]
+		out[n] = SeqSet{High: s.High, Bits: append([]uint64(nil), s.Bits...)}
+	}
+	clear(t.dirtyNodes)
+	return out
+}
+
+// Restore loads persisted state into an empty tracker.
+func (t *Tracker) Restore(jobs []JobState, nodes map[string]SeqSet, watermark time.Time) error {
+	if len(t.jobs) > 0 || len(t.nodes) > 0 {
+		return fmt.Errorf("restore into a tracker that already holds state")
+	}
+	for _, j := range jobs {
+		c := j.clone()
+		if c.Live == nil {
+			c.Live = map[string][]Slice{}
+		}
+		if c.Open == nil {
+			c.Open = map[int]*OpenWindow{}
+		}
+		t.jobs[c.Meta.ID] = &c
+	}
+	for n, s := range nodes {
+		if want := (t.opts.DedupeSpan + 63) / 64; len(s.Bits) != want {
+			return fmt.Errorf("node %s: dedupe span of %d bits on file, %d configured", n, len(s.Bits)*64, want*64)
+		}
+		c := s
+		c.Bits = append([]uint64(nil), s.Bits...)
+		t.nodes[n] = &c
+	}
+	t.watermark = watermark
+	return nil
+}
+
+func (j *JobState) clone() JobState {
+	c := *j
+	c.Meta.Nodes = append([]string(nil), j.Meta.Nodes...)
+	c.Live = make(map[string][]Slice, len(j.Live))
+	for n, s := range j.Live {
+		c.Live[n] = append([]Slice(nil), s...)
+	}
+	c.Open = make(map[int]*OpenWindow, len(j.Open))
+	for i, w := range j.Open {
+		nw := &OpenWindow{Nodes: make(map[string]*Accum, len(w.Nodes))}
+		for n, a := range w.Nodes {
+			ac := *a
+			nw.Nodes[n] = &ac
+		}
+		c.Open[i] = nw
+	}
+	if j.LastWindow != nil {
+		w := *j.LastWindow
+		c.LastWindow = &w
+	}
+	for i, h := range j.Hyst {
+		if h.Flag != nil {
+			c.Hyst[i].Flag = cloneFlag(h.Flag)
+		}
+	}
+	return c
+}

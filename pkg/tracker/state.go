@@ -1,0 +1,142 @@
+package tracker
+
+import (
+	"maps"
+	"slices"
+	"time"
+
+	"sluice/pkg/level"
+	"sluice/pkg/metric"
+	"sluice/pkg/model"
+)
+
+// JobState is everything the tracker holds about one job. It is exported
+// so the store can persist it whole and a restarted aggregator resumes
+// exactly where it stopped.
+type JobState struct {
+	Meta model.JobMeta `json:"meta"`
+	// Live holds each node's recent samples, newest last, for the live
+	// window.
+	Live map[string][]Slice `json:"live"`
+	// Open holds the windows still taking samples, by index.
+	Open map[int]*OpenWindow `json:"open"`
+	// Closed is the number of windows closed so far; also the index below
+	// which samples are late.
+	Closed     int           `json:"closed"`
+	LastWindow *model.Window `json:"last_window,omitempty"`
+	LastSample time.Time     `json:"last_sample,omitzero"`
+	// LiveRates and LiveLevels are the result of the latest evaluation.
+	LiveRates  metric.Rates             `json:"live_rates"`
+	LiveLevels level.Levels             `json:"live_levels"`
+	LiveNodes  int                      `json:"live_nodes"`
+	Hyst       [metric.Count]Hysteresis `json:"hyst"`
+	Finished   bool                     `json:"finished,omitempty"`
+
+	dirty bool // samples since the last evaluation
+}
+
+// Slice is one sample's contribution to a job on one node.
+type Slice struct {
+	End     time.Time     `json:"end"`
+	Seconds float64       `json:"s"`
+	Values  metric.Values `json:"v"`
+}
+
+// Accum sums one node's samples in a window.
+type Accum struct {
+	Seconds float64       `json:"s"`
+	Values  metric.Values `json:"v"`
+}
+
+// OpenWindow accumulates a window's samples per node.
+type OpenWindow struct {
+	Nodes map[string]*Accum `json:"nodes"`
+}
+
+// Hysteresis is one metric's raise/clear state.
+type Hysteresis struct {
+	Above int         `json:"above,omitempty"` // consecutive evaluations above the cut
+	Below int         `json:"below,omitempty"` // consecutive evaluations at or below it, while flagged
+	Since time.Time   `json:"since,omitzero"`  // first of the current run above the cut
+	Flag  *model.Flag `json:"flag,omitempty"`  // the active flag, if any
+}
+
+func (j *JobState) windowIndex(end time.Time, w time.Duration) int {
+	if !end.After(j.Meta.Start) {
+		return 0
+	}
+	// A sample ending exactly on a boundary belongs to the window it ends.
+	return int((end.Sub(j.Meta.Start) - 1) / w)
+}
+
+func (j *JobState) addLive(node string, s Slice) {
+	j.Live[node] = append(j.Live[node], s)
+}
+
+func (j *JobState) addWindow(idx int, node string, secs float64, v metric.Values) {
+	w := j.Open[idx]
+	if w == nil {
+		w = &OpenWindow{Nodes: make(map[string]*Accum)}
+		j.Open[idx] = w
+	}
+	a := w.Nodes[node]
+	if a == nil {
+		a = &Accum{}
+		w.Nodes[node] = a
+	}
+	a.Seconds += secs
+	a.Values.Add(v)
+}
+
+// closeWindows closes, in index order, the open windows whose end plus
+// grace is not after now; a zero now closes all of them (job finished).
+func (t *Tracker) closeWindows(j *JobState, now time.Time) {
+	for _, idx := range slices.Sorted(maps.Keys(j.Open)) {
+		start := j.Meta.Start.Add(time.Duration(idx) * t.opts.Window)
+		end := start.Add(t.opts.Window)
+		if !now.IsZero() && end.Add(t.opts.Grace).After(now) {
+			return
+		}
+		if j.Meta.Ended() && j.Meta.End.Before(end) && j.Meta.End.After(start) {
+			end = j.Meta.End
+		}
+		w := t.windowOf(j.Meta.ID, idx, start, end, j.Open[idx])
+		delete(j.Open, idx)
+		j.Closed = idx + 1
+		j.LastWindow = &w
+		t.dirtyJobs[j.Meta.ID] = struct{}{}
+		t.emit(Event{Kind: WindowClosed, Job: j.Meta.ID, Window: &w})
+	}
+}
+
+func (t *Tracker) windowOf(job string, idx int, start, end time.Time, ow *OpenWindow) model.Window {
+	w := model.Window{Job: job, Index: idx, Start: start, End: end, Nodes: len(ow.Nodes)}
+	w.Rates = meanRate(slices.Collect(maps.Values(ow.Nodes)))
+	for i, r := range w.Rates {
+		w.Levels[i] = t.opts.Cuts.Classify(metric.ID(i), r)
+	}
+	return w
+}
+
+// meanRate is the mean over nodes of each node's rate (sum of its deltas
+// over the seconds its samples cover). Nodes covering no time are skipped.
+func meanRate(nodes []*Accum) metric.Rates {
+	var sum metric.Rates
+	n := 0
+	for _, a := range nodes {
+		if a.Seconds <= 0 {
+			continue
+		}
+		n++
+		for i, x := range a.Values {
+			sum[i] += float64(x) / a.Seconds
+		}
+	}
+	if n == 0 {
+		return sum
+	}
+	for i := range sum {
+		sum[i] /= float64(n)
+	}
+	return sum
+}
