@@ -1,0 +1,308 @@
+// Package aggregate is the aggregator service: it subscribes to the agents'
+// samples, job events and heartbeats, feeds the tracker, writes the store in
+// batches and serves /metrics, /healthz and the JSON API.
+//
+// # Basics
+//
+// [New] validates [Options]; [Service.Run] opens the store (failing fast if
+// another aggregator holds it), restores the tracker from it, connects to
+// the broker (or starts an embedded one), and runs until its context ends,
+// then flushes and closes everything.
+//
+// # Caveats
+//
+// One mutex (Service.mu) guards the tracker and the ingest counters; the
+// NATS callbacks, the tick loop and HTTP handlers all take it briefly.
+// Decoding happens outside it.
+package aggregate
+
+import (
+	"cmp"
+	"context"
+	"errors"
+	"fmt"
+	"log/slog"
+	"net"
+	"net/http"
+	"sync"
+	"time"
+
+	"github.com/nats-io/nats.go"
+
+	"sluice/pkg/bus"
+	"sluice/pkg/export"
+	"sluice/pkg/model"
+	"sluice/pkg/store"
+	"sluice/pkg/tracker"
+	"sluice/pkg/wire"
+)
+
+// Options configures the service. Zero values mean the documented defaults.
+type Options struct {
+	// NATSURL is the broker to use; empty starts an embedded broker.
+	NATSURL string
+	// EmbeddedListen is the embedded broker's host:port; empty means
+	// 127.0.0.1:4222. Use "127.0.0.1:0" for a free port.
+	EmbeddedListen string
+	// Prefix and Cluster name the subjects (see package bus).
+	Prefix, Cluster string
+	// StorePath is the bbolt file; required.
+	StorePath string
+	// StoreLockTimeout bounds the wait for the store's lock; zero means 1s.
+	StoreLockTimeout time.Duration
+	// Listen is the HTTP address; empty means 127.0.0.1:9713. Use
+	// "127.0.0.1:0" for a free port.
+	Listen string
+	// Tracker configures windows, cut points and hysteresis.
+	Tracker tracker.Options
+	// TickEvery is how often windows are closed and live windows
+	// evaluated; zero means 5 seconds.
+	TickEvery time.Duration
+	// FlushEvery is how often changes are written to the store; zero
+	// means 1 second.
+	FlushEvery time.Duration
+	// MaxJobSeries caps the jobs given per-job series on /metrics; zero
+	// means 2000.
+	MaxJobSeries int
+	// Logger receives the service's logs; nil discards them.
+	Logger *slog.Logger
+	// OnEvent, if set, is called for every tracker event after it is
+	// persisted, without the service lock held.
+	OnEvent func(tracker.Event, model.Summary)
+	// Now is the wall clock, for ingest lag; nil means time.Now.
+	Now func() time.Time
+}
+
+func (o Options) withDefaults() Options {
+	o.EmbeddedListen = cmp.Or(o.EmbeddedListen, "127.0.0.1:4222")
+	o.Listen = cmp.Or(o.Listen, "127.0.0.1:9713")
+	o.TickEvery = cmp.Or(o.TickEvery, 5*time.Second)
+	o.FlushEvery = cmp.Or(o.FlushEvery, time.Second)
+	o.MaxJobSeries = cmp.Or(o.MaxJobSeries, 2000)
+	if o.Logger == nil {
+		o.Logger = slog.New(slog.DiscardHandler)
+	}
+	if o.Now == nil {
+		o.Now = time.Now
+	}
+	return o
+}
+
+// Service is a running aggregator.
+type Service struct {
+	opts Options
+	subj bus.Subjects
+	log  *slog.Logger
+
+	mu     sync.Mutex
+	tr     *tracker.Tracker
+	ingest export.Ingest
+	// pending and unreported hold what the last failed flush could not
+	// write; guarded by flushMu.
+	pending    store.Batch
+	unreported []reported
+	beats      map[string]wire.Heartbeat
+
+	flushMu  sync.Mutex // serialises flushes; taken before mu
+	st       *store.Store
+	ready    chan struct{}
+	httpAddr string
+	natsURL  string
+	flushErr error
+}
+
+// New validates opts.
+func New(opts Options) (*Service, error) {
+	opts = opts.withDefaults()
+	if opts.StorePath == "" {
+		return nil, errors.New("aggregator: a store path is required (--store.path)")
+	}
+	subj, err := bus.NewSubjects(opts.Prefix, opts.Cluster)
+	if err != nil {
+		return nil, fmt.Errorf("aggregator: %w", err)
+	}
+	tr, err := tracker.New(opts.Tracker)
+	if err != nil {
+		return nil, fmt.Errorf("aggregator: %w", err)
+	}
+	return &Service{
+		opts:   opts,
+		subj:   subj,
+		log:    opts.Logger,
+		tr:     tr,
+		ingest: export.NewIngest(),
+		beats:  map[string]wire.Heartbeat{},
+		ready:  make(chan struct{}),
+	}, nil
+}
+
+// Ready is closed once the service is subscribed and serving HTTP.
+func (s *Service) Ready() <-chan struct{} { return s.ready }
+
+// HTTPAddr is the address the HTTP server listens on, once Ready.
+func (s *Service) HTTPAddr() string { return s.httpAddr }
+
+// NATSURL is the broker URL in use (the embedded one's, if started), once
+// Ready.
+func (s *Service) NATSURL() string { return s.natsURL }
+
+// Run serves until ctx ends. It returns an error if start-up fails.
+func (s *Service) Run(ctx context.Context) error {
+	st, err := store.Open(s.opts.StorePath, store.Options{LockTimeout: s.opts.StoreLockTimeout})
+	if err != nil {
+		return fmt.Errorf("aggregator: %w", err)
+	}
+	s.st = st
+	defer st.Close()
+	if err := s.restore(); err != nil {
+		return err
+	}
+	nc, stopBroker, err := s.connect(ctx)
+	if err != nil {
+		return err
+	}
+	defer stopBroker()
+	defer nc.Close()
+	subs, err := s.subscribe(nc)
+	if err != nil {
+		return err
+	}
+	ln, err := net.Listen("tcp", s.opts.Listen)
+	if err != nil {
+		return fmt.Errorf("aggregator: listen %s: %w (set --web.listen)", s.opts.Listen, err)
+	}
+	s.httpAddr = ln.Addr().String()
+	srv := &http.Server{Handler: s.handler(), ReadHeaderTimeout: 5 * time.Second}
+	go func() {
+		if err := srv.Serve(ln); err != nil && !errors.Is(err, http.ErrServerClosed) {
+			s.log.Error("http server stopped", "err", err)
+		}
+	}()
+	s.log.Info("aggregator ready", "http", s.httpAddr, "nats", s.natsURL, "store", s.opts.StorePath)
+	close(s.ready)
+
+	s.loop(ctx)
+
+	for _, sub := range subs {
+		_ = sub.Drain()
+	}
+	_ = nc.Drain()
+	shutCtx, cancel := context.WithTimeout(context.Background(), 2*time.Second)
+	defer cancel()
+	_ = srv.Shutdown(shutCtx)
+	s.mu.Lock()
+	s.tr.Tick()
+	s.mu.Unlock()
+	s.flush()
+	return s.flushErr
+}
+
+func (s *Service) restore() error {
+	state, err := s.st.Load()
+	if err != nil {
+		return fmt.Errorf("aggregator: %w", err)
+	}
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	if err := s.tr.Restore(state.Jobs, state.Nodes, state.Watermark); err != nil {
+		return fmt.Errorf("aggregator: restore from %s: %w", s.opts.StorePath, err)
+	}
+	s.log.Info("state restored", "jobs", len(state.Jobs), "nodes", len(state.Nodes), "watermark", state.Watermark)
+	return nil
+}
+
+func (s *Service) connect(ctx context.Context) (*nats.Conn, func(), error) {
+	stop := func() {}
+	url := s.opts.NATSURL
+	if url == "" {
+		emb, err := bus.StartEmbedded(bus.EmbeddedOptions{Listen: s.opts.EmbeddedListen})
+		if err != nil {
+			return nil, nil, fmt.Errorf("aggregator: %w (set --nats.url to use an external broker, or --nats.embedded.listen)", err)
+		}
+		url, stop = emb.URL(), emb.Shutdown
+	}
+	s.natsURL = url
+	nc, err := bus.Connect(ctx, url, "sluice-aggregator",
+		nats.ErrorHandler(func(_ *nats.Conn, sub *nats.Subscription, err error) {
+			if errors.Is(err, nats.ErrSlowConsumer) {
+				s.countSlow(sub)
+				return
+			}
+			s.log.Warn("nats error", "err", err)
+		}))
+	if err != nil {
+		stop()
+		return nil, nil, fmt.Errorf("aggregator: %w", err)
+	}
+	wctx, cancel := context.WithTimeout(ctx, 10*time.Second)
+	defer cancel()
+	if err := bus.WaitConnected(wctx, nc); err != nil {
+		nc.Close()
+		stop()
+		return nil, nil, fmt.Errorf("aggregator: %w", err)
+	}
+	return nc, stop, nil
+}
+
+func (s *Service) countSlow(sub *nats.Subscription) {
+	if sub == nil {
+		return
+	}
+	dropped, _ := sub.Dropped()
+	s.mu.Lock()
+	s.ingest.SlowConsumerDropped = uint64(dropped)
+	s.mu.Unlock()
+}
+
+func (s *Service) subscribe(nc *nats.Conn) ([]*nats.Subscription, error) {
+	var subs []*nats.Subscription
+	for subj, h := range map[string]nats.MsgHandler{
+		s.subj.AllSamples(): s.onSample(),
+		s.subj.AllJobs():    s.onJobEvent(),
+		s.subj.AllBeats():   s.onHeartbeat(),
+	} {
+		sub, err := nc.Subscribe(subj, h)
+		if err != nil {
+			return nil, fmt.Errorf("aggregator: subscribe %s: %w", subj, err)
+		}
+		// Samples arrive in bursts from thousands of nodes; give the
+		// subscription room before the client drops (and counts) any.
+		if err := sub.SetPendingLimits(1<<20, 512<<20); err != nil {
+			return nil, fmt.Errorf("aggregator: pending limits on %s: %w", subj, err)
+		}
+		subs = append(subs, sub)
+	}
+	if err := nc.Flush(); err != nil {
+		return nil, fmt.Errorf("aggregator: flush subscriptions: %w", err)
+	}
+	return subs, nil
+}
+
+// loop ticks the tracker and flushes the store until ctx ends.
+func (s *Service) loop(ctx context.Context) {
+	tick := time.NewTicker(s.opts.TickEvery)
+	flush := time.NewTicker(s.opts.FlushEvery)
+	defer tick.Stop()
+	defer flush.Stop()
+	for {
+		select {
+		case <-ctx.Done():
+			return
+		case <-tick.C:
+			s.mu.Lock()
+			s.tr.Tick()
+			s.mu.Unlock()
+		case <-flush.C:
+			s.flush()
+		}
+	}
+}
+
+// Tick runs one tracker tick and one flush now; tests and the demo use it
+// to step the service without waiting for the timers.
+func (s *Service) Tick() {
+	s.mu.Lock()
+	s.tr.Tick()
+	s.mu.Unlock()
+	s.flush()
+}

@@ -1,0 +1,110 @@
+package aggregate
+
+import (
+	"encoding/json"
+	"net/http"
+	"slices"
+
+	"github.com/prometheus/client_golang/prometheus"
+	"github.com/prometheus/client_golang/prometheus/collectors"
+	"github.com/prometheus/client_golang/prometheus/promhttp"
+
+	"sluice/pkg/export"
+	"sluice/pkg/model"
+)
+
+// Registry returns a new registry holding the service's collector and the
+// process and Go runtime collectors. It is made per service, never global.
+func (s *Service) Registry() *prometheus.Registry {
+	reg := prometheus.NewRegistry()
+	reg.MustRegister(
+		export.NewCollector(s.Snapshot),
+		collectors.NewProcessCollector(collectors.ProcessCollectorOpts{Namespace: "sluice_aggregator"}),
+		collectors.NewGoCollector(),
+	)
+	return reg
+}
+
+// Snapshot copies what one scrape reports.
+func (s *Service) Snapshot() export.Snapshot {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	var running []model.Summary
+	for _, j := range s.tr.Summaries() {
+		if j.State == "running" {
+			running = append(running, j)
+		}
+	}
+	return export.Snapshot{
+		Ingest:       s.ingest.Clone(),
+		Jobs:         running,
+		Cuts:         s.tr.Options().Cuts,
+		Watermark:    s.tr.Watermark(),
+		Now:          s.opts.Now(),
+		Nodes:        s.tr.Nodes(),
+		MaxJobSeries: s.opts.MaxJobSeries,
+	}
+}
+
+// JobDetail is a job's summary with its closed windows, as
+// /api/v1/jobs/{id} returns it.
+type JobDetail struct {
+	model.Summary
+	ClosedWindows []model.Window `json:"closed_windows"`
+}
+
+func (s *Service) handler() http.Handler {
+	mux := http.NewServeMux()
+	mux.Handle("GET /metrics", promhttp.HandlerFor(s.Registry(), promhttp.HandlerOpts{ErrorHandling: promhttp.ContinueOnError}))
+	mux.HandleFunc("GET /healthz", func(w http.ResponseWriter, _ *http.Request) {
+		s.mu.Lock()
+		err := s.flushErr
+		s.mu.Unlock()
+		if err != nil {
+			http.Error(w, "store: "+err.Error(), http.StatusServiceUnavailable)
+			return
+		}
+		_, _ = w.Write([]byte("ok\n"))
+	})
+	mux.HandleFunc("GET /api/v1/jobs", func(w http.ResponseWriter, r *http.Request) {
+		s.mu.Lock()
+		jobs := s.tr.Summaries()
+		s.mu.Unlock()
+		if r.URL.Query().Get("state") == "running" {
+			jobs = slices.DeleteFunc(jobs, func(j model.Summary) bool { return j.State != "running" })
+		}
+		writeJSON(w, map[string]any{"jobs": jobs})
+	})
+	mux.HandleFunc("GET /api/v1/jobs/{id}", func(w http.ResponseWriter, r *http.Request) {
+		id := r.PathValue("id")
+		s.mu.Lock()
+		sum, ok := s.tr.Job(id)
+		s.mu.Unlock()
+		if !ok {
+			http.Error(w, "no such job: "+id, http.StatusNotFound)
+			return
+		}
+		ws, err := s.st.Windows(id)
+		if err != nil {
+			http.Error(w, err.Error(), http.StatusInternalServerError)
+			return
+		}
+		writeJSON(w, JobDetail{Summary: sum, ClosedWindows: ws})
+	})
+	mux.HandleFunc("GET /api/v1/flags", func(w http.ResponseWriter, _ *http.Request) {
+		fs, err := s.st.Flags()
+		if err != nil {
+			http.Error(w, err.Error(), http.StatusInternalServerError)
+			return
+		}
+		writeJSON(w, map[string]any{"flags": fs})
+	})
+	return mux
+}
+
+func writeJSON(w http.ResponseWriter, v any) {
+	w.Header().Set("Content-Type", "application/json")
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", "  ")
+	_ = enc.Encode(v)
+}

@@ -1,0 +1,30 @@
+// Package natstest starts a real NATS server inside a test process.
+package natstest
+
+import (
+	"testing"
+
+	"github.com/nats-io/nats.go"
+	"github.com/stretchr/testify/require"
+
+	"sluice/pkg/bus"
+)
+
+// Start runs an embedded broker on a free loopback port for the test's
+// lifetime and returns it.
+func Start(t testing.TB) *bus.Embedded {
+	t.Helper()
+	srv, err := bus.StartEmbedded(bus.EmbeddedOptions{Listen: "127.0.0.1:0"})
+	require.NoError(t, err)
+	t.Cleanup(srv.Shutdown)
+	return srv
+}
+
+// Connect dials url and closes the connection at cleanup.
+func Connect(t testing.TB, url string) *nats.Conn {
+	t.Helper()
+	nc, err := nats.Connect(url)
+	require.NoError(t, err)
+	t.Cleanup(nc.Close)
+	return nc
+}
