@@ -1,0 +1,49 @@
+# Sluice build, test and demo targets. CI (.ci/run) calls the same ones.
+GO       ?= go
+BIN      ?= $(shell $(GO) env GOPATH)/bin/sluice
+FUZZTIME ?= 5s
+PKGS     := ./...
+
+.PHONY: build test unit fuzz lint demo bench help
+
+help:
+	@echo "make demo   run the whole system on simulated nodes (about 75 s)"
+	@echo "make test   lint, unit and integration tests with -race, short fuzz runs"
+	@echo "make build  build agent and aggregator into $(BIN)"
+	@echo "make bench  run the benchmarks quoted in the README"
+	@echo "make fuzz   run every fuzz target for FUZZTIME (default $(FUZZTIME))"
+	@echo "make lint   gofmt check, go vet, go mod tidy check"
+
+build:
+	@mkdir -p $(BIN)
+	$(GO) build -o $(BIN)/ ./agent ./aggregator
+
+demo: build
+	$(BIN)/aggregator demo --agent.bin $(BIN)/agent
+
+test: lint unit fuzz
+
+unit:
+	$(GO) test -race -count=1 $(PKGS)
+
+lint:
+	@out=$$(gofmt -l $$(git ls-files '*.go') $$(git ls-files --others --exclude-standard '*.go')); \
+	  if [ -n "$$out" ]; then echo "gofmt would change:"; echo "$$out"; exit 1; fi
+	$(GO) vet $(PKGS)
+	@cp go.mod /tmp/sluice-go.mod.bak; cp go.sum /tmp/sluice-go.sum.bak; \
+	  $(GO) mod tidy; \
+	  if ! cmp -s go.mod /tmp/sluice-go.mod.bak || ! cmp -s go.sum /tmp/sluice-go.sum.bak; then \
+	    echo "go mod tidy changed go.mod/go.sum; run it and commit the result"; \
+	    cp /tmp/sluice-go.mod.bak go.mod; cp /tmp/sluice-go.sum.bak go.sum; exit 1; fi
+
+# Each fuzz target runs alone (go test -fuzz takes one target at a time).
+fuzz:
+	@set -e; for pkg in $$($(GO) list ./...); do \
+	  for t in $$($(GO) test -list '^Fuzz' $$pkg | grep '^Fuzz' || true); do \
+	    echo "fuzz $$pkg $$t ($(FUZZTIME))"; \
+	    $(GO) test -run '^$$' -fuzz "^$$t$$" -fuzztime $(FUZZTIME) $$pkg >/dev/null || \
+	      { $(GO) test -run '^$$' -fuzz "^$$t$$" -fuzztime $(FUZZTIME) $$pkg; exit 1; }; \
+	  done; done
+
+bench:
+	$(GO) test -run '^$$' -bench . -benchmem -count 1 ./pkg/...

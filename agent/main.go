@@ -1,0 +1,216 @@
+// Command agent is Sluice's node agent: it samples the node's filesystem
+// client counters and publishes them, and it provides the scheduler hook
+// commands that record job starts and ends on the node.
+//
+//	agent run       sample and publish until SIGTERM or SIGINT
+//	agent job start record a job start (from a prolog)
+//	agent job end   record a job end (from an epilog)
+package main
+
+import (
+	"context"
+	"errors"
+	"flag"
+	"fmt"
+	"io"
+	"log/slog"
+	"os"
+	"os/signal"
+	"strings"
+	"syscall"
+	"time"
+
+	"sluice/pkg/jobstate"
+	"sluice/pkg/mapping"
+	"sluice/pkg/nodeagent"
+	"sluice/pkg/source"
+	"sluice/pkg/source/lustre"
+)
+
+const usage = `usage: agent <command> [flags]
+
+commands:
+  run         sample this node's counters and publish them (until SIGTERM)
+  job start   record that a job started on this node (call from a prolog)
+  job end     record that a job ended on this node (call from an epilog)
+
+Run "agent <command> -h" for the flags of a command.
+`
+
+func main() {
+	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	defer stop()
+	if err := run(ctx, os.Args[1:], os.Stderr); err != nil {
+		fmt.Fprintln(os.Stderr, "agent:", err)
+		os.Exit(1)
+	}
+}
+
+func run(ctx context.Context, args []string, stderr io.Writer) error {
+	if len(args) == 0 {
+		fmt.Fprint(stderr, usage)
+		return errors.New("no command given")
+	}
+	switch {
+	case args[0] == "run":
+		return runAgent(ctx, args[1:], stderr)
+	case args[0] == "job" && len(args) > 1 && args[1] == "start":
+		return jobStart(ctx, args[2:], stderr)
+	case args[0] == "job" && len(args) > 1 && args[1] == "end":
+		return jobEnd(ctx, args[2:], stderr)
+	case args[0] == "-h" || args[0] == "--help" || args[0] == "help":
+		fmt.Fprint(stderr, usage)
+		return nil
+	}
+	fmt.Fprint(stderr, usage)
+	return fmt.Errorf("unknown command %q", strings.Join(args, " "))
+}
+
+// common holds the flags every command shares.
+type common struct {
+	node, stateDir, natsURL, prefix, cluster, logLevel string
+}
+
+func (c *common) register(fs *flag.FlagSet) {
+	host, _ := os.Hostname()
+	fs.StringVar(&c.node, "node", strings.SplitN(host, ".", 2)[0], "this node's name as the scheduler knows it")
+	fs.StringVar(&c.stateDir, "state.dir", "/var/lib/sluice/agent", "directory for job records written by the hooks and the sample sequence number")
+	fs.StringVar(&c.natsURL, "nats.url", "nats://127.0.0.1:4222", "NATS broker URL (comma-separate several servers)")
+	fs.StringVar(&c.prefix, "nats.prefix", "sluice", "first subject token of every message")
+	fs.StringVar(&c.cluster, "nats.cluster", "default", "cluster name, the second subject token")
+	fs.StringVar(&c.logLevel, "log.level", "info", "log level: debug, info, warn or error")
+}
+
+func (c *common) logger(w io.Writer) (*slog.Logger, error) {
+	var lvl slog.Level
+	if err := lvl.UnmarshalText([]byte(c.logLevel)); err != nil {
+		return nil, fmt.Errorf("--log.level: %w", err)
+	}
+	return slog.New(slog.NewTextHandler(w, &slog.HandlerOptions{Level: lvl})), nil
+}
+
+func parse(fs *flag.FlagSet, args []string) error {
+	fs.SetOutput(os.Stderr)
+	if err := fs.Parse(args); err != nil {
+		return err
+	}
+	if fs.NArg() > 0 {
+		return fmt.Errorf("unexpected arguments: %s", strings.Join(fs.Args(), " "))
+	}
+	return nil
+}
+
+func runAgent(ctx context.Context, args []string, stderr io.Writer) error {
+	fs := flag.NewFlagSet("agent run", flag.ContinueOnError)
+	var c common
+	c.register(fs)
+	interval := fs.Duration("interval", 5*time.Second, "sampling interval")
+	lustreRoot := fs.String("source.lustre.root", "/sys/kernel/debug/lustre/llite", "directory holding one <instance>/stats file per Lustre client mount (Lustre before 2.12: /proc/fs/lustre/llite)")
+	mappingFile := fs.String("mapping.file", "", "YAML file of counter-to-metric overrides laid over the default mapping")
+	queueLimit := fs.Int("queue.limit", 720, "samples held while the broker is unreachable (720 is one hour at 5s)")
+	if err := parse(fs, args); err != nil {
+		return err
+	}
+	log, err := c.logger(stderr)
+	if err != nil {
+		return err
+	}
+	if _, err := os.Stat(*lustreRoot); err != nil {
+		return fmt.Errorf("Lustre stats tree %s: %w (set --source.lustre.root to the llite directory)", *lustreRoot, err)
+	}
+	table := mapping.Default()
+	if *mappingFile != "" {
+		f, err := os.Open(*mappingFile)
+		if err != nil {
+			return fmt.Errorf("--mapping.file: %w", err)
+		}
+		table, err = mapping.Load(f, table)
+		f.Close()
+		if err != nil {
+			return fmt.Errorf("--mapping.file %s: %w", *mappingFile, err)
+		}
+	}
+	a, err := nodeagent.New(nodeagent.Config{
+		Node: c.node, Interval: *interval, StateDir: c.stateDir,
+		Sources: []source.Source{lustre.NewSource(*lustreRoot, nil)},
+		Mapping: table, NATSURL: c.natsURL, Prefix: c.prefix, Cluster: c.cluster,
+		QueueLimit: *queueLimit, Logger: log,
+	})
+	if err != nil {
+		return err
+	}
+	return a.Run(ctx)
+}
+
+func hookFlags(name string, c *common) (*flag.FlagSet, *string, *string) {
+	fs := flag.NewFlagSet(name, flag.ContinueOnError)
+	c.register(fs)
+	id := fs.String("id", "", "job id (required)")
+	at := fs.String("time", "", "when it happened, RFC 3339 (default: now)")
+	return fs, id, at
+}
+
+func hookTime(at string) (time.Time, error) {
+	if at == "" {
+		return time.Now(), nil
+	}
+	t, err := time.Parse(time.RFC3339, at)
+	if err != nil {
+		return time.Time{}, fmt.Errorf("--time: %w", err)
+	}
+	return t, nil
+}
+
+func (c *common) hook(log *slog.Logger) nodeagent.HookConfig {
+	return nodeagent.HookConfig{StateDir: c.stateDir, Node: c.node, NATSURL: c.natsURL, Prefix: c.prefix, Cluster: c.cluster, Logger: log}
+}
+
+func jobStart(ctx context.Context, args []string, stderr io.Writer) error {
+	var c common
+	fs, id, at := hookFlags("agent job start", &c)
+	user := fs.String("user", "", "job owner")
+	account := fs.String("account", "", "accounting project")
+	name := fs.String("name", "", "job name")
+	nodes := fs.String("nodes", "", "the job's node list, compact form allowed: bw[001-004],bw010")
+	if err := parse(fs, args); err != nil {
+		return err
+	}
+	log, err := c.logger(stderr)
+	if err != nil {
+		return err
+	}
+	if *id == "" {
+		return errors.New("job start: --id is required")
+	}
+	t, err := hookTime(*at)
+	if err != nil {
+		return err
+	}
+	list, err := jobstate.ExpandHosts(*nodes)
+	if err != nil {
+		return fmt.Errorf("--nodes: %w", err)
+	}
+	rec := jobstate.Record{ID: *id, User: *user, Account: *account, Name: *name, Nodes: list, Start: t}
+	return nodeagent.JobStart(ctx, c.hook(log), rec)
+}
+
+func jobEnd(ctx context.Context, args []string, stderr io.Writer) error {
+	var c common
+	fs, id, at := hookFlags("agent job end", &c)
+	exit := fs.Int("exit-code", 0, "the job's exit code")
+	if err := parse(fs, args); err != nil {
+		return err
+	}
+	log, err := c.logger(stderr)
+	if err != nil {
+		return err
+	}
+	if *id == "" {
+		return errors.New("job end: --id is required")
+	}
+	t, err := hookTime(*at)
+	if err != nil {
+		return err
+	}
+	return nodeagent.JobEnd(ctx, c.hook(log), *id, t, int32(*exit))
+}

@@ -1,0 +1,251 @@
+// Package nodeagent is the node agent's loop: every interval it reads each
+// counter source, turns the readings into reset-aware deltas, maps them onto
+// the project's metrics and publishes one sample naming the jobs running on
+// the node; it also publishes the job events the scheduler hooks recorded
+// and a periodic heartbeat with the agent's own cost.
+//
+// # Basics
+//
+// [New] validates a [Config]; [Agent.Run] runs until its context ends.
+// [Agent.Collect] is one interval's work without publishing, used by
+// benchmarks, tests and the self-benchmark.
+//
+// # Caveats
+//
+// An Agent is driven by one goroutine (Run's); Collect must not be called
+// concurrently with Run. While the broker is away, samples wait in a bounded
+// queue and are sent in order once it is back; past the bound the oldest
+// are dropped and counted.
+package nodeagent
+
+import (
+	"cmp"
+	"context"
+	"errors"
+	"fmt"
+	"log/slog"
+	"os"
+	"path/filepath"
+	"strconv"
+	"strings"
+	"time"
+
+	"sluice/pkg/bus"
+	"sluice/pkg/delta"
+	"sluice/pkg/jobstate"
+	"sluice/pkg/mapping"
+	"sluice/pkg/source"
+	"sluice/pkg/wire"
+)
+
+// Version is the agent's build version, reported in heartbeats.
+var Version = "dev"
+
+// Config configures an agent. Zero values mean the documented defaults.
+type Config struct {
+	// Node is the node name; empty means the host name.
+	Node string
+	// Interval is the sampling interval; zero means 5 seconds.
+	Interval time.Duration
+	// Sources are the counter sources to read, in order.
+	Sources []source.Source
+	// Mapping maps raw counters to metrics; nil means mapping.Default().
+	Mapping mapping.Table
+	// StateDir holds the hooks' job records and the sequence number;
+	// required.
+	StateDir string
+	// NATSURL is the broker; required by Run.
+	NATSURL string
+	// Prefix and Cluster name the subjects (see package bus).
+	Prefix, Cluster string
+	// QueueLimit bounds the samples held while the broker is away; zero
+	// means 720 (one hour at the default interval).
+	QueueLimit int
+	// HeartbeatEvery is how many intervals pass between heartbeats; zero
+	// means 6.
+	HeartbeatEvery int
+	// Logger receives the agent's logs; nil discards them.
+	Logger *slog.Logger
+	// Now is the clock; nil means time.Now.
+	Now func() time.Time
+}
+
+// Agent is a configured node agent.
+type Agent struct {
+	cfg    Config
+	subj   bus.Subjects
+	log    *slog.Logger
+	jobs   *jobstate.Dir
+	deltas map[string]*delta.Tracker // per source kind
+	costs  map[string]*cost
+	seq    uint64
+	last   time.Time // end of the previous interval; zero before the first read
+	queue  *queue
+	buf    []byte
+}
+
+type cost struct {
+	reads     uint64
+	total     time.Duration
+	instances int
+	ok        bool
+}
+
+// New validates cfg and loads the persisted sequence number.
+func New(cfg Config) (*Agent, error) {
+	if cfg.Node == "" {
+		h, err := os.Hostname()
+		if err != nil {
+			return nil, fmt.Errorf("agent: node name: %w", err)
+		}
+		cfg.Node = strings.SplitN(h, ".", 2)[0]
+	}
+	cfg.Interval = cmp.Or(cfg.Interval, 5*time.Second)
+	cfg.QueueLimit = cmp.Or(cfg.QueueLimit, 720)
+	cfg.HeartbeatEvery = cmp.Or(cfg.HeartbeatEvery, 6)
+	if cfg.Mapping == nil {
+		cfg.Mapping = mapping.Default()
+	}
+	if cfg.Logger == nil {
+		cfg.Logger = slog.New(slog.DiscardHandler)
+	}
+	if cfg.Now == nil {
+		cfg.Now = time.Now
+	}
+	if cfg.Interval < 100*time.Millisecond {
+		return nil, fmt.Errorf("agent: interval %s is below 100ms", cfg.Interval)
+	}
+	if len(cfg.Sources) == 0 {
+		return nil, errors.New("agent: no counter sources configured")
+	}
+	subj, err := bus.NewSubjects(cfg.Prefix, cfg.Cluster)
+	if err != nil {
+		return nil, fmt.Errorf("agent: %w", err)
+	}
+	jobs, err := jobstate.Open(cfg.StateDir)
+	if err != nil {
+		return nil, fmt.Errorf("agent: %w", err)
+	}
+	a := &Agent{
+		cfg: cfg, subj: subj, log: cfg.Logger.With("node", cfg.Node), jobs: jobs,
+		deltas: map[string]*delta.Tracker{}, costs: map[string]*cost{},
+		queue: newQueue(cfg.QueueLimit),
+	}
+	for _, s := range cfg.Sources {
+		a.deltas[s.Name()] = delta.NewTracker()
+		a.costs[s.Name()] = &cost{}
+	}
+	if a.seq, err = a.loadSeq(); err != nil {
+		return nil, err
+	}
+	return a, nil
+}
+
+// Node is the node name in use.
+func (a *Agent) Node() string { return a.cfg.Node }
+
+func (a *Agent) seqFile() string { return filepath.Join(a.jobs.Path(), ".sequence") }
+
+func (a *Agent) loadSeq() (uint64, error) {
+	data, err := os.ReadFile(a.seqFile())
+	if errors.Is(err, os.ErrNotExist) {
+		return 0, nil
+	}
+	if err != nil {
+		return 0, fmt.Errorf("agent: read sequence: %w", err)
+	}
+	n, err := strconv.ParseUint(strings.TrimSpace(string(data)), 10, 64)
+	if err != nil {
+		return 0, fmt.Errorf("agent: sequence file %s: %w", a.seqFile(), err)
+	}
+	return n, nil
+}
+
+// saveSeq persists the sequence number before a sample carrying it
+// leaves, so a restarted agent never reuses one.
+func (a *Agent) saveSeq() error {
+	tmp := a.seqFile() + ".tmp"
+	if err := os.WriteFile(tmp, []byte(strconv.FormatUint(a.seq, 10)), 0o644); err != nil {
+		return fmt.Errorf("agent: write sequence: %w", err)
+	}
+	if err := os.Rename(tmp, a.seqFile()); err != nil {
+		return fmt.Errorf("agent: write sequence: %w", err)
+	}
+	return nil
+}
+
+// Collect reads every source once and returns the sample for the interval
+// since the previous Collect. The first call only sets the base: ok is
+// false. Source errors other than missing data are returned joined, with
+// the sample built from the sources that could be read.
+func (a *Agent) Collect(ctx context.Context) (s wire.Sample, ok bool, err error) {
+	now := a.cfg.Now()
+	var errs []error
+	for _, src := range a.cfg.Sources {
+		readings, rerr := a.read(ctx, src)
+		if rerr != nil {
+			if errors.Is(rerr, source.ErrNoData) {
+				a.log.Debug("source has no data", "source", src.Name(), "err", rerr)
+			} else {
+				errs = append(errs, rerr)
+			}
+		}
+		for _, d := range a.deltas[src.Name()].Update(readings) {
+			if d.Reset {
+				a.log.Debug("counter reset", "source", src.Name(), "instance", d.Key)
+			}
+			a.cfg.Mapping.Apply(src.Name(), d.Counters, &s.Values)
+		}
+	}
+	start := a.last
+	a.last = now
+	if start.IsZero() {
+		return wire.Sample{}, false, errors.Join(errs...)
+	}
+	a.seq++
+	s.Node, s.Seq, s.Start, s.End = a.cfg.Node, a.seq, start, now
+	s.Jobs = a.runningJobs(start)
+	return s, true, errors.Join(errs...)
+}
+
+func (a *Agent) read(ctx context.Context, src source.Source) ([]source.Reading, error) {
+	t0 := time.Now()
+	readings, err := src.Read(ctx)
+	c := a.costs[src.Name()]
+	c.reads++
+	c.total += time.Since(t0)
+	c.instances = len(readings)
+	c.ok = err == nil
+	return readings, err
+}
+
+// runningJobs lists the jobs the hooks recorded as running at any time
+// after since.
+func (a *Agent) runningJobs(since time.Time) []string {
+	recs, err := a.jobs.List()
+	if err != nil {
+		a.log.Warn("job state unreadable", "dir", a.jobs.Path(), "err", err)
+	}
+	var ids []string
+	for _, r := range recs {
+		if r.Running(since) {
+			ids = append(ids, r.ID)
+		}
+	}
+	return ids
+}
+
+// Costs returns, per source kind, the mean read time and instance count so
+// far.
+func (a *Agent) Costs() []wire.SourceCost {
+	out := make([]wire.SourceCost, 0, len(a.cfg.Sources))
+	for _, src := range a.cfg.Sources {
+		c := a.costs[src.Name()]
+		var micros float64
+		if c.reads > 0 {
+			micros = float64(c.total.Microseconds()) / float64(c.reads)
+		}
+		out = append(out, wire.SourceCost{Name: src.Name(), Instances: uint32(c.instances), MicrosPerRead: micros, OK: c.ok})
+	}
+	return out
+}

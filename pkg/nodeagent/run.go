@@ -1,0 +1,156 @@
+package nodeagent
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"os"
+	"time"
+
+	"github.com/nats-io/nats.go"
+	"github.com/shirou/gopsutil/v3/process"
+
+	"sluice/pkg/bus"
+	"sluice/pkg/jobstate"
+	"sluice/pkg/wire"
+)
+
+// Run connects to the broker and samples every interval until ctx ends. A
+// broker that is not reachable yet is retried in the background; samples
+// queue meanwhile.
+func (a *Agent) Run(ctx context.Context) error {
+	if a.cfg.NATSURL == "" {
+		return errors.New("agent: no broker URL (--nats.url)")
+	}
+	nc, err := bus.Connect(ctx, a.cfg.NATSURL, "sluice-agent-"+a.cfg.Node)
+	if err != nil {
+		return fmt.Errorf("agent: %w", err)
+	}
+	defer nc.Close()
+	self, err := process.NewProcess(int32(os.Getpid()))
+	if err != nil {
+		return fmt.Errorf("agent: inspect own process: %w", err)
+	}
+	a.log.Info("agent started", "interval", a.cfg.Interval, "sources", len(a.cfg.Sources), "nats", a.cfg.NATSURL)
+	if _, _, err := a.Collect(ctx); err != nil { // base reading
+		a.log.Warn("source read failed", "err", err)
+	}
+	tick := time.NewTicker(a.cfg.Interval)
+	defer tick.Stop()
+	for n := 1; ; n++ {
+		select {
+		case <-ctx.Done():
+			a.flush(nc)
+			a.log.Info("agent stopped", "queued", a.queue.len(), "dropped", a.queue.dropped)
+			return nil
+		case <-tick.C:
+		}
+		a.Step(ctx, nc)
+		if n%a.cfg.HeartbeatEvery == 0 {
+			a.heartbeat(nc, self)
+		}
+	}
+}
+
+// Step does one interval's work on nc: publish pending job events, take
+// and queue the sample, send the queue. Run calls it on every tick; tests
+// call it directly with a controlled clock.
+func (a *Agent) Step(ctx context.Context, nc *nats.Conn) {
+	a.syncJobs(nc)
+	s, ok, err := a.Collect(ctx)
+	if ctx.Err() != nil {
+		return // shutting down: the interval was cut short
+	}
+	if err != nil {
+		a.log.Warn("source read failed", "err", err)
+	}
+	if ok {
+		if err := a.saveSeq(); err != nil {
+			a.log.Error("sequence not saved; sample withheld", "err", err)
+			a.seq--
+			return
+		}
+		a.buf = wire.AppendSample(a.buf[:0], &s)
+		a.queue.push(a.subj.Sample(a.cfg.Node), append([]byte(nil), a.buf...))
+	}
+	a.flush(nc)
+}
+
+// flush sends queued messages while the connection takes them.
+func (a *Agent) flush(nc *nats.Conn) {
+	if !nc.IsConnected() {
+		return
+	}
+	err := a.queue.drain(func(subject string, data []byte) error { return nc.Publish(subject, data) })
+	if err != nil {
+		a.log.Debug("publish deferred", "queued", a.queue.len(), "err", err)
+		return
+	}
+	if err := nc.FlushTimeout(2 * time.Second); err != nil {
+		a.log.Debug("flush", "err", err)
+	}
+}
+
+// syncJobs publishes the job events the hooks could not and removes
+// records whose end has been published and covered by a sample.
+func (a *Agent) syncJobs(nc *nats.Conn) {
+	recs, err := a.jobs.List()
+	if err != nil {
+		a.log.Warn("job state unreadable", "dir", a.jobs.Path(), "err", err)
+	}
+	for _, r := range recs {
+		if !r.StartSent {
+			a.queueEvent(r, wire.JobStart)
+			r.StartSent = true
+		}
+		if !r.End.IsZero() && !r.EndSent {
+			a.queueEvent(r, wire.JobEnd)
+			r.EndSent = true
+		}
+		if r.EndSent && !r.Running(a.last) {
+			if err := a.jobs.Remove(r.ID); err != nil {
+				a.log.Warn("job record not removed", "job", r.ID, "err", err)
+			}
+			continue
+		}
+		if err := a.jobs.Put(r); err != nil {
+			a.log.Warn("job record not updated", "job", r.ID, "err", err)
+		}
+	}
+}
+
+func (a *Agent) queueEvent(r jobstate.Record, t wire.EventType) {
+	e := EventOf(r, t, a.cfg.Node)
+	a.queue.push(a.subj.Job(a.cfg.Node), wire.AppendJobEvent(nil, &e))
+}
+
+// EventOf builds the job event for a record.
+func EventOf(r jobstate.Record, t wire.EventType, node string) wire.JobEvent {
+	e := wire.JobEvent{
+		Type: t, Job: r.ID, Node: node, User: r.User, Account: r.Account, Name: r.Name,
+		Nodes: r.Nodes, Time: r.Start,
+	}
+	if t == wire.JobEnd {
+		e.Time, e.ExitCode = r.End, r.ExitCode
+	}
+	return e
+}
+
+func (a *Agent) heartbeat(nc *nats.Conn, self *process.Process) {
+	hb := wire.Heartbeat{
+		Node: a.cfg.Node, Time: a.cfg.Now(), Version: Version, Interval: a.cfg.Interval,
+		Queued: uint32(a.queue.len()), Dropped: a.queue.dropped, Sources: a.Costs(),
+	}
+	if t, err := self.Times(); err == nil {
+		hb.CPUSeconds = t.User + t.System
+	}
+	if m, err := self.MemoryInfo(); err == nil {
+		hb.RSSBytes = m.RSS
+	}
+	if !nc.IsConnected() { // a heartbeat is only news while it is fresh
+		return
+	}
+	if err := nc.Publish(a.subj.Beat(a.cfg.Node), wire.AppendHeartbeat(nil, &hb)); err != nil {
+		a.log.Debug("heartbeat not sent", "err", err)
+	}
+}
