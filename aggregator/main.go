@@ -21,11 +21,8 @@ import (
 	"syscall"
 	"time"
 
-	"go.yaml.in/yaml/v3"
-
 	"sluice/pkg/aggregate"
 	"sluice/pkg/level"
-	"sluice/pkg/metric"
 	"sluice/pkg/tracker"
 )
 
@@ -114,25 +111,16 @@ func (f *serveFlags) options(log *slog.Logger) (aggregate.Options, error) {
 }
 
 func loadCuts(path string, base level.Cuts) (level.Cuts, error) {
-	data, err := os.ReadFile(path)
+	f, err := os.Open(path)
 	if err != nil {
 		return base, fmt.Errorf("--cuts.file: %w", err)
 	}
-	var raw map[string]level.Cut
-	if err := yaml.Unmarshal(data, &raw); err != nil {
+	defer f.Close()
+	cuts, err := level.LoadCuts(f, base)
+	if err != nil {
 		return base, fmt.Errorf("--cuts.file %s: %w", path, err)
 	}
-	for name, c := range raw {
-		id, err := metric.Parse(name)
-		if err != nil {
-			return base, fmt.Errorf("--cuts.file %s: %w", path, err)
-		}
-		base[id] = c
-	}
-	if err := base.Validate(); err != nil {
-		return base, fmt.Errorf("--cuts.file %s: %w", path, err)
-	}
-	return base, nil
+	return cuts, nil
 }
 
 func logger(w io.Writer, lvlName string) (*slog.Logger, error) {

@@ -36,12 +36,15 @@ type Delta struct {
 type base struct {
 	epoch    string
 	counters map[string]uint64
+	out      map[string]uint64 // the last Delta's counters, reused
+	gen      uint64            // the Update that last saw this instance
 }
 
 // Tracker keeps the previous reading per instance. It is not safe for
 // concurrent use; the agent loop owns it.
 type Tracker struct {
 	prev map[string]*base
+	gen  uint64
 }
 
 // NewTracker returns an empty tracker.
@@ -51,23 +54,28 @@ func NewTracker() *Tracker {
 
 // Update records readings and returns one Delta per instance that had a
 // previous reading. Instances absent from readings are forgotten, so an
-// instance that comes back later starts afresh (a remount).
+// instance that comes back later starts afresh (a remount). The returned
+// Counters maps are reused: they are valid until the next Update.
 func (t *Tracker) Update(readings []source.Reading) []Delta {
+	t.gen++
 	out := make([]Delta, 0, len(readings))
-	seen := make(map[string]struct{}, len(readings))
 	for _, r := range readings {
-		seen[r.Key] = struct{}{}
 		b, ok := t.prev[r.Key]
 		if !ok {
-			t.prev[r.Key] = &base{epoch: r.Epoch, counters: copyCounters(r.Counters)}
-			continue
+			b = &base{counters: make(map[string]uint64, len(r.Counters)), out: make(map[string]uint64, len(r.Counters))}
+			t.prev[r.Key] = b
+		} else {
+			out = append(out, b.diff(r))
 		}
-		out = append(out, diff(b, r))
+		b.gen = t.gen
 		b.epoch = r.Epoch
-		b.counters = copyCounters(r.Counters)
+		clear(b.counters)
+		for k, v := range r.Counters {
+			b.counters[k] = v
+		}
 	}
-	for k := range t.prev {
-		if _, ok := seen[k]; !ok {
+	for k, b := range t.prev {
+		if b.gen != t.gen {
 			delete(t.prev, k)
 		}
 	}
@@ -77,8 +85,9 @@ func (t *Tracker) Update(readings []source.Reading) []Delta {
 // Known reports how many instances have a base reading.
 func (t *Tracker) Known() int { return len(t.prev) }
 
-func diff(b *base, r source.Reading) Delta {
-	d := Delta{Key: r.Key, Counters: make(map[string]uint64, len(r.Counters)), Reset: isReset(b, r)}
+func (b *base) diff(r source.Reading) Delta {
+	clear(b.out)
+	d := Delta{Key: r.Key, Counters: b.out, Reset: isReset(b, r)}
 	for name, v := range r.Counters {
 		if d.Reset {
 			d.Counters[name] = v
@@ -102,12 +111,4 @@ func isReset(b *base, r source.Reading) bool {
 		}
 	}
 	return false
-}
-
-func copyCounters(m map[string]uint64) map[string]uint64 {
-	c := make(map[string]uint64, len(m))
-	for k, v := range m {
-		c[k] = v
-	}
-	return c
 }

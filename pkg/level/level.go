@@ -18,7 +18,11 @@ package level
 
 import (
 	"encoding/json"
+	"errors"
 	"fmt"
+	"io"
+
+	"go.yaml.in/yaml/v3"
 
 	"sluice/pkg/metric"
 )
@@ -166,4 +170,37 @@ func (ls Levels) Max() Level {
 		m = max(m, l)
 	}
 	return m
+}
+
+// LoadCuts reads YAML cut point overrides and lays them over base:
+//
+//	creates: {elevated: 50, critical: 400}
+//	write_bytes: {elevated: 2e9, critical: 5e9}
+//
+// Every metric named must exist and both cuts must be given; the result
+// is validated.
+func LoadCuts(r io.Reader, base Cuts) (Cuts, error) {
+	var raw map[string]struct {
+		Elevated *float64 `yaml:"elevated"`
+		Critical *float64 `yaml:"critical"`
+	}
+	dec := yaml.NewDecoder(r)
+	dec.KnownFields(true)
+	if err := dec.Decode(&raw); err != nil && !errors.Is(err, io.EOF) {
+		return base, fmt.Errorf("cut points: %w", err)
+	}
+	for name, c := range raw {
+		id, err := metric.Parse(name)
+		if err != nil {
+			return base, fmt.Errorf("cut points: %w", err)
+		}
+		if c.Elevated == nil || c.Critical == nil {
+			return base, fmt.Errorf("cut points for %s: give both elevated and critical", name)
+		}
+		base[id] = Cut{Elevated: *c.Elevated, Critical: *c.Critical}
+	}
+	if err := base.Validate(); err != nil {
+		return base, fmt.Errorf("cut points: %w", err)
+	}
+	return base, nil
 }

@@ -51,8 +51,8 @@ type Config struct {
 	Sources []source.Source
 	// Mapping maps raw counters to metrics; nil means mapping.Default().
 	Mapping mapping.Table
-	// StateDir holds the hooks' job records and the sequence number;
-	// required.
+	// StateDir holds the hooks' job records (in JobsDir) and the sample
+	// sequence number; required.
 	StateDir string
 	// NATSURL is the broker; required by Run.
 	NATSURL string
@@ -82,6 +82,14 @@ type Agent struct {
 	last   time.Time // end of the previous interval; zero before the first read
 	queue  *queue
 	buf    []byte
+	recs   recordCache
+}
+
+// recordCache keeps the last listing of the job state directory; the
+// directory's modification time says when it must be read again.
+type recordCache struct {
+	mtime time.Time
+	recs  []jobstate.Record
 }
 
 type cost struct {
@@ -118,11 +126,14 @@ func New(cfg Config) (*Agent, error) {
 	if len(cfg.Sources) == 0 {
 		return nil, errors.New("agent: no counter sources configured")
 	}
+	if cfg.StateDir == "" {
+		return nil, errors.New("agent: no state directory (--state.dir)")
+	}
 	subj, err := bus.NewSubjects(cfg.Prefix, cfg.Cluster)
 	if err != nil {
 		return nil, fmt.Errorf("agent: %w", err)
 	}
-	jobs, err := jobstate.Open(cfg.StateDir)
+	jobs, err := jobstate.Open(JobsDir(cfg.StateDir))
 	if err != nil {
 		return nil, fmt.Errorf("agent: %w", err)
 	}
@@ -144,7 +155,12 @@ func New(cfg Config) (*Agent, error) {
 // Node is the node name in use.
 func (a *Agent) Node() string { return a.cfg.Node }
 
-func (a *Agent) seqFile() string { return filepath.Join(a.jobs.Path(), ".sequence") }
+// JobsDir is where, under a state directory, the job records live. The
+// sequence number sits beside it, so writing it does not touch the job
+// directory's modification time that the agent watches.
+func JobsDir(stateDir string) string { return filepath.Join(stateDir, "jobs") }
+
+func (a *Agent) seqFile() string { return filepath.Join(a.cfg.StateDir, "sequence") }
 
 func (a *Agent) loadSeq() (uint64, error) {
 	data, err := os.ReadFile(a.seqFile())
@@ -219,15 +235,32 @@ func (a *Agent) read(ctx context.Context, src source.Source) ([]source.Reading, 
 	return readings, err
 }
 
-// runningJobs lists the jobs the hooks recorded as running at any time
-// after since.
-func (a *Agent) runningJobs(since time.Time) []string {
+// records returns the job records, read again only when the directory
+// changed. A modification time under two seconds old is not trusted, since
+// file systems stamp times coarsely and two changes can share one stamp.
+func (a *Agent) records() []jobstate.Record {
+	fi, err := os.Stat(a.jobs.Path())
+	if err == nil && fi.ModTime().Equal(a.recs.mtime) && time.Since(fi.ModTime()) > 2*time.Second {
+		return a.recs.recs
+	}
 	recs, err := a.jobs.List()
 	if err != nil {
 		a.log.Warn("job state unreadable", "dir", a.jobs.Path(), "err", err)
+		a.recs = recordCache{}
+		return recs
 	}
+	a.recs = recordCache{recs: recs}
+	if fi != nil {
+		a.recs.mtime = fi.ModTime()
+	}
+	return recs
+}
+
+// runningJobs lists the jobs the hooks recorded as running at any time
+// after since.
+func (a *Agent) runningJobs(since time.Time) []string {
 	var ids []string
-	for _, r := range recs {
+	for _, r := range a.records() {
 		if r.Running(since) {
 			ids = append(ids, r.ID)
 		}

@@ -3,6 +3,7 @@ package nodeagent
 import (
 	"cmp"
 	"context"
+	"errors"
 	"fmt"
 	"log/slog"
 	"time"
@@ -35,7 +36,7 @@ type HookConfig struct {
 // JobStart records that a job started on this node and publishes its start
 // event if the broker answers within the timeout.
 func JobStart(ctx context.Context, cfg HookConfig, r jobstate.Record) error {
-	dir, err := jobstate.Open(cfg.StateDir)
+	dir, err := cfg.dir()
 	if err != nil {
 		return err
 	}
@@ -59,7 +60,7 @@ func JobStart(ctx context.Context, cfg HookConfig, r jobstate.Record) error {
 // event if the broker answers in time. A job never started here is
 // recorded as well, so its end still reaches the aggregator.
 func JobEnd(ctx context.Context, cfg HookConfig, id string, end time.Time, exit int32) error {
-	dir, err := jobstate.Open(cfg.StateDir)
+	dir, err := cfg.dir()
 	if err != nil {
 		return err
 	}
@@ -76,6 +77,13 @@ func JobEnd(ctx context.Context, cfg HookConfig, id string, end time.Time, exit 
 		return dir.Put(r)
 	}
 	return nil
+}
+
+func (cfg HookConfig) dir() (*jobstate.Dir, error) {
+	if cfg.StateDir == "" {
+		return nil, errors.New("job hook: no state directory (--state.dir)")
+	}
+	return jobstate.Open(JobsDir(cfg.StateDir))
 }
 
 // publishEvent reports whether the event reached the broker.

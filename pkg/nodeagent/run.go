@@ -76,9 +76,10 @@ func (a *Agent) Step(ctx context.Context, nc *nats.Conn) {
 	a.flush(nc)
 }
 
-// flush sends queued messages while the connection takes them.
+// flush sends queued messages while the connection takes them; a nil or
+// disconnected connection leaves them queued.
 func (a *Agent) flush(nc *nats.Conn) {
-	if !nc.IsConnected() {
+	if nc == nil || !nc.IsConnected() {
 		return
 	}
 	err := a.queue.drain(func(subject string, data []byte) error { return nc.Publish(subject, data) })
@@ -94,11 +95,10 @@ func (a *Agent) flush(nc *nats.Conn) {
 // syncJobs publishes the job events the hooks could not and removes
 // records whose end has been published and covered by a sample.
 func (a *Agent) syncJobs(nc *nats.Conn) {
-	recs, err := a.jobs.List()
-	if err != nil {
-		a.log.Warn("job state unreadable", "dir", a.jobs.Path(), "err", err)
-	}
-	for _, r := range recs {
+	for _, r := range a.records() {
+		if r.StartSent && (r.End.IsZero() || r.EndSent) && r.Running(a.last) {
+			continue // nothing to do
+		}
 		if !r.StartSent {
 			a.queueEvent(r, wire.JobStart)
 			r.StartSent = true

@@ -26,7 +26,18 @@ type Source struct {
 	now     func() time.Time
 	br      *bufio.Reader
 	scratch []Counter
+
+	// mounts caches the instance directories found by the last listing;
+	// the root is listed again every rescanEvery reads, or at once when a
+	// listed mount's file has gone, so listing costs little per read.
+	mounts      []string
+	sinceScan   int
+	rescanEvery int
 }
+
+// DefaultRescanEvery is how many reads reuse one listing of the root: at
+// the agent's default 5 s interval a new mount is seen within a minute.
+const DefaultRescanEvery = 12
 
 // NewSource returns a Source reading <root>/<instance>/stats. now stamps
 // each reading; nil means time.Now.
@@ -35,11 +46,19 @@ func NewSource(root string, now func() time.Time) *Source {
 		now = time.Now
 	}
 	return &Source{
-		root:    root,
-		now:     now,
-		br:      bufio.NewReaderSize(nil, maxLine),
-		scratch: make([]Counter, 0, 40),
+		root:        root,
+		now:         now,
+		br:          bufio.NewReaderSize(nil, maxLine),
+		scratch:     make([]Counter, 0, 40),
+		rescanEvery: DefaultRescanEvery,
 	}
+}
+
+// WithRescanEvery sets how many reads reuse one listing of the root
+// (at least 1: list on every read) and returns s.
+func (s *Source) WithRescanEvery(n int) *Source {
+	s.rescanEvery = max(n, 1)
+	return s
 }
 
 // Name returns "lustre", the prefix of every reading's key.
@@ -58,44 +77,66 @@ func (s *Source) Name() string { return "lustre" }
 // race) is skipped silently. Other per-mount errors are joined and returned
 // with the readings of the remaining mounts.
 func (s *Source) Read(ctx context.Context) ([]source.Reading, error) {
-	entries, err := os.ReadDir(s.root)
-	if err != nil {
-		if errors.Is(err, fs.ErrNotExist) {
-			return nil, fmt.Errorf("lustre: llite directory %s: %w", s.root, source.ErrNoData)
+	if s.mounts == nil || s.sinceScan >= s.rescanEvery {
+		if err := s.scan(); err != nil {
+			return nil, err
 		}
-		return nil, fmt.Errorf("lustre: listing %s: %w", s.root, err)
 	}
-	readings := make([]source.Reading, 0, len(entries))
+	s.sinceScan++
+	readings := make([]source.Reading, 0, len(s.mounts))
 	var errs []error
-	for _, e := range entries {
+	gone := false
+	for _, name := range s.mounts {
 		if err := ctx.Err(); err != nil {
 			errs = append(errs, fmt.Errorf("lustre: reading %s: %w", s.root, err))
 			break
 		}
-		if !e.IsDir() && e.Type()&fs.ModeSymlink == 0 {
-			continue
-		}
-		path := filepath.Join(s.root, e.Name(), "stats")
+		path := filepath.Join(s.root, name, "stats")
 		st, err := s.readFile(path)
 		if err != nil {
 			if vanished(path, err) {
+				gone = true
 				continue
 			}
 			errs = append(errs, fmt.Errorf("lustre: reading %s: %w", path, err))
 			continue
 		}
 		readings = append(readings, source.Reading{
-			Key:       "lustre:" + e.Name(),
+			Key:       "lustre:" + name,
 			Epoch:     epoch(st),
 			Time:      s.now(),
 			Counters:  st.Raw(),
 			Malformed: st.Malformed,
 		})
 	}
+	if gone {
+		s.sinceScan = s.rescanEvery // an unmount: list again next time
+	}
 	if len(readings) == 0 && len(errs) == 0 {
+		s.mounts = nil // nothing mounted: look again on every read
 		return nil, fmt.Errorf("lustre: no mounts under %s: %w", s.root, source.ErrNoData)
 	}
 	return readings, errors.Join(errs...)
+}
+
+// scan lists the instance directories under the root.
+func (s *Source) scan() error {
+	entries, err := os.ReadDir(s.root)
+	if err != nil {
+		s.mounts = nil
+		if errors.Is(err, fs.ErrNotExist) {
+			return fmt.Errorf("lustre: llite directory %s: %w", s.root, source.ErrNoData)
+		}
+		return fmt.Errorf("lustre: listing %s: %w", s.root, err)
+	}
+	s.mounts = s.mounts[:0]
+	for _, e := range entries {
+		if e.IsDir() || e.Type()&fs.ModeSymlink != 0 {
+			s.mounts = append(s.mounts, e.Name())
+		}
+	}
+	s.sinceScan = 0
+	return nil
 }
 
 // readFile parses one stats file with the Source's buffers. The returned

@@ -74,7 +74,7 @@ func keys(rs []source.Reading) []string {
 func TestSourceMountsComeAndGo(t *testing.T) {
 	t.Parallel()
 	root := t.TempDir()
-	src := lustre.NewSource(root, nowFunc)
+	src := lustre.NewSource(root, nowFunc).WithRescanEvery(1)
 	ctx := context.Background()
 
 	// The llite directory exists but nothing is mounted.
@@ -118,6 +118,38 @@ func TestSourceMountsComeAndGo(t *testing.T) {
 	require.NoError(t, os.RemoveAll(filepath.Join(root, "proj-ffff9a0c00001000")))
 	_, err = src.Read(ctx)
 	require.ErrorIs(t, err, source.ErrNoData)
+}
+
+func TestSourceListsTheRootEveryFewReads(t *testing.T) {
+	t.Parallel()
+	root := t.TempDir()
+	src := lustre.NewSource(root, nowFunc)
+	ctx := context.Background()
+	writeMount(t, root, "scratch-ffff9a0c12345000", "v2_16_header")
+	got, err := src.Read(ctx)
+	require.NoError(t, err)
+	require.Len(t, got, 1)
+
+	// A new mount is picked up at the next listing, within
+	// DefaultRescanEvery reads, not necessarily at once.
+	writeMount(t, root, "proj-ffff9a0c00001000", "v2_12_regs")
+	seenAt := 0
+	for i := 1; i <= lustre.DefaultRescanEvery; i++ {
+		got, err = src.Read(ctx)
+		require.NoError(t, err)
+		if len(got) == 2 {
+			seenAt = i
+			break
+		}
+	}
+	require.NotZero(t, seenAt, "new mount not seen within %d reads", lustre.DefaultRescanEvery)
+	require.Greater(t, seenAt, 1, "the listing is reused between rescans")
+
+	// An unmount is noticed at once, and the next read lists again.
+	require.NoError(t, os.RemoveAll(filepath.Join(root, "proj-ffff9a0c00001000")))
+	got, err = src.Read(ctx)
+	require.NoError(t, err)
+	require.Equal(t, []string{"lustre:scratch-ffff9a0c12345000"}, keys(got))
 }
 
 func TestSourceMissingRoot(t *testing.T) {

@@ -1,0 +1,74 @@
+package aggregate_test
+
+import (
+	"context"
+	"fmt"
+	"path/filepath"
+	"testing"
+	"time"
+
+	"github.com/stretchr/testify/require"
+
+	"sluice/pkg/aggregate"
+	"sluice/pkg/bus"
+	"sluice/pkg/internal/natstest"
+	"sluice/pkg/metric"
+	"sluice/pkg/tracker"
+	"sluice/pkg/wire"
+)
+
+// BenchmarkIngestThroughBroker publishes samples of 1,000 nodes running 50
+// jobs through a real embedded NATS server into a running aggregator and
+// waits until every one has been applied. samples/s is the figure quoted in
+// the README.
+func BenchmarkIngestThroughBroker(b *testing.B) {
+	srv := natstest.Start(b)
+	svc, err := aggregate.New(aggregate.Options{
+		NATSURL: srv.URL(), StorePath: filepath.Join(b.TempDir(), "bench.db"), Listen: "127.0.0.1:0",
+		Tracker: tracker.Options{Window: time.Minute, Live: 10 * time.Second}, TickEvery: time.Second,
+	})
+	require.NoError(b, err)
+	ctx, cancel := context.WithCancel(context.Background())
+	done := make(chan error, 1)
+	go func() { done <- svc.Run(ctx) }()
+	<-svc.Ready()
+	defer func() { cancel(); <-done }()
+
+	const nodes, jobs = 1000, 50
+	subj, _ := bus.NewSubjects("", "")
+	msgs := make([][]byte, nodes)
+	subjects := make([]string, nodes)
+	for n := range nodes {
+		subjects[n] = subj.Sample(fmt.Sprintf("bw%04d", n))
+	}
+	nc := natstest.Connect(b, srv.URL())
+	t0 := time.Now()
+	b.ReportAllocs()
+	b.ResetTimer()
+	start := time.Now()
+	sent := 0
+	for i := 0; sent < b.N; i++ {
+		for n := 0; n < nodes && sent < b.N; n++ {
+			s := wire.Sample{
+				Node: fmt.Sprintf("bw%04d", n), Seq: uint64(i + 1),
+				Start: t0.Add(time.Duration(i) * 5 * time.Second), End: t0.Add(time.Duration(i+1) * 5 * time.Second),
+				Jobs: []string{fmt.Sprint(81000 + n%jobs)},
+			}
+			s.Values[metric.Creates] = uint64(100 + n)
+			s.Values[metric.WriteBytes] = uint64(1<<20 + i)
+			msgs[n] = wire.AppendSample(msgs[n][:0], &s)
+			if err := nc.Publish(subjects[n], msgs[n]); err != nil {
+				b.Fatal(err)
+			}
+			sent++
+		}
+	}
+	require.NoError(b, nc.Flush())
+	for svc.Snapshot().Ingest.Accepted["sample"] < uint64(b.N) {
+		if svc.Snapshot().Ingest.SlowConsumerDropped > 0 {
+			b.Fatalf("aggregator fell behind and dropped samples")
+		}
+		time.Sleep(time.Millisecond)
+	}
+	b.ReportMetric(float64(b.N)/time.Since(start).Seconds(), "samples/s")
+}

@@ -1,0 +1,200 @@
+package nodeagent_test
+
+import (
+	"bytes"
+	"context"
+	"os"
+	"path/filepath"
+	"sync"
+	"testing"
+	"time"
+
+	"github.com/nats-io/nats.go"
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+
+	"sluice/pkg/internal/natstest"
+	"sluice/pkg/jobstate"
+	"sluice/pkg/metric"
+	"sluice/pkg/nodeagent"
+	"sluice/pkg/source"
+	"sluice/pkg/source/lustre"
+	"sluice/pkg/wire"
+)
+
+var t0 = time.Date(2026, 3, 2, 14, 0, 0, 0, time.UTC)
+
+type clock struct {
+	mu sync.Mutex
+	t  time.Time
+}
+
+func (c *clock) now() time.Time      { c.mu.Lock(); defer c.mu.Unlock(); return c.t }
+func (c *clock) add(d time.Duration) { c.mu.Lock(); c.t = c.t.Add(d); c.mu.Unlock() }
+
+// writeStats writes one mount's stats file in the Lustre 2.16 layout.
+func writeStats(t testing.TB, root, inst string, counters map[string][2]uint64) {
+	t.Helper()
+	st := lustre.Stats{SnapshotTime: t0, StartTime: t0.Add(-time.Hour), HasStartTime: true}
+	for name, v := range counters {
+		c := lustre.Counter{Name: name, Samples: v[0], Unit: "usecs", Fields: 4, Min: 1, Max: 1, Sum: v[0]}
+		if v[1] > 0 {
+			c.Unit, c.Sum = "bytes", v[1]
+		}
+		st.Counters = append(st.Counters, c)
+	}
+	var buf bytes.Buffer
+	require.NoError(t, lustre.Write(&buf, st, lustre.FormatV2_16))
+	require.NoError(t, os.MkdirAll(filepath.Join(root, inst), 0o755))
+	require.NoError(t, os.WriteFile(filepath.Join(root, inst, "stats"), buf.Bytes(), 0o644))
+}
+
+func newAgent(t *testing.T, root, state string, clk *clock, url string) *nodeagent.Agent {
+	t.Helper()
+	a, err := nodeagent.New(nodeagent.Config{
+		Node: "bw007", Interval: 5 * time.Second, StateDir: state, NATSURL: url, Now: clk.now,
+		Sources: []source.Source{lustre.NewSource(root, clk.now)},
+	})
+	require.NoError(t, err)
+	return a
+}
+
+func TestCollectMapsDeltasAndPersistsSequence(t *testing.T) {
+	root, state := t.TempDir(), t.TempDir()
+	clk := &clock{t: t0}
+	writeStats(t, root, "scratch-ffff8f0000001000", map[string][2]uint64{
+		"create": {100, 0}, "mkdir": {10, 0}, "getattr": {5000, 0}, "write_bytes": {40, 40 << 20}, "read": {7, 0},
+	})
+	a := newAgent(t, root, state, clk, "")
+	_, ok, err := a.Collect(context.Background())
+	require.NoError(t, err)
+	assert.False(t, ok, "the first read only sets the base")
+
+	clk.add(5 * time.Second)
+	writeStats(t, root, "scratch-ffff8f0000001000", map[string][2]uint64{
+		"create": {160, 0}, "mkdir": {12, 0}, "getattr": {9000, 0}, "write_bytes": {50, 50 << 20}, "read": {700, 0},
+	})
+	s, ok, err := a.Collect(context.Background())
+	require.NoError(t, err)
+	require.True(t, ok)
+	want := metric.Values{}
+	want[metric.Creates] = 60 + 2 // create and mkdir both count as creates
+	want[metric.StatOps] = 4000
+	want[metric.WriteOps] = 10 // write_bytes' sample count: calls
+	want[metric.WriteBytes] = 10 << 20
+	// "read" is latency, deliberately unmapped: read calls are counted by read_bytes.
+	assert.Equal(t, want, s.Values)
+	assert.Equal(t, "bw007", s.Node)
+	assert.Equal(t, uint64(1), s.Seq)
+	assert.Equal(t, t0, s.Start)
+	assert.Equal(t, t0.Add(5*time.Second), s.End)
+
+	// Step persists the sequence; a new agent on the same state continues it.
+	a.Step(context.Background(), nil)
+	b := newAgent(t, root, state, clk, "")
+	b.Collect(context.Background())
+	clk.add(5 * time.Second)
+	s, _, _ = b.Collect(context.Background())
+	assert.Equal(t, uint64(3), s.Seq, "sequence numbers are never reused across restarts")
+}
+
+func TestSampleNamesJobsRunningInTheInterval(t *testing.T) {
+	root, state := t.TempDir(), t.TempDir()
+	clk := &clock{t: t0}
+	writeStats(t, root, "scratch-ffff8f0000001000", map[string][2]uint64{"open": {1, 0}})
+	hook := nodeagent.HookConfig{StateDir: state, Node: "bw007"} // no broker: the agent publishes
+	require.NoError(t, nodeagent.JobStart(context.Background(), hook, jobstate.Record{ID: "81234", User: "dorvane", Start: t0}))
+	a := newAgent(t, root, state, clk, "")
+	a.Collect(context.Background())
+	clk.add(5 * time.Second)
+	s, _, _ := a.Collect(context.Background())
+	assert.Equal(t, []string{"81234"}, s.Jobs)
+
+	// It ended inside the next interval: that interval still names it.
+	require.NoError(t, nodeagent.JobEnd(context.Background(), hook, "81234", clk.now().Add(2*time.Second), 0))
+	clk.add(5 * time.Second)
+	s, _, _ = a.Collect(context.Background())
+	assert.Equal(t, []string{"81234"}, s.Jobs)
+	clk.add(5 * time.Second)
+	s, _, _ = a.Collect(context.Background())
+	assert.Empty(t, s.Jobs)
+}
+
+func TestRunPublishesSamplesAndJobEvents(t *testing.T) {
+	srv := natstest.Start(t)
+	nc := natstest.Connect(t, srv.URL())
+	samples := make(chan wire.Sample, 16)
+	events := make(chan wire.JobEvent, 16)
+	_, err := nc.Subscribe("sluice.default.>", func(m *nats.Msg) {
+		switch k, _ := wire.Peek(m.Data); k {
+		case wire.KindSample:
+			var s wire.Sample
+			require.NoError(t, wire.DecodeSample(m.Data, &s))
+			samples <- s
+		case wire.KindJobEvent:
+			var e wire.JobEvent
+			require.NoError(t, wire.DecodeJobEvent(m.Data, &e))
+			events <- e
+		}
+	})
+	require.NoError(t, err)
+	require.NoError(t, nc.Flush())
+
+	root, state := t.TempDir(), t.TempDir()
+	writeStats(t, root, "scratch-ffff8f0000001000", map[string][2]uint64{"open": {1, 0}})
+	// The hook could not reach a broker; the running agent announces the job.
+	require.NoError(t, nodeagent.JobStart(context.Background(), nodeagent.HookConfig{StateDir: state, Node: "bw007"},
+		jobstate.Record{ID: "81230", User: "ambrel", Name: "tidepool-assim", Nodes: []string{"bw007"}, Start: t0}))
+	a, err := nodeagent.New(nodeagent.Config{
+		Node: "bw007", Interval: 100 * time.Millisecond, StateDir: state, NATSURL: srv.URL(),
+		Sources: []source.Source{lustre.NewSource(root, nil)},
+	})
+	require.NoError(t, err)
+	ctx, cancel := context.WithCancel(context.Background())
+	done := make(chan error, 1)
+	go func() { done <- a.Run(ctx) }()
+
+	e := <-events
+	assert.Equal(t, wire.JobStart, e.Type)
+	assert.Equal(t, "81230", e.Job)
+	assert.Equal(t, "tidepool-assim", e.Name)
+	var seqs []uint64
+	for len(seqs) < 3 {
+		s := <-samples
+		assert.Equal(t, []string{"81230"}, s.Jobs)
+		seqs = append(seqs, s.Seq)
+	}
+	assert.Equal(t, []uint64{1, 2, 3}, seqs)
+	cancel()
+	require.NoError(t, <-done)
+	rec, err := (func() (jobstate.Record, error) { d, _ := jobstate.Open(nodeagent.JobsDir(state)); return d.Get("81230") })()
+	require.NoError(t, err)
+	assert.True(t, rec.StartSent, "the record remembers the start was published")
+}
+
+// BenchmarkCollectOneMount is one interval's work for one Lustre mount of
+// 34 counters (the 2.16 fixture): list, read, parse, delta, map, job list.
+func BenchmarkCollectOneMount(b *testing.B) {
+	root := b.TempDir()
+	data, err := os.ReadFile("../../testdata/lustre/v2_16_header/stats")
+	require.NoError(b, err)
+	require.NoError(b, os.MkdirAll(filepath.Join(root, "scratch-ffff9a0c12345000"), 0o755))
+	require.NoError(b, os.WriteFile(filepath.Join(root, "scratch-ffff9a0c12345000", "stats"), data, 0o644))
+	state := b.TempDir()
+	a, err := nodeagent.New(nodeagent.Config{
+		Node: "bw001", StateDir: state, Sources: []source.Source{lustre.NewSource(root, nil)},
+	})
+	require.NoError(b, err)
+	// Steady state: no hook has touched the job records for a while.
+	old := time.Now().Add(-time.Minute)
+	require.NoError(b, os.Chtimes(nodeagent.JobsDir(state), old, old))
+	ctx := context.Background()
+	a.Collect(ctx)
+	b.ReportAllocs()
+	b.ResetTimer()
+	for b.Loop() {
+		if _, _, err := a.Collect(ctx); err != nil {
+			b.Fatal(err)
+		}
+	}
+}
