@@ -4,12 +4,15 @@ BIN      ?= $(shell $(GO) env GOPATH)/bin/sluice
 FUZZTIME ?= 5s
 PKGS     := ./...
 
-.PHONY: build test unit fuzz lint demo bench help
+PREFIX   ?= /usr/local
+
+.PHONY: build install test unit fuzz lint demo bench help
 
 help:
 	@echo "make demo   run the whole system on simulated nodes (about 75 s)"
 	@echo "make test   lint, unit and integration tests with -race, short fuzz runs"
 	@echo "make build  build agent and aggregator into $(BIN)"
+	@echo "make install  install them as $(PREFIX)/bin/sluice-agent and sluice-aggregator"
 	@echo "make bench  run the benchmarks quoted in the README"
 	@echo "make fuzz   run every fuzz target for FUZZTIME (default $(FUZZTIME))"
 	@echo "make lint   gofmt check, go vet, go mod tidy check"
@@ -17,6 +20,11 @@ help:
 build:
 	@mkdir -p $(BIN)
 	$(GO) build -o $(BIN)/ ./agent ./aggregator
+
+# Installs the binaries under the names the deploy/ files use.
+install: build
+	install -D -m 0755 $(BIN)/agent $(DESTDIR)$(PREFIX)/bin/sluice-agent
+	install -D -m 0755 $(BIN)/aggregator $(DESTDIR)$(PREFIX)/bin/sluice-aggregator
 
 demo: build
 	$(BIN)/aggregator demo --agent.bin $(BIN)/agent

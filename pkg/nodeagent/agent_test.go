@@ -167,7 +167,10 @@ func TestRunPublishesSamplesAndJobEvents(t *testing.T) {
 	assert.Equal(t, []uint64{1, 2, 3}, seqs)
 	cancel()
 	require.NoError(t, <-done)
-	rec, err := (func() (jobstate.Record, error) { d, _ := jobstate.Open(nodeagent.JobsDir(state)); return d.Get("81230") })()
+	rec, err := (func() (jobstate.Record, error) {
+		d, _ := jobstate.Open(nodeagent.JobsDir(state))
+		return d.Get("81230")
+	})()
 	require.NoError(t, err)
 	assert.True(t, rec.StartSent, "the record remembers the start was published")
 }
