@@ -29,7 +29,7 @@ install: build
 demo: build
 	$(BIN)/aggregator demo --agent.bin $(BIN)/agent
 
-test: lint unit fuzz
+test: lint fuzz unit
 
 unit:
 	$(GO) test -race -count=1 $(PKGS)

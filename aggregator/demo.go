@@ -49,7 +49,19 @@ func demo(ctx context.Context, args []string, stdout, stderr io.Writer) error {
 	ctx, cancel := context.WithTimeout(ctx, *duration)
 	defer cancel()
 	d := &demoRun{out: stdout, dir: dir, bin: bin, start: time.Now()}
-	return d.run(ctx, *listen, stderr)
+	return d.run(ctx, *listen, &lockedWriter{w: stderr})
+}
+
+// lockedWriter lets the agent processes' output copiers share one writer.
+type lockedWriter struct {
+	mu sync.Mutex
+	w  io.Writer
+}
+
+func (l *lockedWriter) Write(p []byte) (int, error) {
+	l.mu.Lock()
+	defer l.mu.Unlock()
+	return l.w.Write(p)
 }
 
 func findAgent(path string) (string, error) {

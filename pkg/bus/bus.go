@@ -31,6 +31,7 @@ import (
 	"strconv"
 	"strings"
 	"time"
+	"unicode"
 
 	"github.com/nats-io/nats-server/v2/server"
 	"github.com/nats-io/nats.go"
@@ -94,8 +95,7 @@ func Token(name string) string {
 		return "_"
 	}
 	return strings.Map(func(r rune) rune {
-		switch r {
-		case '.', '*', '>', ' ', '\t', '\r', '\n':
+		if r == '.' || r == '*' || r == '>' || unicode.IsSpace(r) || unicode.IsControl(r) {
 			return '_'
 		}
 		return r

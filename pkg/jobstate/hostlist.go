@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"strconv"
 	"strings"
+	"unicode"
 )
 
 // MaxHosts bounds how many names one host list may expand to.
@@ -55,8 +56,11 @@ func splitTop(s string) []string {
 func expandOne(item string, room int) ([]string, error) {
 	open := strings.IndexByte(item, '[')
 	if open < 0 {
-		if strings.ContainsAny(item, "] \t") {
+		if strings.ContainsFunc(item, badHostRune) {
 			return nil, fmt.Errorf("stray character in %q", item)
+		}
+		if room < 1 {
+			return nil, fmt.Errorf("expands to more than %d names", MaxHosts)
 		}
 		return []string{item}, nil
 	}
@@ -66,8 +70,8 @@ func expandOne(item string, room int) ([]string, error) {
 	}
 	end += open
 	prefix, body, rest := item[:open], item[open+1:end], item[end+1:]
-	if strings.ContainsAny(prefix, "]") {
-		return nil, fmt.Errorf("stray ']' in %q", item)
+	if strings.ContainsFunc(prefix, badHostRune) {
+		return nil, fmt.Errorf("stray character before '[' in %q", item)
 	}
 	tails, err := expandOne(rest, room)
 	if err != nil {
@@ -92,6 +96,11 @@ func expandOne(item string, room int) ([]string, error) {
 		}
 	}
 	return out, nil
+}
+
+// badHostRune reports characters no host name in a list may hold.
+func badHostRune(r rune) bool {
+	return r == ']' || r == '[' || unicode.IsSpace(r) || !unicode.IsPrint(r)
 }
 
 func expandRange(r string) ([]string, error) {

@@ -12,8 +12,9 @@
 //
 // # Caveats
 //
-// Job ids become file names, so ids with '/', NUL, or the names "." and
-// ".." are refused; [ValidID] says which are accepted.
+// Job ids become file names, so ids with '/', white space, control
+// characters or a leading '.' are refused; [ValidID] says which are
+// accepted.
 package jobstate
 
 import (
@@ -26,6 +27,7 @@ import (
 	"slices"
 	"strings"
 	"time"
+	"unicode"
 )
 
 // Record is one job as the hooks recorded it.
@@ -46,13 +48,14 @@ type Record struct {
 func (r Record) Running(t time.Time) bool { return r.End.IsZero() || r.End.After(t) }
 
 // ValidID reports whether id can name a record: 1 to 128 bytes of
-// printable characters other than '/' and white space, and not "." or "..".
+// printable characters other than '/' and white space, not starting with
+// '.' (the directory's temporary files do).
 func ValidID(id string) error {
-	if id == "" || len(id) > 128 || id == "." || id == ".." {
-		return fmt.Errorf("job id %q: must be 1 to 128 characters and not '.' or '..'", id)
+	if id == "" || len(id) > 128 || strings.HasPrefix(id, ".") {
+		return fmt.Errorf("job id %q: must be 1 to 128 bytes and not start with '.'", id)
 	}
-	if strings.ContainsFunc(id, func(r rune) bool { return r == '/' || r <= ' ' || r == 0x7f }) {
-		return fmt.Errorf("job id %q: must not contain '/', spaces or control characters", id)
+	if strings.ContainsFunc(id, func(r rune) bool { return r == '/' || unicode.IsSpace(r) || !unicode.IsPrint(r) }) {
+		return fmt.Errorf("job id %q: must not contain '/', white space or control characters", id)
 	}
 	return nil
 }
@@ -123,6 +126,9 @@ func (d *Dir) Get(id string) (Record, error) {
 
 // Remove deletes a record; a missing one is not an error.
 func (d *Dir) Remove(id string) error {
+	if err := ValidID(id); err != nil {
+		return err
+	}
 	if err := os.Remove(d.file(id)); err != nil && !errors.Is(err, fs.ErrNotExist) {
 		return fmt.Errorf("remove job %s: %w", id, err)
 	}

@@ -105,7 +105,7 @@ func DefaultCuts() Cuts {
 func (c Cuts) Validate() error {
 	for i, cut := range c {
 		id := metric.ID(i)
-		if cut.Elevated <= 0 || cut.Critical <= 0 {
+		if !(cut.Elevated > 0) || !(cut.Critical > 0) { // also refuses NaN
 			return fmt.Errorf("cut points for %s must be positive, got elevated %g critical %g", id, cut.Elevated, cut.Critical)
 		}
 		if cut.Elevated > cut.Critical {

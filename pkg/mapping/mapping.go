@@ -18,7 +18,10 @@ package mapping
 import (
 	"fmt"
 	"io"
+	"maps"
+	"slices"
 	"sort"
+	"strings"
 
 	"go.yaml.in/yaml/v3"
 
@@ -79,7 +82,9 @@ func Default() Table {
 	return t
 }
 
-// Load reads YAML overrides and lays them over base. The layout is
+// Load reads YAML overrides and lays them over base. Source kinds must be
+// ones base knows, so a misspelt kind is an error rather than a no-op. The
+// layout is
 //
 //	lustre:
 //	  inode_permission: stat_ops   # map a counter
@@ -94,7 +99,7 @@ func Load(r io.Reader, base Table) (Table, error) {
 	out := base.clone()
 	for src, counters := range raw {
 		if out[src] == nil {
-			out[src] = make(map[string]metric.ID)
+			return nil, fmt.Errorf("mapping: unknown source kind %q (known: %s)", src, strings.Join(slices.Sorted(maps.Keys(base)), ", "))
 		}
 		for counter, name := range counters {
 			if name == "" {
