@@ -39,6 +39,9 @@ type Reading struct {
 	Counters map[string]uint64
 	// Malformed counts lines that could not be parsed and were skipped.
 	Malformed int
+	// Job, when set, says the counters belong to that one job (a per-job
+	// source on a shared node); empty means the whole node.
+	Job string
 }
 
 // Source reads one kind of counter.

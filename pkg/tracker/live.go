@@ -1,7 +1,9 @@
 package tracker
 
 import (
+	"cmp"
 	"fmt"
+	"slices"
 	"time"
 
 	"sluice/pkg/level"
@@ -122,8 +124,18 @@ func (t *Tracker) Summaries() []model.Summary {
 	for _, id := range t.sortedJobIDs() {
 		out = append(out, summarize(t.jobs[id]))
 	}
-	slicesStableRunningFirst(out)
+	slices.SortStableFunc(out, func(a, b model.Summary) int {
+		return cmp.Compare(rank(a), rank(b))
+	})
 	return out
+}
+
+// rank orders running jobs before ended ones.
+func rank(s model.Summary) int {
+	if s.State == "running" {
+		return 0
+	}
+	return 1
 }
 
 func summarize(j *JobState) model.Summary {
@@ -151,19 +163,6 @@ func summarize(j *JobState) model.Summary {
 		}
 	}
 	return s
-}
-
-func slicesStableRunningFirst(s []model.Summary) {
-	running := s[:0:0]
-	var ended []model.Summary
-	for _, x := range s {
-		if x.State == "running" {
-			running = append(running, x)
-		} else {
-			ended = append(ended, x)
-		}
-	}
-	copy(s, append(running, ended...))
 }
 
 // DirtyJobs returns copies of the jobs changed since the last call and
