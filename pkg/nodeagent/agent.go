@@ -97,6 +97,7 @@ type cost struct {
 	total     time.Duration
 	instances int
 	ok        bool
+	malformed uint64 // counter lines skipped since start
 }
 
 // New validates cfg and loads the persisted sequence number.
@@ -232,6 +233,12 @@ func (a *Agent) read(ctx context.Context, src source.Source) ([]source.Reading, 
 	c.total += time.Since(t0)
 	c.instances = len(readings)
 	c.ok = err == nil
+	for _, r := range readings {
+		if r.Malformed > 0 {
+			c.malformed += uint64(r.Malformed)
+			a.log.Warn("malformed counter lines skipped", "source", src.Name(), "instance", r.Key, "lines", r.Malformed, "total", c.malformed)
+		}
+	}
 	return readings, err
 }
 
@@ -268,8 +275,8 @@ func (a *Agent) runningJobs(since time.Time) []string {
 	return ids
 }
 
-// Costs returns, per source kind, the mean read time and instance count so
-// far.
+// Costs returns, per source kind, the mean read time, the instance count
+// at the last read and the malformed lines skipped so far.
 func (a *Agent) Costs() []wire.SourceCost {
 	out := make([]wire.SourceCost, 0, len(a.cfg.Sources))
 	for _, src := range a.cfg.Sources {
@@ -278,7 +285,7 @@ func (a *Agent) Costs() []wire.SourceCost {
 		if c.reads > 0 {
 			micros = float64(c.total.Microseconds()) / float64(c.reads)
 		}
-		out = append(out, wire.SourceCost{Name: src.Name(), Instances: uint32(c.instances), MicrosPerRead: micros, OK: c.ok})
+		out = append(out, wire.SourceCost{Name: src.Name(), Instances: uint32(c.instances), MicrosPerRead: micros, OK: c.ok, Malformed: c.malformed})
 	}
 	return out
 }

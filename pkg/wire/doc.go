@@ -127,6 +127,8 @@
 //	                            2^32-1
 //	float64           micros    mean time of one read, in microseconds
 //	bool              ok        whether the last read succeeded
+//	uvarint           malformed counter lines the source skipped as
+//	                            malformed since the agent started
 //
 // Bytes after the last field make the message malformed.
 //
@@ -152,7 +154,7 @@
 // And a heartbeat from "cn01" taken 1 ns before the epoch, from agent
 // "v1" sampling every 10 s, with 1.5 s of CPU, 300 bytes resident, nothing
 // queued or dropped, and one source "lustre" with 2 instances read in
-// 12.5 µs successfully, is these 46 bytes:
+// 12.5 µs successfully and 3 malformed lines skipped, is these 47 bytes:
 //
 //	01 03                       version 1, kind heartbeat
 //	04 63 6E 30 31              node "cn01"
@@ -168,6 +170,7 @@
 //	02                          instances 2
 //	00 00 00 00 00 00 29 40     micros 12.5
 //	01                          ok
+//	03                          malformed 3
 //
 // # Caveats
 //

@@ -93,7 +93,7 @@ func FuzzDecodeHeartbeat(f *testing.F) {
 	seed(f,
 		wire.AppendHeartbeat(nil, &wire.Heartbeat{}),
 		wire.AppendHeartbeat(nil, typicalHeartbeat()),
-		wire.AppendHeartbeat(nil, &wire.Heartbeat{CPUSeconds: math.NaN(), Queued: math.MaxUint32, Interval: math.MinInt64, Sources: []wire.SourceCost{{Instances: math.MaxUint32, MicrosPerRead: math.Inf(1)}}}),
+		wire.AppendHeartbeat(nil, &wire.Heartbeat{CPUSeconds: math.NaN(), Queued: math.MaxUint32, Interval: math.MinInt64, Sources: []wire.SourceCost{{Instances: math.MaxUint32, MicrosPerRead: math.Inf(1), Malformed: math.MaxUint64}}}),
 	)
 	f.Fuzz(func(t *testing.T, b []byte) {
 		var h1 wire.Heartbeat

@@ -166,7 +166,7 @@ func TestDocLayout(t *testing.T) {
 		Interval:   10 * time.Second,
 		CPUSeconds: 1.5,
 		RSSBytes:   300,
-		Sources:    []wire.SourceCost{{Name: "lustre", Instances: 2, MicrosPerRead: 12.5, OK: true}},
+		Sources:    []wire.SourceCost{{Name: "lustre", Instances: 2, MicrosPerRead: 12.5, OK: true, Malformed: 3}},
 	}
 	tests := []struct {
 		name   string
@@ -220,6 +220,7 @@ func TestDocLayout(t *testing.T) {
 				0x02,                                           // instances
 				0x00, 0x00, 0x00, 0x00, 0x00, 0x00, 0x29, 0x40, // micros 12.5 = 0x4029000000000000
 				0x01, // ok
+				0x03, // malformed 3
 			},
 			encode: func() []byte { return wire.AppendHeartbeat(nil, heartbeat) },
 			decode: func(b []byte) (any, error) { var h wire.Heartbeat; err := wire.DecodeHeartbeat(b, &h); return h, err },

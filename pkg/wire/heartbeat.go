@@ -42,6 +42,9 @@ type SourceCost struct {
 	MicrosPerRead float64
 	// OK reports whether the last read succeeded.
 	OK bool
+	// Malformed counts counter lines the source skipped as malformed since
+	// the agent started.
+	Malformed uint64
 }
 
 // AppendHeartbeat appends h encoded as a heartbeat message to dst and
@@ -65,6 +68,7 @@ func AppendHeartbeat(dst []byte, h *Heartbeat) []byte {
 		dst = appendUvarint(dst, uint64(srcs[i].Instances))
 		dst = appendFloat(dst, srcs[i].MicrosPerRead)
 		dst = appendBool(dst, srcs[i].OK)
+		dst = appendUvarint(dst, srcs[i].Malformed)
 	}
 	return dst
 }
@@ -88,8 +92,8 @@ func decodeHeartbeat(b []byte, h *Heartbeat, in *Decoder) error {
 	h.RSSBytes = r.uvarint("rss bytes")
 	h.Queued = r.uint32("queued")
 	h.Dropped = r.uvarint("dropped")
-	// A source takes at least 1+1+8+1 bytes.
-	n, hint := r.count("sources", 11)
+	// A source takes at least 1+1+8+1+1 bytes.
+	n, hint := r.count("sources", 12)
 	h.Sources = slices.Grow(h.Sources[:0], hint)
 	for i := 0; i < n && r.err == nil; i++ {
 		h.Sources = append(h.Sources, SourceCost{
@@ -97,6 +101,7 @@ func decodeHeartbeat(b []byte, h *Heartbeat, in *Decoder) error {
 			Instances:     r.uint32("source instances"),
 			MicrosPerRead: r.float("source micros per read"),
 			OK:            r.bool("source ok"),
+			Malformed:     r.uvarint("source malformed"),
 		})
 	}
 	return r.done()

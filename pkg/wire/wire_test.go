@@ -76,8 +76,8 @@ func typicalHeartbeat() *wire.Heartbeat {
 		Queued:     3,
 		Dropped:    1,
 		Sources: []wire.SourceCost{
-			{Name: "lustre", Instances: 2, MicrosPerRead: 85.25, OK: true},
-			{Name: "nfs", Instances: 0, MicrosPerRead: 12.5, OK: false},
+			{Name: "lustre", Instances: 2, MicrosPerRead: 85.25, OK: true, Malformed: 7},
+			{Name: "nfs", Instances: 0, MicrosPerRead: 12.5, OK: false, Malformed: 300},
 		},
 	}
 }
@@ -320,14 +320,14 @@ func TestHeartbeatRoundTrip(t *testing.T) {
 				Sources: func() []wire.SourceCost {
 					s := make([]wire.SourceCost, wire.MaxCount)
 					for i := range s {
-						s[i] = wire.SourceCost{Name: fmt.Sprint("src", i), Instances: math.MaxUint32, MicrosPerRead: math.SmallestNonzeroFloat64, OK: i%2 == 0}
+						s[i] = wire.SourceCost{Name: fmt.Sprint("src", i), Instances: math.MaxUint32, MicrosPerRead: math.SmallestNonzeroFloat64, OK: i%2 == 0, Malformed: math.MaxUint64}
 					}
 					return s
 				}(),
 			},
 		},
 		{name: "negative interval and infinities", input: &wire.Heartbeat{Interval: math.MinInt64, CPUSeconds: math.Inf(1), Sources: []wire.SourceCost{{MicrosPerRead: math.Inf(-1)}}}},
-		{name: "unicode", input: &wire.Heartbeat{Node: "nœud", Version: "v1-β", Sources: []wire.SourceCost{{Name: "λustre", OK: true}}}},
+		{name: "unicode", input: &wire.Heartbeat{Node: "nœud", Version: "v1-β", Sources: []wire.SourceCost{{Name: "λustre", OK: true, Malformed: 1}}}},
 		{
 			name:    "long version is cut",
 			input:   &wire.Heartbeat{Version: strings.Repeat("v", 300)},
