@@ -34,7 +34,6 @@ import (
 	"sluice/pkg/model"
 	"sluice/pkg/store"
 	"sluice/pkg/tracker"
-	"sluice/pkg/wire"
 )
 
 // Options configures the service. Zero values mean the documented defaults.
@@ -101,7 +100,7 @@ type Service struct {
 	// write; guarded by flushMu.
 	pending    store.Batch
 	unreported []reported
-	beats      map[string]wire.Heartbeat
+	agents     map[string]model.Agent // latest heartbeat per node
 
 	flushMu  sync.Mutex // serialises flushes; taken before mu
 	st       *store.Store
@@ -131,7 +130,7 @@ func New(opts Options) (*Service, error) {
 		log:    opts.Logger,
 		tr:     tr,
 		ingest: export.NewIngest(),
-		beats:  map[string]wire.Heartbeat{},
+		agents: map[string]model.Agent{},
 		ready:  make(chan struct{}),
 	}, nil
 }

@@ -27,6 +27,7 @@ import (
 	"sluice/pkg/source"
 	"sluice/pkg/source/lustre"
 	"sluice/pkg/tracker"
+	"sluice/pkg/wire"
 )
 
 const step = 5 * time.Second
@@ -337,4 +338,21 @@ func TestMalformedMessagesAreCountedNotFatal(t *testing.T) {
 	r.advance(2) // still ingesting
 	m := r.scrape()
 	assert.Equal(t, 1.0, m["sluice_ingest_rejected_total"+key(map[string]string{"kind": "sample", "reason": "empty"})].value)
+}
+
+func TestHeartbeatsBecomeAgentCost(t *testing.T) {
+	r := newRig(t)
+	for i, cpu := range []float64{10, 10.05} { // 0.05 s of CPU over 10 s: 0.5% of a core
+		hb := wire.Heartbeat{Node: "bw001", Time: t0.Add(time.Duration(i) * 10 * time.Second), Version: "dev", Interval: step,
+			CPUSeconds: cpu, RSSBytes: 15 << 20, Sources: []wire.SourceCost{{Name: "lustre", Instances: 1, MicrosPerRead: 22, OK: true, Malformed: 2}}}
+		require.NoError(t, r.nc.Publish("sluice.default.beat.bw001", wire.AppendHeartbeat(nil, &hb)))
+	}
+	require.NoError(t, r.nc.Flush())
+	require.Eventually(t, func() bool { return r.svc.Snapshot().Ingest.Accepted["heartbeat"] == 2 }, 10*time.Second, 5*time.Millisecond)
+	var out struct{ Agents []smodel.Agent }
+	r.get("/api/v1/agents", &out)
+	require.Len(t, out.Agents, 1)
+	assert.InDelta(t, 0.005, out.Agents[0].CPUShare, 1e-12)
+	m := r.scrape()
+	assert.Equal(t, 2.0, m["sluice_agent_source_malformed_lines_total"+key(map[string]string{})].value)
 }

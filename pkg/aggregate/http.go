@@ -4,6 +4,7 @@ import (
 	"encoding/json"
 	"net/http"
 	"slices"
+	"strings"
 
 	"github.com/prometheus/client_golang/prometheus"
 	"github.com/prometheus/client_golang/prometheus/collectors"
@@ -35,7 +36,12 @@ func (s *Service) Snapshot() export.Snapshot {
 			running = append(running, j)
 		}
 	}
+	agents := make([]model.Agent, 0, len(s.agents))
+	for _, a := range s.agents {
+		agents = append(agents, a)
+	}
 	return export.Snapshot{
+		Agents:       agents,
 		Ingest:       s.ingest.Clone(),
 		Jobs:         running,
 		Cuts:         s.tr.Options().Cuts,
@@ -90,6 +96,11 @@ func (s *Service) handler() http.Handler {
 			return
 		}
 		writeJSON(w, JobDetail{Summary: sum, ClosedWindows: ws})
+	})
+	mux.HandleFunc("GET /api/v1/agents", func(w http.ResponseWriter, _ *http.Request) {
+		agents := s.Snapshot().Agents
+		slices.SortFunc(agents, func(a, b model.Agent) int { return strings.Compare(a.Node, b.Node) })
+		writeJSON(w, map[string]any{"agents": agents})
 	})
 	mux.HandleFunc("GET /api/v1/flags", func(w http.ResponseWriter, _ *http.Request) {
 		fs, err := s.st.Flags()

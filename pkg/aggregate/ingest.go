@@ -75,8 +75,24 @@ func (s *Service) onHeartbeat() nats.MsgHandler {
 		s.mu.Lock()
 		defer s.mu.Unlock()
 		s.ingest.Accepted[wire.KindHeartbeat.String()]++
-		s.beats[hb.Node] = hb
+		s.agents[hb.Node] = agentOf(&hb, s.agents[hb.Node])
 	}
+}
+
+// agentOf turns a heartbeat into the node's agent status; prev, the
+// status from the node's previous heartbeat, gives the CPU share.
+func agentOf(hb *wire.Heartbeat, prev model.Agent) model.Agent {
+	a := model.Agent{
+		Node: hb.Node, Version: hb.Version, LastSeen: hb.Time, Interval: hb.Interval,
+		CPUSeconds: hb.CPUSeconds, RSSBytes: hb.RSSBytes, Queued: hb.Queued, Dropped: hb.Dropped,
+	}
+	if dt := hb.Time.Sub(prev.LastSeen).Seconds(); prev.Node != "" && dt > 0 && hb.CPUSeconds >= prev.CPUSeconds {
+		a.CPUShare = (hb.CPUSeconds - prev.CPUSeconds) / dt
+	}
+	for _, c := range hb.Sources {
+		a.Sources = append(a.Sources, model.AgentSource{Name: c.Name, Instances: c.Instances, MicrosPerRead: c.MicrosPerRead, OK: c.OK, Malformed: c.Malformed})
+	}
+	return a
 }
 
 func (s *Service) reject(k wire.Kind, reason string, err error) {

@@ -66,6 +66,7 @@ type Snapshot struct {
 	Now          time.Time
 	Nodes        int // nodes heard from
 	MaxJobSeries int
+	Agents       []model.Agent // latest heartbeat per node
 }
 
 // Collector is a prometheus.Collector over snapshots.
@@ -98,8 +99,26 @@ var (
 	descFlag      = prometheus.NewDesc(ns+"_job_flag_active", "An active flag on a running job; always 1 while the flag lasts.", []string{"job", "reason", "severity", "user", "name"}, nil)
 	descFlagSince = prometheus.NewDesc(ns+"_job_flag_since_timestamp_seconds", "When the condition behind an active flag began.", []string{"job", "reason"}, nil)
 	descDropped   = prometheus.NewDesc(ns+"_job_series_capped", "Jobs that qualified for per-job series but were left out by the series cap.", nil, nil)
-	allDescs      = []*prometheus.Desc{descAccepted, descRejected, descDupes, descSlow, descStoreErr, descLag, descNodes, descRunning, descCutBytes, descCutOps, descJobBytes, descJobOps, descJobLevel, descJobNodes, descFlag, descFlagSince, descDropped}
+
+	descAgentSeen    = prometheus.NewDesc(ns+"_agent_last_heartbeat_timestamp_seconds", "When a node's agent last sent a heartbeat (its own clock).", []string{"node"}, nil)
+	descAgentCPU     = prometheus.NewDesc(ns+"_agent_cpu_seconds_total", "CPU time the node's agent has used since it started.", []string{"node"}, nil)
+	descAgentShare   = prometheus.NewDesc(ns+"_agent_cpu_ratio", "Fraction of one core the node's agent used between its last two heartbeats.", []string{"node"}, nil)
+	descAgentFleet   = prometheus.NewDesc(ns+"_agent_fleet_cpu_ratio", "Distribution over nodes of the agents' CPU share (fraction of one core).", nil, nil)
+	descAgentRSS     = prometheus.NewDesc(ns+"_agent_resident_memory_bytes", "Resident memory of the node's agent.", []string{"node"}, nil)
+	descAgentQueued  = prometheus.NewDesc(ns+"_agent_queued_samples", "Samples waiting in the node's outage queue.", []string{"node"}, nil)
+	descAgentDropped = prometheus.NewDesc(ns+"_agent_dropped_samples_total", "Samples the node's agent dropped past its queue bound since it started.", []string{"node"}, nil)
+	descSrcRead      = prometheus.NewDesc(ns+"_agent_source_read_seconds", "Mean time one read of a source takes on the node.", []string{"node", "source"}, nil)
+	descSrcUp        = prometheus.NewDesc(ns+"_agent_source_up", "Whether the last read of a source on the node succeeded.", []string{"node", "source"}, nil)
+	descSrcInst      = prometheus.NewDesc(ns+"_agent_source_instances", "Instances of a source found at its last read on the node.", []string{"node", "source"}, nil)
+	descSrcBad       = prometheus.NewDesc(ns+"_agent_source_malformed_lines_total", "Counter lines a source skipped as malformed on the node since its agent started.", []string{"node", "source"}, nil)
+
+	allDescs = []*prometheus.Desc{descAccepted, descRejected, descDupes, descSlow, descStoreErr, descLag, descNodes, descRunning, descCutBytes, descCutOps, descJobBytes, descJobOps, descJobLevel, descJobNodes, descFlag, descFlagSince, descDropped,
+		descAgentSeen, descAgentCPU, descAgentShare, descAgentFleet, descAgentRSS, descAgentQueued, descAgentDropped, descSrcRead, descSrcUp, descSrcInst, descSrcBad}
 )
+
+// FleetCPUBuckets are the upper bounds of the fleet CPU share histogram:
+// from a hundredth of a percent of one core to five percent.
+var FleetCPUBuckets = []float64{0.0001, 0.0005, 0.001, 0.002, 0.005, 0.01, 0.02, 0.05}
 
 // Describe sends every descriptor the collector may emit.
 func (c *Collector) Describe(ch chan<- *prometheus.Desc) {
@@ -133,6 +152,43 @@ func (c *Collector) Collect(ch chan<- prometheus.Metric) {
 	gauge(descNodes, float64(s.Nodes))
 	c.collectCuts(s.Cuts, gauge)
 	c.collectJobs(s, gauge)
+	collectAgents(s.Agents, ch, counter, gauge)
+}
+
+func collectAgents(agents []model.Agent, ch chan<- prometheus.Metric, counter func(*prometheus.Desc, uint64, ...string), gauge func(*prometheus.Desc, float64, ...string)) {
+	buckets := make(map[float64]uint64, len(FleetCPUBuckets))
+	for _, b := range FleetCPUBuckets {
+		buckets[b] = 0
+	}
+	var sum float64
+	for _, a := range agents {
+		gauge(descAgentSeen, float64(a.LastSeen.UnixNano())/1e9, a.Node)
+		ch <- prometheus.MustNewConstMetric(descAgentCPU, prometheus.CounterValue, a.CPUSeconds, a.Node)
+		gauge(descAgentShare, a.CPUShare, a.Node)
+		gauge(descAgentRSS, float64(a.RSSBytes), a.Node)
+		gauge(descAgentQueued, float64(a.Queued), a.Node)
+		counter(descAgentDropped, a.Dropped, a.Node)
+		for _, src := range a.Sources {
+			gauge(descSrcRead, src.MicrosPerRead/1e6, a.Node, src.Name)
+			gauge(descSrcUp, boolGauge(src.OK), a.Node, src.Name)
+			gauge(descSrcInst, float64(src.Instances), a.Node, src.Name)
+			counter(descSrcBad, src.Malformed, a.Node, src.Name)
+		}
+		sum += a.CPUShare
+		for _, b := range FleetCPUBuckets {
+			if a.CPUShare <= b {
+				buckets[b]++
+			}
+		}
+	}
+	ch <- prometheus.MustNewConstHistogram(descAgentFleet, uint64(len(agents)), sum, buckets)
+}
+
+func boolGauge(b bool) float64 {
+	if b {
+		return 1
+	}
+	return 0
 }
 
 func splitKey(key string) (kind, reason string) {

@@ -44,9 +44,15 @@ func fixed() export.Snapshot {
 	in.Rejected["sample/duplicate"] = 3
 	in.Rejected["sample/truncated"] = 1
 	in.Duplicates = 3
+	agents := []model.Agent{
+		{Node: "bw001", Version: "dev", LastSeen: t0, Interval: 5 * time.Second, CPUSeconds: 12.5, CPUShare: 0.0008, RSSBytes: 14 << 20,
+			Sources: []model.AgentSource{{Name: "lustre", Instances: 2, MicrosPerRead: 21.5, OK: true}}},
+		{Node: "bw002", Version: "dev", LastSeen: t0.Add(-time.Second), Interval: 5 * time.Second, CPUSeconds: 30, CPUShare: 0.003, RSSBytes: 15 << 20, Queued: 4, Dropped: 2,
+			Sources: []model.AgentSource{{Name: "lustre", Instances: 1, MicrosPerRead: 19, OK: false, Malformed: 3}}},
+	}
 	return export.Snapshot{
 		Ingest: in, Jobs: []model.Summary{idle, stream, storm}, Cuts: level.DefaultCuts(),
-		Watermark: t0, Now: t0.Add(2 * time.Second), Nodes: 70, MaxJobSeries: 10,
+		Watermark: t0, Now: t0.Add(2 * time.Second), Nodes: 70, MaxJobSeries: 10, Agents: agents,
 	}
 }
 
