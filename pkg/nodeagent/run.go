@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"io"
 	"os"
 	"time"
 
@@ -27,6 +28,7 @@ func (a *Agent) Run(ctx context.Context) error {
 		return fmt.Errorf("agent: %w", err)
 	}
 	defer nc.Close()
+	defer a.closeSources()
 	self, err := process.NewProcess(int32(os.Getpid()))
 	if err != nil {
 		return fmt.Errorf("agent: inspect own process: %w", err)
@@ -48,6 +50,17 @@ func (a *Agent) Run(ctx context.Context) error {
 		a.Step(ctx, nc)
 		if n%a.cfg.HeartbeatEvery == 0 {
 			a.heartbeat(nc, self)
+		}
+	}
+}
+
+// closeSources releases the files sources keep open between reads.
+func (a *Agent) closeSources() {
+	for _, src := range a.cfg.Sources {
+		if c, ok := src.(io.Closer); ok {
+			if err := c.Close(); err != nil {
+				a.log.Debug("close source", "source", src.Name(), "err", err)
+			}
 		}
 	}
 }

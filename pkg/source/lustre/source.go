@@ -5,7 +5,9 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"io"
 	"io/fs"
+	"math"
 	"os"
 	"path/filepath"
 	"strconv"
@@ -19,8 +21,10 @@ import (
 // directory, normally /sys/kernel/debug/lustre/llite (Lustre 2.12+) or
 // /proc/fs/lustre/llite (older).
 //
-// A Source keeps a read buffer between calls to avoid allocating it on every
-// read, so it must be used by one goroutine at a time.
+// A Source keeps each mount's stats file open and reads it again from
+// offset 0 (the file is regenerated on every read at offset 0), and keeps
+// its read buffer between calls, so it must be used by one goroutine at a
+// time. Close releases the files.
 type Source struct {
 	root    string
 	now     func() time.Time
@@ -30,9 +34,17 @@ type Source struct {
 	// mounts caches the instance directories found by the last listing;
 	// the root is listed again every rescanEvery reads, or at once when a
 	// listed mount's file has gone, so listing costs little per read.
-	mounts      []string
+	mounts      []*mount
 	sinceScan   int
 	rescanEvery int
+}
+
+// mount is one instance directory and its open stats file.
+type mount struct {
+	name     string
+	f        *os.File  // nil until first read, and after a failed one
+	snapshot time.Time // snapshot_time at the last read
+	readAt   time.Time // Source clock at the last read
 }
 
 // DefaultRescanEvery is how many reads reuse one listing of the root: at
@@ -86,14 +98,16 @@ func (s *Source) Read(ctx context.Context) ([]source.Reading, error) {
 	readings := make([]source.Reading, 0, len(s.mounts))
 	var errs []error
 	gone := false
-	for _, name := range s.mounts {
+	for _, m := range s.mounts {
 		if err := ctx.Err(); err != nil {
 			errs = append(errs, fmt.Errorf("lustre: reading %s: %w", s.root, err))
 			break
 		}
-		path := filepath.Join(s.root, name, "stats")
-		st, err := s.readFile(path)
+		path := filepath.Join(s.root, m.name, "stats")
+		now := s.now()
+		st, err := s.readMount(m, path, now)
 		if err != nil {
+			m.close()
 			if vanished(path, err) {
 				gone = true
 				continue
@@ -102,9 +116,9 @@ func (s *Source) Read(ctx context.Context) ([]source.Reading, error) {
 			continue
 		}
 		readings = append(readings, source.Reading{
-			Key:       "lustre:" + name,
+			Key:       "lustre:" + m.name,
 			Epoch:     epoch(st),
-			Time:      s.now(),
+			Time:      now,
 			Counters:  st.Raw(),
 			Malformed: st.Malformed,
 		})
@@ -129,30 +143,78 @@ func (s *Source) scan() error {
 		}
 		return fmt.Errorf("lustre: listing %s: %w", s.root, err)
 	}
+	old := make(map[string]*mount, len(s.mounts))
+	for _, m := range s.mounts {
+		old[m.name] = m
+	}
 	s.mounts = s.mounts[:0]
 	for _, e := range entries {
-		if e.IsDir() || e.Type()&fs.ModeSymlink != 0 {
-			s.mounts = append(s.mounts, e.Name())
+		if !e.IsDir() && e.Type()&fs.ModeSymlink == 0 {
+			continue
 		}
+		m := old[e.Name()]
+		if m == nil {
+			m = &mount{name: e.Name()}
+		}
+		delete(old, e.Name())
+		s.mounts = append(s.mounts, m)
+	}
+	for _, m := range old { // unmounted since the last listing
+		m.close()
 	}
 	s.sinceScan = 0
 	return nil
 }
 
-// readFile parses one stats file with the Source's buffers. The returned
-// Counters alias s.scratch and are valid until the next call.
-func (s *Source) readFile(path string) (Stats, error) {
-	f, err := os.Open(path)
+// Close closes every open stats file.
+func (s *Source) Close() error {
+	for _, m := range s.mounts {
+		m.close()
+	}
+	return nil
+}
+
+func (m *mount) close() {
+	if m.f != nil {
+		m.f.Close()
+		m.f = nil
+	}
+}
+
+// readMount reads a mount's stats file through its open descriptor. A live
+// stats file sums its counters at every read, so its snapshot_time always
+// moves on; one that stands still while the Source's clock moved means the
+// descriptor holds a file that was replaced on disk (as a simulator or a
+// test does), and the path is opened and read again.
+func (s *Source) readMount(m *mount, path string, now time.Time) (Stats, error) {
+	fresh := m.f == nil
+	if fresh {
+		f, err := os.Open(path)
+		if err != nil {
+			return Stats{}, err
+		}
+		m.f = f
+	}
+	st, err := s.parseFrom(m.f)
 	if err != nil {
 		return Stats{}, err
 	}
-	s.br.Reset(f)
-	st, err := parse(s.br, s.scratch)
-	s.br.Reset(nil) // drop the reference to the closed file
-	s.scratch = st.Counters
-	if cerr := f.Close(); err == nil {
-		err = cerr
+	stale := !fresh && !st.SnapshotTime.IsZero() && st.SnapshotTime.Equal(m.snapshot) && now.After(m.readAt)
+	if stale {
+		m.close()
+		return s.readMount(m, path, now)
 	}
+	m.snapshot, m.readAt = st.SnapshotTime, now
+	return st, nil
+}
+
+// parseFrom parses a stats file from offset 0 with the Source's buffers.
+// The returned Counters alias s.scratch and are valid until the next call.
+func (s *Source) parseFrom(f *os.File) (Stats, error) {
+	s.br.Reset(io.NewSectionReader(f, 0, math.MaxInt64))
+	st, err := parse(s.br, s.scratch)
+	s.br.Reset(nil)
+	s.scratch = st.Counters
 	return st, err
 }
 

@@ -1,6 +1,7 @@
 package lustre_test
 
 import (
+	"bytes"
 	"context"
 	"errors"
 	"os"
@@ -8,6 +9,7 @@ import (
 	"testing"
 	"time"
 
+	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
 	"sluice/pkg/source"
@@ -120,10 +122,17 @@ func TestSourceMountsComeAndGo(t *testing.T) {
 	require.ErrorIs(t, err, source.ErrNoData)
 }
 
+// tick is a clock that moves one interval per call, as the agent's does
+// between reads.
+func tick() func() time.Time {
+	t := fixedNow
+	return func() time.Time { t = t.Add(5 * time.Second); return t }
+}
+
 func TestSourceListsTheRootEveryFewReads(t *testing.T) {
 	t.Parallel()
 	root := t.TempDir()
-	src := lustre.NewSource(root, nowFunc)
+	src := lustre.NewSource(root, tick())
 	ctx := context.Background()
 	writeMount(t, root, "scratch-ffff9a0c12345000", "v2_16_header")
 	got, err := src.Read(ctx)
@@ -145,11 +154,48 @@ func TestSourceListsTheRootEveryFewReads(t *testing.T) {
 	require.NotZero(t, seenAt, "new mount not seen within %d reads", lustre.DefaultRescanEvery)
 	require.Greater(t, seenAt, 1, "the listing is reused between rescans")
 
-	// An unmount is noticed at once, and the next read lists again.
+	// An unmount is noticed at once, and the next read lists again. (A
+	// removed debugfs or procfs file fails reads; a removed regular file
+	// still reads through the open descriptor, but its snapshot_time stands
+	// still while the clock moves, so it is opened again and found gone.)
 	require.NoError(t, os.RemoveAll(filepath.Join(root, "proj-ffff9a0c00001000")))
 	got, err = src.Read(ctx)
 	require.NoError(t, err)
 	require.Equal(t, []string{"lustre:scratch-ffff9a0c12345000"}, keys(got))
+}
+
+func TestSourceSeesRewrittenAndReplacedFiles(t *testing.T) {
+	t.Parallel()
+	root := t.TempDir()
+	src := lustre.NewSource(root, tick())
+	ctx := context.Background()
+	write := func(open uint64, snap time.Time, replace bool) {
+		var buf bytes.Buffer
+		st := lustre.Stats{SnapshotTime: snap, Counters: []lustre.Counter{{Name: "open", Samples: open, Unit: "usecs", Fields: 4, Min: 1, Max: 1, Sum: open}}}
+		require.NoError(t, lustre.Write(&buf, st, lustre.FormatV2_16))
+		dir := filepath.Join(root, "scratch-ffff9a0c12345000")
+		require.NoError(t, os.MkdirAll(dir, 0o755))
+		path := filepath.Join(dir, "stats")
+		if replace { // a new file under the same name, as a simulator writes
+			require.NoError(t, os.WriteFile(path+".new", buf.Bytes(), 0o644))
+			require.NoError(t, os.Rename(path+".new", path))
+			return
+		}
+		require.NoError(t, os.WriteFile(path, buf.Bytes(), 0o644)) // same inode
+	}
+	read := func() uint64 {
+		got, err := src.Read(ctx)
+		require.NoError(t, err)
+		require.Len(t, got, 1)
+		return got[0].Counters["open"]
+	}
+	write(10, fixedNow, false)
+	assert.Equal(t, uint64(10), read())
+	write(20, fixedNow.Add(time.Second), false)
+	assert.Equal(t, uint64(20), read(), "rewritten in place: seen through the open descriptor")
+	write(30, fixedNow.Add(2*time.Second), true)
+	assert.Equal(t, uint64(30), read(), "replaced: the stale descriptor is noticed and the path opened again")
+	require.NoError(t, src.Close())
 }
 
 func TestSourceMissingRoot(t *testing.T) {
