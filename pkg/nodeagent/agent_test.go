@@ -184,8 +184,13 @@ func BenchmarkCollectOneMount(b *testing.B) {
 	require.NoError(b, os.MkdirAll(filepath.Join(root, "scratch-ffff9a0c12345000"), 0o755))
 	require.NoError(b, os.WriteFile(filepath.Join(root, "scratch-ffff9a0c12345000", "stats"), data, 0o644))
 	state := b.TempDir()
+	// A live stats file has a new snapshot_time at every read; this fixture
+	// does not change, so the source's clock is held still, or the source
+	// would take the file for a replaced one and open it again each time,
+	// a path production never takes.
+	frozen := func() time.Time { return t0 }
 	a, err := nodeagent.New(nodeagent.Config{
-		Node: "bw001", StateDir: state, Sources: []source.Source{lustre.NewSource(root, nil)},
+		Node: "bw001", StateDir: state, Sources: []source.Source{lustre.NewSource(root, frozen)},
 	})
 	require.NoError(b, err)
 	// Steady state: no hook has touched the job records for a while.
