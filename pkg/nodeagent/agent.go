@@ -23,6 +23,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"hash/fnv"
 	"log/slog"
 	"os"
 	"path/filepath"
@@ -58,6 +59,12 @@ type Config struct {
 	NATSURL string
 	// Prefix and Cluster name the subjects (see package bus).
 	Prefix, Cluster string
+	// Jitter is the width of the window in which this node's sampling
+	// phase lies: each node samples at a stable offset into the interval
+	// derived from its name, so thousands of nodes do not publish in the
+	// same millisecond. Zero means the whole interval; a negative value
+	// samples on interval boundaries.
+	Jitter time.Duration
 	// QueueLimit bounds the samples held while the broker is away; zero
 	// means 720 (one hour at the default interval).
 	QueueLimit int
@@ -151,6 +158,31 @@ func New(cfg Config) (*Agent, error) {
 		return nil, err
 	}
 	return a, nil
+}
+
+// Phase is this node's offset into each interval: a hash of the node name
+// modulo the jitter window, stable across restarts.
+func (a *Agent) Phase() time.Duration {
+	window := a.cfg.Jitter
+	if window == 0 || window > a.cfg.Interval {
+		window = a.cfg.Interval
+	}
+	if window < 0 {
+		return 0
+	}
+	h := fnv.New64a()
+	h.Write([]byte(a.cfg.Node))
+	return time.Duration(h.Sum64() % uint64(window))
+}
+
+// NextTick is the first instant after now that lies phase past a multiple
+// of interval (on the wall clock, so nodes keep their spread).
+func NextTick(now time.Time, interval, phase time.Duration) time.Time {
+	t := now.Truncate(interval).Add(phase)
+	for !t.After(now) {
+		t = t.Add(interval)
+	}
+	return t
 }
 
 // Node is the node name in use.

@@ -3,6 +3,7 @@ package nodeagent_test
 import (
 	"bytes"
 	"context"
+	"fmt"
 	"os"
 	"path/filepath"
 	"sync"
@@ -204,5 +205,54 @@ func BenchmarkCollectOneMount(b *testing.B) {
 		if _, _, err := a.Collect(ctx); err != nil {
 			b.Fatal(err)
 		}
+	}
+}
+
+func TestPhaseIsStableAndSpread(t *testing.T) {
+	const nodes = 3000
+	interval := 5 * time.Second
+	buckets := make([]int, 50) // 100 ms each
+	state, root := t.TempDir(), t.TempDir()
+	for i := range nodes {
+		a, err := nodeagent.New(nodeagent.Config{
+			Node: fmt.Sprintf("bw%04d", i), Interval: interval, StateDir: state,
+			Sources: []source.Source{lustre.NewSource(root, nil)},
+		})
+		require.NoError(t, err)
+		p := a.Phase()
+		require.GreaterOrEqual(t, p, time.Duration(0))
+		require.Less(t, p, interval)
+		buckets[p/(100*time.Millisecond)]++
+		if i == 0 {
+			b, _ := nodeagent.New(nodeagent.Config{Node: "bw0000", Interval: interval, StateDir: t.TempDir(), Sources: []source.Source{lustre.NewSource(root, nil)}})
+			assert.Equal(t, p, b.Phase(), "the phase depends only on the node name")
+		}
+	}
+	// 3000 nodes over 50 slots: 60 expected per slot. A uniform spread
+	// keeps every slot well away from both zero and a pile-up (a
+	// chi-square bound would be tighter; this catches a constant phase).
+	for i, n := range buckets {
+		assert.Greater(t, n, 20, "slot %d", i)
+		assert.Less(t, n, 120, "slot %d", i)
+	}
+}
+
+func TestNextTick(t *testing.T) {
+	base := time.Date(2026, 3, 2, 14, 0, 0, 0, time.UTC)
+	tests := []struct {
+		name  string
+		now   time.Time
+		phase time.Duration
+		want  time.Time
+	}{
+		{"before the phase in this interval", base.Add(time.Second), 3 * time.Second, base.Add(3 * time.Second)},
+		{"after it: the next interval", base.Add(4 * time.Second), 3 * time.Second, base.Add(8 * time.Second)},
+		{"exactly on it: the next one", base.Add(3 * time.Second), 3 * time.Second, base.Add(8 * time.Second)},
+		{"no phase", base.Add(time.Second), 0, base.Add(5 * time.Second)},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			assert.Equal(t, tt.want, nodeagent.NextTick(tt.now, 5*time.Second, tt.phase))
+		})
 	}
 }

@@ -37,16 +37,19 @@ func (a *Agent) Run(ctx context.Context) error {
 	if _, _, err := a.Collect(ctx); err != nil { // base reading
 		a.log.Warn("source read failed", "err", err)
 	}
-	tick := time.NewTicker(a.cfg.Interval)
-	defer tick.Stop()
+	next := NextTick(time.Now(), a.cfg.Interval, a.Phase())
+	timer := time.NewTimer(time.Until(next))
+	defer timer.Stop()
 	for n := 1; ; n++ {
 		select {
 		case <-ctx.Done():
 			a.flush(nc)
 			a.log.Info("agent stopped", "queued", a.queue.len(), "dropped", a.queue.dropped)
 			return nil
-		case <-tick.C:
+		case <-timer.C:
 		}
+		next = NextTick(time.Now(), a.cfg.Interval, a.Phase())
+		timer.Reset(time.Until(next))
 		a.Step(ctx, nc)
 		if n%a.cfg.HeartbeatEvery == 0 {
 			a.heartbeat(nc, self)

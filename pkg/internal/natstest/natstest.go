@@ -20,6 +20,17 @@ func Start(t testing.TB) *bus.Embedded {
 	return srv
 }
 
+// StartAt runs an embedded broker on listen (host:port) for the test's
+// lifetime; a test restarts a broker by shutting one down and starting
+// another on the same address.
+func StartAt(t testing.TB, listen string) *bus.Embedded {
+	t.Helper()
+	srv, err := bus.StartEmbedded(bus.EmbeddedOptions{Listen: listen})
+	require.NoError(t, err)
+	t.Cleanup(srv.Shutdown)
+	return srv
+}
+
 // Connect dials url and closes the connection at cleanup.
 func Connect(t testing.TB, url string) *nats.Conn {
 	t.Helper()

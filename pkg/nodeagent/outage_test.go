@@ -1,0 +1,132 @@
+package nodeagent_test
+
+import (
+	"context"
+	"net/url"
+	"os"
+	"path/filepath"
+	"strconv"
+	"strings"
+	"sync"
+	"testing"
+	"time"
+
+	"github.com/nats-io/nats.go"
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+
+	"sluice/pkg/internal/natstest"
+	"sluice/pkg/nodeagent"
+	"sluice/pkg/source"
+	"sluice/pkg/source/lustre"
+	"sluice/pkg/wire"
+)
+
+// collector records what reaches the broker, reconnecting quickly after a
+// restart so it is back before the agent is.
+type collector struct {
+	mu      sync.Mutex
+	seqs    []uint64
+	dropped uint64
+	beats   int
+}
+
+func collect(t *testing.T, brokerURL string) *collector {
+	c := &collector{}
+	nc, err := nats.Connect(brokerURL, nats.MaxReconnects(-1), nats.ReconnectWait(10*time.Millisecond))
+	require.NoError(t, err)
+	t.Cleanup(nc.Close)
+	_, err = nc.Subscribe("sluice.default.>", func(m *nats.Msg) {
+		c.mu.Lock()
+		defer c.mu.Unlock()
+		switch k, _ := wire.Peek(m.Data); k {
+		case wire.KindSample:
+			var s wire.Sample
+			if wire.DecodeSample(m.Data, &s) == nil {
+				c.seqs = append(c.seqs, s.Seq)
+			}
+		case wire.KindHeartbeat:
+			var h wire.Heartbeat
+			if wire.DecodeHeartbeat(m.Data, &h) == nil {
+				c.dropped = h.Dropped
+				c.beats++
+			}
+		}
+	})
+	require.NoError(t, err)
+	require.NoError(t, nc.Flush())
+	return c
+}
+
+func (c *collector) snapshot() ([]uint64, uint64) {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	return append([]uint64(nil), c.seqs...), c.dropped
+}
+
+// persistedSeq is the agent's last sample sequence number, from its state.
+func persistedSeq(state string) uint64 {
+	b, _ := os.ReadFile(filepath.Join(state, "sequence"))
+	n, _ := strconv.ParseUint(strings.TrimSpace(string(b)), 10, 64)
+	return n
+}
+
+// runOutage runs an agent, stops the broker for `outage` samples, starts it
+// again on the same address and returns every sequence number received
+// once the agent has caught up, and the last dropped count reported.
+func runOutage(t *testing.T, queueLimit int, outage uint64) ([]uint64, uint64, uint64) {
+	srv := natstest.Start(t)
+	u, err := url.Parse(srv.URL())
+	require.NoError(t, err)
+	c := collect(t, srv.URL())
+	root, state := t.TempDir(), t.TempDir()
+	writeStats(t, root, "scratch-ffff8f0000001000", map[string][2]uint64{"open": {1, 0}})
+	a, err := nodeagent.New(nodeagent.Config{
+		Node: "bw007", Interval: 100 * time.Millisecond, Jitter: -1, StateDir: state, NATSURL: srv.URL(),
+		QueueLimit: queueLimit, HeartbeatEvery: 1, Sources: []source.Source{lustre.NewSource(root, nil)},
+	})
+	require.NoError(t, err)
+	ctx, cancel := context.WithCancel(context.Background())
+	done := make(chan error, 1)
+	go func() { done <- a.Run(ctx) }()
+	defer func() { cancel(); require.NoError(t, <-done) }()
+
+	waitFor := func(cond func() bool, what string) {
+		require.Eventually(t, cond, 20*time.Second, 10*time.Millisecond, what)
+	}
+	waitFor(func() bool { s, _ := c.snapshot(); return len(s) >= 3 }, "first samples")
+	srv.Shutdown()
+	down := persistedSeq(state)
+	waitFor(func() bool { return persistedSeq(state) >= down+outage }, "samples taken while the broker is down")
+	natstest.StartAt(t, u.Host)
+	last := persistedSeq(state)
+	waitFor(func() bool { s, _ := c.snapshot(); return len(s) > 0 && s[len(s)-1] > last }, "catching up after the restart")
+	c.mu.Lock()
+	beats := c.beats
+	c.mu.Unlock()
+	// A heartbeat sent after the catch-up carries the final dropped count.
+	waitFor(func() bool { c.mu.Lock(); defer c.mu.Unlock(); return c.beats > beats }, "a heartbeat after the catch-up")
+	seqs, dropped := c.snapshot()
+	return seqs, dropped, last
+}
+
+func TestOutageLosesNothingWithinTheBound(t *testing.T) {
+	seqs, dropped, _ := runOutage(t, 1000, 10)
+	require.NotEmpty(t, seqs)
+	for i, s := range seqs {
+		require.Equal(t, uint64(i+1), s, "samples arrive in order, none missing: %v", seqs)
+	}
+	assert.Zero(t, dropped)
+}
+
+func TestOutageBeyondTheBoundDropsTheOldestAndSaysSo(t *testing.T) {
+	const limit = 4
+	seqs, dropped, _ := runOutage(t, limit, 12)
+	missing := uint64(0)
+	for i := 1; i < len(seqs); i++ {
+		require.Greater(t, seqs[i], seqs[i-1], "still in order")
+		missing += seqs[i] - seqs[i-1] - 1
+	}
+	assert.Positive(t, missing, "an outage longer than the queue loses samples")
+	assert.Equal(t, missing, dropped, "and the heartbeat counts exactly those")
+}
