@@ -3,6 +3,8 @@
 // commands that record job starts and ends on the node.
 //
 //	agent run       sample and publish until SIGTERM or SIGINT
+//	agent check     validate the options and list what every source finds
+//	agent bench     measure each source's cost per sample
 //	agent job start record a job start (from a prolog)
 //	agent job end   record a job end (from an epilog)
 package main
@@ -23,14 +25,15 @@ import (
 	"sluice/pkg/jobstate"
 	"sluice/pkg/mapping"
 	"sluice/pkg/nodeagent"
-	"sluice/pkg/source"
-	"sluice/pkg/source/lustre"
+	"sluice/pkg/options"
 )
 
 const usage = `usage: agent <command> [flags]
 
 commands:
   run         sample this node's counters and publish them (until SIGTERM)
+  check       validate the options, list every source found and the metrics it gives
+  bench       time every source and project the agent's CPU share at the interval
   job start   record that a job started on this node (call from a prolog)
   job end     record that a job ended on this node (call from an epilog)
 
@@ -54,6 +57,10 @@ func run(ctx context.Context, args []string, stderr io.Writer) error {
 	switch {
 	case args[0] == "run":
 		return runAgent(ctx, args[1:], stderr)
+	case args[0] == "check":
+		return check(ctx, args[1:], os.Stdout, stderr)
+	case args[0] == "bench":
+		return bench(ctx, args[1:], os.Stdout, stderr)
 	case args[0] == "job" && len(args) > 1 && args[1] == "start":
 		return jobStart(ctx, args[2:], stderr)
 	case args[0] == "job" && len(args) > 1 && args[1] == "end":
@@ -101,45 +108,123 @@ func parse(fs *flag.FlagSet, args []string) error {
 }
 
 func runAgent(ctx context.Context, args []string, stderr io.Writer) error {
-	fs := flag.NewFlagSet("agent run", flag.ContinueOnError)
-	var c common
-	c.register(fs)
-	interval := fs.Duration("interval", 5*time.Second, "sampling interval")
-	lustreRoot := fs.String("source.lustre.root", "/sys/kernel/debug/lustre/llite", "directory holding one <instance>/stats file per Lustre client mount (Lustre before 2.12: /proc/fs/lustre/llite)")
-	mappingFile := fs.String("mapping.file", "", "YAML file of counter-to-metric overrides laid over the default mapping")
-	queueLimit := fs.Int("queue.limit", 720, "samples held while the broker is unreachable (720 is one hour at 5s)")
-	if err := parse(fs, args); err != nil {
-		return err
-	}
-	log, err := c.logger(stderr)
-	if err != nil {
-		return err
-	}
-	if _, err := os.Stat(*lustreRoot); err != nil {
-		return fmt.Errorf("Lustre stats tree %s: %w (set --source.lustre.root to the llite directory)", *lustreRoot, err)
-	}
-	table := mapping.Default()
-	if *mappingFile != "" {
-		f, err := os.Open(*mappingFile)
-		if err != nil {
-			return fmt.Errorf("--mapping.file: %w", err)
-		}
-		table, err = mapping.Load(f, table)
-		f.Close()
-		if err != nil {
-			return fmt.Errorf("--mapping.file %s: %w", *mappingFile, err)
-		}
-	}
-	a, err := nodeagent.New(nodeagent.Config{
-		Node: c.node, Interval: *interval, StateDir: c.stateDir,
-		Sources: []source.Source{lustre.NewSource(*lustreRoot, nil)},
-		Mapping: table, NATSURL: c.natsURL, Prefix: c.prefix, Cluster: c.cluster,
-		QueueLimit: *queueLimit, Logger: log,
-	})
+	a, _, err := setup("agent run", args, stderr)
 	if err != nil {
 		return err
 	}
 	return a.Run(ctx)
+}
+
+// setup parses the flags shared by run, check and bench (with the
+// environment and the --config file) and builds the agent.
+func setup(name string, args []string, stderr io.Writer, extra ...func(*flag.FlagSet)) (*nodeagent.Agent, *agentFlags, error) {
+	fs := flag.NewFlagSet(name, flag.ContinueOnError)
+	var f agentFlags
+	f.register(fs)
+	for _, e := range extra {
+		e(fs)
+	}
+	if err := parseWithOptions(fs, args); err != nil {
+		return nil, nil, err
+	}
+	log, err := f.logger(stderr)
+	if err != nil {
+		return nil, nil, err
+	}
+	sources, err := f.sources.build()
+	if err != nil {
+		return nil, nil, err
+	}
+	table, err := loadMapping(f.mappingFile)
+	if err != nil {
+		return nil, nil, err
+	}
+	a, err := nodeagent.New(nodeagent.Config{
+		Node: f.node, Interval: f.interval, Jitter: f.jitter, StateDir: f.stateDir,
+		Sources: sources, Mapping: table, NATSURL: f.natsURL, Prefix: f.prefix, Cluster: f.cluster,
+		QueueLimit: f.queueLimit, Logger: log,
+	})
+	return a, &f, err
+}
+
+// agentFlags are the options of run, check and bench.
+type agentFlags struct {
+	common
+	interval, jitter time.Duration
+	mappingFile      string
+	queueLimit       int
+	sources          sourceFlags
+}
+
+func (f *agentFlags) register(fs *flag.FlagSet) {
+	f.common.register(fs)
+	fs.DurationVar(&f.interval, "interval", 5*time.Second, "sampling interval (at least 100ms)")
+	fs.DurationVar(&f.jitter, "jitter", 0, "width of the window holding this node's sampling phase, a stable offset derived from its name (0: the whole interval; negative: sample on interval boundaries)")
+	fs.StringVar(&f.mappingFile, "mapping.file", "", "YAML file of counter-to-metric overrides laid over the default mapping")
+	fs.IntVar(&f.queueLimit, "queue.limit", 720, "samples held while the broker is unreachable, oldest dropped first (720 is one hour at 5s)")
+	f.sources.register(fs)
+}
+
+func loadMapping(path string) (mapping.Table, error) {
+	table := mapping.Default()
+	if path == "" {
+		return table, nil
+	}
+	file, err := os.Open(path)
+	if err != nil {
+		return nil, fmt.Errorf("--mapping.file: %w", err)
+	}
+	defer file.Close()
+	table, err = mapping.Load(file, table)
+	if err != nil {
+		return nil, fmt.Errorf("--mapping.file %s: %w", path, err)
+	}
+	return table, nil
+}
+
+// envPrefix names the agent's environment variables: --nats.url is
+// SLUICE_AGENT_NATS_URL.
+const envPrefix = "SLUICE_AGENT_"
+
+// parseWithOptions parses the command line, then fills what it left unset
+// from the environment and the --config file.
+func parseWithOptions(fs *flag.FlagSet, args []string) error {
+	config := fs.String("config", "", "YAML file of options, by the same names as the flags (env "+envPrefix+"CONFIG)")
+	if err := parse(fs, args); err != nil {
+		return err
+	}
+	path := *config
+	if v, ok := os.LookupEnv(envPrefix + "CONFIG"); ok && path == "" {
+		path = v
+	}
+	var file map[string]string
+	if path != "" {
+		fh, err := os.Open(path)
+		if err != nil {
+			return fmt.Errorf("--config: %w", err)
+		}
+		defer fh.Close()
+		if file, err = options.ParseFile(fh); err != nil {
+			return fmt.Errorf("--config %s: %w", path, err)
+		}
+		delete(file, "config")
+		dropOtherCommands(fs, file)
+	}
+	return options.Apply(fs, envPrefix, nil, file)
+}
+
+// dropOtherCommands removes from file the options that belong to other agent
+// commands (one file serves run and the hooks), keeping unknown names so
+// that a misspelt option is still an error.
+func dropOtherCommands(fs *flag.FlagSet, file map[string]string) {
+	all := flag.NewFlagSet("all", flag.ContinueOnError)
+	var f agentFlags
+	f.register(all)
+	for name := range file {
+		if fs.Lookup(name) == nil && all.Lookup(name) != nil {
+			delete(file, name)
+		}
+	}
 }
 
 func hookFlags(name string, c *common) (*flag.FlagSet, *string, *string) {
@@ -172,7 +257,7 @@ func jobStart(ctx context.Context, args []string, stderr io.Writer) error {
 	account := fs.String("account", "", "accounting project")
 	name := fs.String("name", "", "job name")
 	nodes := fs.String("nodes", "", "the job's node list, compact form allowed: bw[001-004],bw010")
-	if err := parse(fs, args); err != nil {
+	if err := parseWithOptions(fs, args); err != nil {
 		return err
 	}
 	log, err := c.logger(stderr)
@@ -198,7 +283,7 @@ func jobEnd(ctx context.Context, args []string, stderr io.Writer) error {
 	var c common
 	fs, id, at := hookFlags("agent job end", &c)
 	exit := fs.Int("exit-code", 0, "the job's exit code")
-	if err := parse(fs, args); err != nil {
+	if err := parseWithOptions(fs, args); err != nil {
 		return err
 	}
 	log, err := c.logger(stderr)

@@ -67,3 +67,53 @@ func TestExampleMappingLoads(t *testing.T) {
 	assert.Equal(t, metric.StatOps, table["lustre"]["inode_permission"])
 	assert.NotContains(t, table["lustre"], "mmap")
 }
+
+func TestConfigFileAndEnvironment(t *testing.T) {
+	state := t.TempDir()
+	cfg := filepath.Join(t.TempDir(), "agent.yaml")
+	require.NoError(t, os.WriteFile(cfg, []byte("interval: 10s\nsource:\n  lustre:\n    root: /nonexistent/from-file\nstate.dir: "+state+"\n"), 0o644))
+	var stderr bytes.Buffer
+	err := run(context.Background(), []string{"run", "--config", cfg}, &stderr)
+	require.Error(t, err)
+	assert.Contains(t, err.Error(), "/nonexistent/from-file", "the file's source root is used")
+
+	t.Setenv("SLUICE_AGENT_SOURCE_LUSTRE_ROOT", "/nonexistent/from-env")
+	err = run(context.Background(), []string{"run", "--config", cfg}, &stderr)
+	assert.Contains(t, err.Error(), "/nonexistent/from-env", "the environment overrides the file")
+
+	err = run(context.Background(), []string{"run", "--config", cfg, "--source.lustre.root", "/nonexistent/from-flag"}, &stderr)
+	assert.Contains(t, err.Error(), "/nonexistent/from-flag", "the command line overrides both")
+
+	// The same file serves the hooks: run-only options are not errors there.
+	require.NoError(t, run(context.Background(), []string{"job", "start", "--config", cfg, "--id", "7", "--nats.url", "nats://127.0.0.1:1"}, &stderr))
+
+	bad := filepath.Join(t.TempDir(), "bad.yaml")
+	require.NoError(t, os.WriteFile(bad, []byte("intervall: 10s\n"), 0o644))
+	err = run(context.Background(), []string{"run", "--config", bad}, &stderr)
+	assert.ErrorContains(t, err, `unknown option "intervall"`)
+}
+
+func TestCheckListsSourcesAndFailsWithoutData(t *testing.T) {
+	root := t.TempDir()
+	var out, stderr bytes.Buffer
+	args := []string{"--source.lustre.root", root, "--state.dir", t.TempDir()}
+	err := check(context.Background(), args, &out, &stderr)
+	require.Error(t, err, "an empty llite directory gives nothing to publish")
+	assert.Contains(t, err.Error(), "no source found any counters")
+
+	require.NoError(t, os.MkdirAll(filepath.Join(root, "scratch-ffff9a0c12345000"), 0o755))
+	data, err := os.ReadFile("../testdata/lustre/v2_16_header/stats")
+	require.NoError(t, err)
+	require.NoError(t, os.WriteFile(filepath.Join(root, "scratch-ffff9a0c12345000", "stats"), data, 0o644))
+	out.Reset()
+	require.NoError(t, check(context.Background(), args, &out, &stderr))
+	assert.Regexp(t, `lustre\s+1\s+read_bytes write_bytes read_ops write_ops opens closes creates removes stat_ops meta_updates syncs other_ops\s+ok`, out.String())
+
+	err = check(context.Background(), append(args, "--nats.url", "http://x:1"), &out, &stderr)
+	assert.ErrorContains(t, err, "scheme")
+
+	out.Reset()
+	require.NoError(t, bench(context.Background(), append(args, "--bench.reads", "20"), &out, &stderr))
+	assert.Regexp(t, `lustre\s+1\s+[0-9.]+\s+[0-9.]+\s+[0-9.]+%`, out.String())
+	assert.Contains(t, out.String(), "all (collect)")
+}

@@ -1,0 +1,59 @@
+package main
+
+import (
+	"flag"
+	"fmt"
+	"os"
+	"slices"
+	"strings"
+
+	"sluice/pkg/source"
+	"sluice/pkg/source/lustre"
+)
+
+// sourceFlags select and configure the counter sources.
+type sourceFlags struct {
+	list       string
+	lustreRoot string
+}
+
+// knownSources are the source kinds --sources may name, in reading order.
+var knownSources = []string{"lustre"}
+
+func (f *sourceFlags) register(fs *flag.FlagSet) {
+	fs.StringVar(&f.list, "sources", strings.Join(knownSources, ","), "comma-separated counter sources to read: "+strings.Join(knownSources, ", "))
+	fs.StringVar(&f.lustreRoot, "source.lustre.root", "/sys/kernel/debug/lustre/llite", "directory holding one <instance>/stats file per Lustre client mount (Lustre before 2.12: /proc/fs/lustre/llite)")
+}
+
+// build makes the selected sources. A selected source whose directory does
+// not exist is an error naming the path and the flag that sets it.
+func (f *sourceFlags) build() ([]source.Source, error) {
+	var out []source.Source
+	for _, name := range strings.Split(f.list, ",") {
+		name = strings.TrimSpace(name)
+		if name == "" {
+			continue
+		}
+		if !slices.Contains(knownSources, name) {
+			return nil, fmt.Errorf("--sources: unknown source %q (known: %s)", name, strings.Join(knownSources, ", "))
+		}
+		switch name {
+		case "lustre":
+			if err := mustExist(f.lustreRoot, "Lustre stats tree", "--source.lustre.root", "the llite directory"); err != nil {
+				return nil, err
+			}
+			out = append(out, lustre.NewSource(f.lustreRoot, nil))
+		}
+	}
+	if len(out) == 0 {
+		return nil, fmt.Errorf("--sources: no source selected")
+	}
+	return out, nil
+}
+
+func mustExist(path, what, flagName, hint string) error {
+	if _, err := os.Stat(path); err != nil {
+		return fmt.Errorf("%s %s: %w (set %s to %s, or leave the source out of --sources)", what, path, err, flagName, hint)
+	}
+	return nil
+}
