@@ -142,7 +142,7 @@ func setup(name string, args []string, stderr io.Writer, extra ...func(*flag.Fla
 	a, err := nodeagent.New(nodeagent.Config{
 		Node: f.node, Interval: f.interval, Jitter: f.jitter, StateDir: f.stateDir,
 		Sources: sources, Mapping: table, NATSURL: f.natsURL, Prefix: f.prefix, Cluster: f.cluster,
-		QueueLimit: f.queueLimit, Logger: log,
+		QueueLimit: f.queueLimit, JobsFrom: nodeagent.JobsFrom(f.jobsFrom), Logger: log,
 	})
 	return a, &f, err
 }
@@ -153,6 +153,7 @@ type agentFlags struct {
 	interval, jitter time.Duration
 	mappingFile      string
 	queueLimit       int
+	jobsFrom         string
 	sources          sourceFlags
 }
 
@@ -162,6 +163,7 @@ func (f *agentFlags) register(fs *flag.FlagSet) {
 	fs.DurationVar(&f.jitter, "jitter", 0, "width of the window holding this node's sampling phase, a stable offset derived from its name (0: the whole interval; negative: sample on interval boundaries)")
 	fs.StringVar(&f.mappingFile, "mapping.file", "", "YAML file of counter-to-metric overrides laid over the default mapping")
 	fs.IntVar(&f.queueLimit, "queue.limit", 720, "samples held while the broker is unreachable, oldest dropped first (720 is one hour at 5s)")
+	fs.StringVar(&f.jobsFrom, "jobs.from", "both", "where running jobs are learnt: hooks (the prolog/epilog records), cgroups (job cgroups found by the jobio source) or both (the union; disagreements are logged)")
 	f.sources.register(fs)
 }
 

@@ -27,6 +27,7 @@ import (
 	"log/slog"
 	"os"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 	"time"
@@ -35,6 +36,7 @@ import (
 	"sluice/pkg/delta"
 	"sluice/pkg/jobstate"
 	"sluice/pkg/mapping"
+	"sluice/pkg/metric"
 	"sluice/pkg/source"
 	"sluice/pkg/wire"
 )
@@ -65,6 +67,9 @@ type Config struct {
 	// same millisecond. Zero means the whole interval; a negative value
 	// samples on interval boundaries.
 	Jitter time.Duration
+	// JobsFrom says where running jobs are learnt from; empty means
+	// JobsFromBoth.
+	JobsFrom JobsFrom
 	// QueueLimit bounds the samples held while the broker is away; zero
 	// means 720 (one hour at the default interval).
 	QueueLimit int
@@ -90,6 +95,9 @@ type Agent struct {
 	queue  *queue
 	buf    []byte
 	recs   recordCache
+	// disagreed holds the jobs already logged as known to only one of
+	// hooks and cgroups.
+	disagreed map[string]bool
 }
 
 // recordCache keeps the last listing of the job state directory; the
@@ -119,6 +127,10 @@ func New(cfg Config) (*Agent, error) {
 	cfg.Interval = cmp.Or(cfg.Interval, 5*time.Second)
 	cfg.QueueLimit = cmp.Or(cfg.QueueLimit, 720)
 	cfg.HeartbeatEvery = cmp.Or(cfg.HeartbeatEvery, 6)
+	cfg.JobsFrom = cmp.Or(cfg.JobsFrom, JobsFromBoth)
+	if !slices.Contains([]JobsFrom{JobsFromHooks, JobsFromCgroups, JobsFromBoth}, cfg.JobsFrom) {
+		return nil, fmt.Errorf("agent: jobs from %q: want hooks, cgroups or both", cfg.JobsFrom)
+	}
 	if cfg.Mapping == nil {
 		cfg.Mapping = mapping.Default()
 	}
@@ -148,7 +160,7 @@ func New(cfg Config) (*Agent, error) {
 	a := &Agent{
 		cfg: cfg, subj: subj, log: cfg.Logger.With("node", cfg.Node), jobs: jobs,
 		deltas: map[string]*delta.Tracker{}, costs: map[string]*cost{},
-		queue: newQueue(cfg.QueueLimit),
+		queue: newQueue(cfg.QueueLimit), disagreed: map[string]bool{},
 	}
 	for _, s := range cfg.Sources {
 		a.deltas[s.Name()] = delta.NewTracker()
@@ -230,6 +242,7 @@ func (a *Agent) saveSeq() error {
 func (a *Agent) Collect(ctx context.Context) (s wire.Sample, ok bool, err error) {
 	now := a.cfg.Now()
 	var errs []error
+	split := perJob{values: map[string]*metric.Values{}}
 	for _, src := range a.cfg.Sources {
 		readings, rerr := a.read(ctx, src)
 		if rerr != nil {
@@ -239,11 +252,18 @@ func (a *Agent) Collect(ctx context.Context) (s wire.Sample, ok bool, err error)
 				errs = append(errs, rerr)
 			}
 		}
+		jobOf := map[string]string{}
+		for _, r := range readings {
+			if r.Job != "" {
+				jobOf[r.Key] = r.Job
+				split.sources = append(split.sources, src.Name())
+			}
+		}
 		for _, d := range a.deltas[src.Name()].Update(readings) {
 			if d.Reset {
 				a.log.Debug("counter reset", "source", src.Name(), "instance", d.Key)
 			}
-			a.cfg.Mapping.Apply(src.Name(), d.Counters, &s.Values)
+			a.cfg.Mapping.Apply(src.Name(), d.Counters, split.target(jobOf[d.Key], &s.Values))
 		}
 	}
 	start := a.last
@@ -254,6 +274,7 @@ func (a *Agent) Collect(ctx context.Context) (s wire.Sample, ok bool, err error)
 	a.seq++
 	s.Node, s.Seq, s.Start, s.End = a.cfg.Node, a.seq, start, now
 	s.Jobs = a.runningJobs(start)
+	s.PerJob = split.blocks(s.Jobs, s.Values, a.cfg.Mapping)
 	return s, true, errors.Join(errs...)
 }
 
@@ -293,18 +314,6 @@ func (a *Agent) records() []jobstate.Record {
 		a.recs.mtime = fi.ModTime()
 	}
 	return recs
-}
-
-// runningJobs lists the jobs the hooks recorded as running at any time
-// after since.
-func (a *Agent) runningJobs(since time.Time) []string {
-	var ids []string
-	for _, r := range a.records() {
-		if r.Running(since) {
-			ids = append(ids, r.ID)
-		}
-	}
-	return ids
 }
 
 // Costs returns, per source kind, the mean read time, the instance count
