@@ -117,3 +117,12 @@ func TestCheckListsSourcesAndFailsWithoutData(t *testing.T) {
 	assert.Regexp(t, `lustre\s+1\s+[0-9.]+\s+[0-9.]+\s+[0-9.]+%`, out.String())
 	assert.Contains(t, out.String(), "all (collect)")
 }
+
+func TestExampleAgentConfigParses(t *testing.T) {
+	// The example names only real options: a wrong name would fail here.
+	var stderr bytes.Buffer
+	err := run(context.Background(), []string{"check", "--config", "../deploy/config/agent.example.yaml", "--state.dir", t.TempDir()}, &stderr)
+	require.Error(t, err, "this machine has no Lustre client")
+	assert.Contains(t, err.Error(), "/sys/kernel/debug/lustre/llite")
+	assert.NotContains(t, err.Error(), "unknown option")
+}
