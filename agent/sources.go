@@ -4,25 +4,33 @@ import (
 	"flag"
 	"fmt"
 	"os"
+	"path/filepath"
 	"slices"
 	"strings"
 
 	"sluice/pkg/source"
+	"sluice/pkg/source/diskstats"
 	"sluice/pkg/source/lustre"
 )
 
 // sourceFlags select and configure the counter sources.
 type sourceFlags struct {
-	list       string
-	lustreRoot string
+	list         string
+	lustreRoot   string
+	blockProc    string
+	blockInclude string
+	blockExclude string
 }
 
 // knownSources are the source kinds --sources may name, in reading order.
-var knownSources = []string{"lustre"}
+var knownSources = []string{"lustre", "block"}
 
 func (f *sourceFlags) register(fs *flag.FlagSet) {
 	fs.StringVar(&f.list, "sources", strings.Join(knownSources, ","), "comma-separated counter sources to read: "+strings.Join(knownSources, ", "))
 	fs.StringVar(&f.lustreRoot, "source.lustre.root", "/sys/kernel/debug/lustre/llite", "directory holding one <instance>/stats file per Lustre client mount (Lustre before 2.12: /proc/fs/lustre/llite)")
+	fs.StringVar(&f.blockProc, "source.block.procfs", "/proc", "procfs mount point holding diskstats")
+	fs.StringVar(&f.blockInclude, "source.block.include", diskstats.DefaultInclude, "regular expression of block device names to read (whole disks by default: partitions would count twice)")
+	fs.StringVar(&f.blockExclude, "source.block.exclude", diskstats.DefaultExclude, "regular expression of block device names to leave out, applied after the include pattern")
 }
 
 // build makes the selected sources. A selected source whose directory does
@@ -43,6 +51,15 @@ func (f *sourceFlags) build() ([]source.Source, error) {
 				return nil, err
 			}
 			out = append(out, lustre.NewSource(f.lustreRoot, nil))
+		case "block":
+			if err := mustExist(filepath.Join(f.blockProc, "diskstats"), "block device statistics", "--source.block.procfs", "the procfs mount point"); err != nil {
+				return nil, err
+			}
+			src, err := diskstats.NewSource(f.blockProc, diskstats.Options{Include: f.blockInclude, Exclude: f.blockExclude}, nil)
+			if err != nil {
+				return nil, fmt.Errorf("--source.block.*: %w", err)
+			}
+			out = append(out, src)
 		}
 	}
 	if len(out) == 0 {

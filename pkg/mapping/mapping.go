@@ -73,11 +73,34 @@ var lustreDefault = map[string]metric.ID{
 	"mmap":            metric.OtherOps,
 }
 
+// blockDefault maps the block device source's counters (pkg/source/diskstats,
+// after Documentation/admin-guide/iostats.rst). Merged requests are already
+// inside reads and writes, sectors are inside the byte counts, and the
+// millisecond fields are time, which no metric holds. Block operations are
+// device requests after merging, not calls, and flushes are block-layer
+// FLUSH requests, which the kernel combines: they undercount fsyncs.
+var blockDefault = map[string]metric.ID{
+	"read_bytes":  metric.ReadBytes,
+	"write_bytes": metric.WriteBytes,
+	"reads":       metric.ReadOps,
+	"writes":      metric.WriteOps,
+	"flushes":     metric.Syncs,
+}
+
+// defaults are the default rows per source kind.
+var defaults = map[string]map[string]metric.ID{
+	"lustre": lustreDefault,
+	"block":  blockDefault,
+}
+
 // Default returns a fresh copy of the default table.
 func Default() Table {
-	t := Table{"lustre": make(map[string]metric.ID, len(lustreDefault))}
-	for k, v := range lustreDefault {
-		t["lustre"][k] = v
+	t := Table{}
+	for kind, rows := range defaults {
+		t[kind] = make(map[string]metric.ID, len(rows))
+		for k, v := range rows {
+			t[kind][k] = v
+		}
 	}
 	return t
 }

@@ -29,6 +29,12 @@ func readFixture(t testing.TB, name string) []byte {
 // Entries order (source, metric, counter). "<name>.sum" is the sum of a
 // byte counter's samples, "<name>" its sample count.
 var defaultTable = []mapping.Entry{
+	// Block devices: field names after Documentation/admin-guide/iostats.rst.
+	{Source: "block", Counter: "read_bytes", Metric: metric.ReadBytes},
+	{Source: "block", Counter: "write_bytes", Metric: metric.WriteBytes},
+	{Source: "block", Counter: "reads", Metric: metric.ReadOps},
+	{Source: "block", Counter: "writes", Metric: metric.WriteOps},
+	{Source: "block", Counter: "flushes", Metric: metric.Syncs},
 	{Source: "lustre", Counter: "read_bytes.sum", Metric: metric.ReadBytes},
 	{Source: "lustre", Counter: "write_bytes.sum", Metric: metric.WriteBytes},
 	{Source: "lustre", Counter: "read_bytes", Metric: metric.ReadOps},
@@ -87,6 +93,9 @@ func TestDefaultIsTheDocumentedTable(t *testing.T) {
 
 func TestDefaultCountersExistInLustre(t *testing.T) {
 	for _, e := range mapping.Default().Entries() {
+		if e.Source != "lustre" {
+			continue
+		}
 		name, isSum := strings.CutSuffix(e.Counter, ".sum")
 		assert.True(t, lliteOpcodeTable[name], "%s is not an llite counter (lproc_llite.c llite_opcode_table, per FORMATS.md)", e.Counter)
 		if isSum {
@@ -159,7 +168,7 @@ func TestLoad(t *testing.T) {
 			tb["lustre"]["mmap"] = metric.MetaUpdates
 			delete(tb["lustre"], "ioctl")
 		})},
-		{name: "a source kind the base does not know", input: "new_source.yaml", wantErr: `mapping: unknown source kind "nfs" (known: lustre)`},
+		{name: "a source kind the base does not know", input: "new_source.yaml", wantErr: `mapping: unknown source kind "nfs" (known: block, lustre)`},
 		{name: "no overrides", input: "empty.yaml", want: mapping.Default()},
 		{name: "unknown metric names source and counter", input: "unknown_metric.yaml", wantErr: `mapping: lustre.open: unknown metric "open_ops"`},
 		{name: "a counter's value must be a metric name", input: "bad_shape.yaml", wantErr: "mapping:"},
