@@ -96,7 +96,7 @@ func TestConfigFileAndEnvironment(t *testing.T) {
 func TestCheckListsSourcesAndFailsWithoutData(t *testing.T) {
 	root := t.TempDir()
 	var out, stderr bytes.Buffer
-	args := []string{"--source.lustre.root", root, "--state.dir", t.TempDir()}
+	args := []string{"--sources", "lustre", "--source.lustre.root", root, "--state.dir", t.TempDir()}
 	err := check(context.Background(), args, &out, &stderr)
 	require.Error(t, err, "an empty llite directory gives nothing to publish")
 	assert.Contains(t, err.Error(), "no source found any counters")
@@ -111,6 +111,13 @@ func TestCheckListsSourcesAndFailsWithoutData(t *testing.T) {
 
 	err = check(context.Background(), append(args, "--nats.url", "http://x:1"), &out, &stderr)
 	assert.ErrorContains(t, err, "scheme")
+
+	// Both sources, the block one over a fixture instead of this machine's
+	// /proc (kernel Documentation/admin-guide/iostats.rst layout, 20 fields).
+	both := append(args, "--sources", "lustre,block", "--source.block.procfs", "../testdata/diskstats/v5_5_20fields")
+	out.Reset()
+	require.NoError(t, check(context.Background(), both, &out, &stderr))
+	assert.Regexp(t, `block\s+\d+\s+read_bytes write_bytes read_ops write_ops syncs\s+ok`, out.String())
 
 	out.Reset()
 	require.NoError(t, bench(context.Background(), append(args, "--bench.reads", "20"), &out, &stderr))
