@@ -114,10 +114,19 @@ func TestCheckListsSourcesAndFailsWithoutData(t *testing.T) {
 
 	// Both sources, the block one over a fixture instead of this machine's
 	// /proc (kernel Documentation/admin-guide/iostats.rst layout, 20 fields).
-	both := append(args, "--sources", "lustre,block", "--source.block.procfs", "../testdata/diskstats/v5_5_20fields")
+	// Every source, over fixtures instead of this machine's /proc: block
+	// devices after the kernel's Documentation/admin-guide/iostats.rst (20
+	// fields), NFS after fs/nfs/super.c nfs_show_stats.
+	nfsProc := t.TempDir()
+	require.NoError(t, os.MkdirAll(filepath.Join(nfsProc, "self"), 0o755))
+	ms, err := os.ReadFile("../testdata/nfs/v4_2_single/mountstats")
+	require.NoError(t, err)
+	require.NoError(t, os.WriteFile(filepath.Join(nfsProc, "self", "mountstats"), ms, 0o644))
+	all := append(args, "--sources", "lustre,nfs,block", "--source.block.procfs", "../testdata/diskstats/v5_5_20fields", "--source.nfs.procfs", nfsProc)
 	out.Reset()
-	require.NoError(t, check(context.Background(), both, &out, &stderr))
+	require.NoError(t, check(context.Background(), all, &out, &stderr))
 	assert.Regexp(t, `block\s+\d+\s+read_bytes write_bytes read_ops write_ops syncs\s+ok`, out.String())
+	assert.Regexp(t, `nfs\s+1\s+read_bytes .*\s+ok`, out.String())
 
 	out.Reset()
 	require.NoError(t, bench(context.Background(), append(args, "--bench.reads", "20"), &out, &stderr))

@@ -11,23 +11,26 @@ import (
 	"sluice/pkg/source"
 	"sluice/pkg/source/diskstats"
 	"sluice/pkg/source/lustre"
+	"sluice/pkg/source/nfs"
 )
 
 // sourceFlags select and configure the counter sources.
 type sourceFlags struct {
 	list         string
 	lustreRoot   string
+	nfsProc      string
 	blockProc    string
 	blockInclude string
 	blockExclude string
 }
 
 // knownSources are the source kinds --sources may name, in reading order.
-var knownSources = []string{"lustre", "block"}
+var knownSources = []string{"lustre", "nfs", "block"}
 
 func (f *sourceFlags) register(fs *flag.FlagSet) {
 	fs.StringVar(&f.list, "sources", strings.Join(knownSources, ","), "comma-separated counter sources to read: "+strings.Join(knownSources, ", "))
 	fs.StringVar(&f.lustreRoot, "source.lustre.root", "/sys/kernel/debug/lustre/llite", "directory holding one <instance>/stats file per Lustre client mount (Lustre before 2.12: /proc/fs/lustre/llite)")
+	fs.StringVar(&f.nfsProc, "source.nfs.procfs", "/proc", "procfs mount point holding self/mountstats (the agent's mount namespace)")
 	fs.StringVar(&f.blockProc, "source.block.procfs", "/proc", "procfs mount point holding diskstats")
 	fs.StringVar(&f.blockInclude, "source.block.include", diskstats.DefaultInclude, "regular expression of block device names to read (whole disks by default: partitions would count twice)")
 	fs.StringVar(&f.blockExclude, "source.block.exclude", diskstats.DefaultExclude, "regular expression of block device names to leave out, applied after the include pattern")
@@ -51,6 +54,11 @@ func (f *sourceFlags) build() ([]source.Source, error) {
 				return nil, err
 			}
 			out = append(out, lustre.NewSource(f.lustreRoot, nil))
+		case "nfs":
+			if err := mustExist(filepath.Join(f.nfsProc, "self", "mountstats"), "NFS client statistics", "--source.nfs.procfs", "the procfs mount point"); err != nil {
+				return nil, err
+			}
+			out = append(out, nfs.NewSource(f.nfsProc, nil))
 		case "block":
 			if err := mustExist(filepath.Join(f.blockProc, "diskstats"), "block device statistics", "--source.block.procfs", "the procfs mount point"); err != nil {
 				return nil, err

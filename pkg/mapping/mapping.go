@@ -87,9 +87,65 @@ var blockDefault = map[string]metric.ID{
 	"flushes":     metric.Syncs,
 }
 
+// nfsDefault maps the NFS client source's counters (pkg/source/nfs, after
+// include/linux/nfs_iostat.h and the per-op lines of net/sunrpc/stats.c).
+// Bytes are what applications read and wrote, page cache and O_DIRECT
+// alike. Operations are RPCs (one READ carries up to rsize bytes; cache hits
+// send none), except opens and closes, which come from the client's VFS
+// event counters because NFSv3 has no OPEN or CLOSE call and v4 delegations
+// skip some. NFSv4 creates regular files through OPEN, so v4 creates
+// undercount. COMMIT stands for fsync: mapping events.fsync as well would
+// count one fsync twice.
+var nfsDefault = map[string]metric.ID{
+	"bytes.normal_read":  metric.ReadBytes,
+	"bytes.direct_read":  metric.ReadBytes,
+	"bytes.normal_write": metric.WriteBytes,
+	"bytes.direct_write": metric.WriteBytes,
+	"op.READ":            metric.ReadOps,
+	"op.READ_PLUS":       metric.ReadOps,
+	"op.WRITE":           metric.WriteOps,
+	"events.open":        metric.Opens,
+	"events.release":     metric.Closes,
+	"op.CREATE":          metric.Creates,
+	"op.MKDIR":           metric.Creates,
+	"op.MKNOD":           metric.Creates,
+	"op.SYMLINK":         metric.Creates,
+	"op.LINK":            metric.Creates,
+	"op.REMOVE":          metric.Removes,
+	"op.RMDIR":           metric.Removes,
+	"op.LOOKUP":          metric.StatOps,
+	"op.LOOKUPP":         metric.StatOps,
+	"op.LOOKUP_ROOT":     metric.StatOps,
+	"op.GETATTR":         metric.StatOps,
+	"op.ACCESS":          metric.StatOps,
+	"op.READDIR":         metric.StatOps,
+	"op.READDIRPLUS":     metric.StatOps,
+	"op.READLINK":        metric.StatOps,
+	"op.FSSTAT":          metric.StatOps,
+	"op.STATFS":          metric.StatOps,
+	"op.GETXATTR":        metric.StatOps,
+	"op.LISTXATTRS":      metric.StatOps,
+	"op.GETACL":          metric.StatOps,
+	"op.SETATTR":         metric.MetaUpdates,
+	"op.RENAME":          metric.MetaUpdates,
+	"op.SETACL":          metric.MetaUpdates,
+	"op.SETXATTR":        metric.MetaUpdates,
+	"op.REMOVEXATTR":     metric.MetaUpdates,
+	"op.ALLOCATE":        metric.MetaUpdates,
+	"op.DEALLOCATE":      metric.MetaUpdates,
+	"op.COMMIT":          metric.Syncs,
+	"op.LOCK":            metric.OtherOps,
+	"op.LOCKT":           metric.OtherOps,
+	"op.LOCKU":           metric.OtherOps,
+	"op.SEEK":            metric.OtherOps,
+	"op.COPY":            metric.OtherOps,
+	"op.CLONE":           metric.OtherOps,
+}
+
 // defaults are the default rows per source kind.
 var defaults = map[string]map[string]metric.ID{
 	"lustre": lustreDefault,
+	"nfs":    nfsDefault,
 	"block":  blockDefault,
 }
 

@@ -1,0 +1,85 @@
+package nfs_test
+
+import (
+	"os"
+	"path/filepath"
+	"sort"
+	"testing"
+
+	"github.com/stretchr/testify/require"
+
+	"sluice/pkg/source/nfs"
+)
+
+// testdata is the repository's fixture directory for this source.
+var testdata = filepath.Join("..", "..", "..", "testdata", "nfs")
+
+// wellFormed lists the fixture cases that follow the kernel's layout
+// exactly, so that procfs parses them too.
+var wellFormed = []string{
+	"v4_2_single", "v3", "shared_superblock", "mixed", "statvers_1_0",
+	"escaped", "nconnect", "remount_1_before", "remount_2_later", "remount_3_after",
+}
+
+// fixture returns the path of the mountstats file of fixture case name.
+func fixture(name string) string {
+	return filepath.Join(testdata, name, "mountstats")
+}
+
+// readFixture returns the contents of fixture case name.
+func readFixture(t testing.TB, name string) []byte {
+	t.Helper()
+	b, err := os.ReadFile(fixture(name))
+	require.NoError(t, err)
+	return b
+}
+
+// allCases lists every fixture case directory.
+func allCases(t testing.TB) []string {
+	t.Helper()
+	paths, err := filepath.Glob(filepath.Join(testdata, "*", "mountstats"))
+	require.NoError(t, err)
+	require.NotEmpty(t, paths)
+	cases := make([]string, 0, len(paths))
+	for _, p := range paths {
+		cases = append(cases, filepath.Base(filepath.Dir(p)))
+	}
+	sort.Strings(cases)
+	return cases
+}
+
+// opNames returns the sorted per-op names of m.
+func opNames(m nfs.Mount) []string {
+	names := make([]string, 0, len(m.Ops))
+	for n := range m.Ops {
+		names = append(names, n)
+	}
+	sort.Strings(names)
+	return names
+}
+
+// v3Ops and v4Ops are the per-op names of the generated fixtures: the
+// procedure lists of nfs3_procedures (fs/nfs/nfs3xdr.c) and nfs4_procedures
+// (fs/nfs/nfs4xdr.c), sorted.
+var (
+	v3Ops = sorted("NULL", "GETATTR", "SETATTR", "LOOKUP", "ACCESS", "READLINK", "READ", "WRITE",
+		"CREATE", "MKDIR", "SYMLINK", "MKNOD", "REMOVE", "RMDIR", "RENAME", "LINK", "READDIR",
+		"READDIRPLUS", "FSSTAT", "FSINFO", "PATHCONF", "COMMIT")
+	v4Ops = sorted("NULL", "READ", "WRITE", "COMMIT", "OPEN", "OPEN_CONFIRM", "OPEN_NOATTR",
+		"OPEN_DOWNGRADE", "CLOSE", "SETATTR", "FSINFO", "RENEW", "SETCLIENTID",
+		"SETCLIENTID_CONFIRM", "LOCK", "LOCKT", "LOCKU", "ACCESS", "GETATTR", "LOOKUP",
+		"LOOKUP_ROOT", "REMOVE", "RENAME", "LINK", "SYMLINK", "CREATE", "PATHCONF", "STATFS",
+		"READLINK", "READDIR", "SERVER_CAPS", "DELEGRETURN", "GETACL", "SETACL", "FS_LOCATIONS",
+		"RELEASE_LOCKOWNER", "SECINFO", "FSID_PRESENT", "EXCHANGE_ID", "CREATE_SESSION",
+		"DESTROY_SESSION", "SEQUENCE", "GET_LEASE_TIME", "RECLAIM_COMPLETE", "LAYOUTGET",
+		"GETDEVICEINFO", "LAYOUTCOMMIT", "LAYOUTRETURN", "SECINFO_NO_NAME", "TEST_STATEID",
+		"FREE_STATEID", "GETDEVICELIST", "BIND_CONN_TO_SESSION", "DESTROY_CLIENTID", "SEEK",
+		"ALLOCATE", "DEALLOCATE", "LAYOUTSTATS", "CLONE", "COPY", "OFFLOAD_CANCEL", "LOOKUPP",
+		"LAYOUTERROR", "COPY_NOTIFY", "GETXATTR", "SETXATTR", "LISTXATTRS", "REMOVEXATTR",
+		"READ_PLUS")
+)
+
+func sorted(s ...string) []string {
+	sort.Strings(s)
+	return s
+}
