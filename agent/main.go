@@ -96,17 +96,6 @@ func (c *common) logger(w io.Writer) (*slog.Logger, error) {
 	return slog.New(slog.NewTextHandler(w, &slog.HandlerOptions{Level: lvl})), nil
 }
 
-func parse(fs *flag.FlagSet, args []string) error {
-	fs.SetOutput(os.Stderr)
-	if err := fs.Parse(args); err != nil {
-		return err
-	}
-	if fs.NArg() > 0 {
-		return fmt.Errorf("unexpected arguments: %s", strings.Join(fs.Args(), " "))
-	}
-	return nil
-}
-
 func runAgent(ctx context.Context, args []string, stderr io.Writer) error {
 	a, _, err := setup("agent run", args, stderr)
 	if err != nil {
@@ -189,44 +178,13 @@ func loadMapping(path string) (mapping.Table, error) {
 const envPrefix = "SLUICE_AGENT_"
 
 // parseWithOptions parses the command line, then fills what it left unset
-// from the environment and the --config file.
+// from the environment and the --config file, which may also hold the
+// options of the agent's other commands.
 func parseWithOptions(fs *flag.FlagSet, args []string) error {
-	config := fs.String("config", "", "YAML file of options, by the same names as the flags (env "+envPrefix+"CONFIG)")
-	if err := parse(fs, args); err != nil {
-		return err
-	}
-	path := *config
-	if v, ok := os.LookupEnv(envPrefix + "CONFIG"); ok && path == "" {
-		path = v
-	}
-	var file map[string]string
-	if path != "" {
-		fh, err := os.Open(path)
-		if err != nil {
-			return fmt.Errorf("--config: %w", err)
-		}
-		defer fh.Close()
-		if file, err = options.ParseFile(fh); err != nil {
-			return fmt.Errorf("--config %s: %w", path, err)
-		}
-		delete(file, "config")
-		dropOtherCommands(fs, file)
-	}
-	return options.Apply(fs, envPrefix, nil, file)
-}
-
-// dropOtherCommands removes from file the options that belong to other agent
-// commands (one file serves run and the hooks), keeping unknown names so
-// that a misspelt option is still an error.
-func dropOtherCommands(fs *flag.FlagSet, file map[string]string) {
 	all := flag.NewFlagSet("all", flag.ContinueOnError)
 	var f agentFlags
 	f.register(all)
-	for name := range file {
-		if fs.Lookup(name) == nil && all.Lookup(name) != nil {
-			delete(file, name)
-		}
-	}
+	return options.Parse(fs, args, envPrefix, all)
 }
 
 func hookFlags(name string, c *common) (*flag.FlagSet, *string, *string) {

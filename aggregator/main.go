@@ -23,6 +23,7 @@ import (
 
 	"sluice/pkg/aggregate"
 	"sluice/pkg/level"
+	"sluice/pkg/options"
 	"sluice/pkg/tracker"
 )
 
@@ -141,11 +142,15 @@ func parse(fs *flag.FlagSet, args []string) error {
 	return nil
 }
 
+// envPrefix names the aggregator's environment variables: --store.path is
+// SLUICE_AGGREGATOR_STORE_PATH.
+const envPrefix = "SLUICE_AGGREGATOR_"
+
 func serve(ctx context.Context, args []string, stderr io.Writer) error {
 	fs := flag.NewFlagSet("aggregator run", flag.ContinueOnError)
 	var f serveFlags
 	f.register(fs)
-	if err := parse(fs, args); err != nil {
+	if err := options.Parse(fs, args, envPrefix, nil); err != nil {
 		return err
 	}
 	log, err := logger(stderr, f.logLvl)

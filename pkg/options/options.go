@@ -146,3 +146,42 @@ func names(fs *flag.FlagSet) []string {
 	fs.VisitAll(func(f *flag.Flag) { ns = append(ns, f.Name) })
 	return slices.Sorted(slices.Values(ns))
 }
+
+// Parse parses args into fs, adding a --config flag (and its
+// <envPrefix>CONFIG variable) naming an options file, then fills what the
+// command line left unset from the environment and that file. Names in the
+// file that fs lacks but also (a set of the binary's other commands'
+// flags, may be nil) has are skipped, so one file can serve several
+// commands; any other unknown name is an error. Positional arguments are
+// refused.
+func Parse(fs *flag.FlagSet, args []string, envPrefix string, also *flag.FlagSet) error {
+	config := fs.String("config", "", "YAML file of options, by the same names as the flags (env "+envPrefix+"CONFIG)")
+	if err := fs.Parse(args); err != nil {
+		return err
+	}
+	if fs.NArg() > 0 {
+		return fmt.Errorf("unexpected arguments: %s", strings.Join(fs.Args(), " "))
+	}
+	path := *config
+	if v, ok := os.LookupEnv(envPrefix + "CONFIG"); ok && path == "" {
+		path = v
+	}
+	var file map[string]string
+	if path != "" {
+		fh, err := os.Open(path)
+		if err != nil {
+			return fmt.Errorf("--config: %w", err)
+		}
+		defer fh.Close()
+		if file, err = ParseFile(fh); err != nil {
+			return fmt.Errorf("--config %s: %w", path, err)
+		}
+		delete(file, "config")
+		for name := range file {
+			if fs.Lookup(name) == nil && also != nil && also.Lookup(name) != nil {
+				delete(file, name)
+			}
+		}
+	}
+	return Apply(fs, envPrefix, nil, file)
+}
