@@ -142,11 +142,27 @@ var nfsDefault = map[string]metric.ID{
 	"op.CLONE":           metric.OtherOps,
 }
 
+// jobioDefault maps the per-job source's counters (pkg/source/jobio, after
+// the /proc/<pid>/io fields of Documentation/filesystems/proc.rst): bytes
+// and calls through read- and write-family system calls, as the Lustre and
+// NFS rows count calls. Left out: proc.read_bytes and proc.write_bytes (the
+// storage-level view of the same I/O), cancelled_write_bytes (a correction,
+// not I/O) and every iostat.* counter (block devices only, and already
+// inside rchar/wchar). On a shared node the per-job sample takes exactly the
+// metrics mapped here from this source, and the rest from the node.
+var jobioDefault = map[string]metric.ID{
+	"proc.rchar": metric.ReadBytes,
+	"proc.wchar": metric.WriteBytes,
+	"proc.syscr": metric.ReadOps,
+	"proc.syscw": metric.WriteOps,
+}
+
 // defaults are the default rows per source kind.
 var defaults = map[string]map[string]metric.ID{
 	"lustre": lustreDefault,
 	"nfs":    nfsDefault,
 	"block":  blockDefault,
+	"jobio":  jobioDefault,
 }
 
 // Default returns a fresh copy of the default table.

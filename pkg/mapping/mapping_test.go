@@ -35,6 +35,11 @@ var defaultTable = []mapping.Entry{
 	{Source: "block", Counter: "reads", Metric: metric.ReadOps},
 	{Source: "block", Counter: "writes", Metric: metric.WriteOps},
 	{Source: "block", Counter: "flushes", Metric: metric.Syncs},
+	// Per-job I/O: /proc/<pid>/io fields from Documentation/filesystems/proc.rst.
+	{Source: "jobio", Counter: "proc.rchar", Metric: metric.ReadBytes},
+	{Source: "jobio", Counter: "proc.wchar", Metric: metric.WriteBytes},
+	{Source: "jobio", Counter: "proc.syscr", Metric: metric.ReadOps},
+	{Source: "jobio", Counter: "proc.syscw", Metric: metric.WriteOps},
 	{Source: "lustre", Counter: "read_bytes.sum", Metric: metric.ReadBytes},
 	{Source: "lustre", Counter: "write_bytes.sum", Metric: metric.WriteBytes},
 	{Source: "lustre", Counter: "read_bytes", Metric: metric.ReadOps},
@@ -213,7 +218,7 @@ func TestLoad(t *testing.T) {
 			tb["lustre"]["mmap"] = metric.MetaUpdates
 			delete(tb["lustre"], "ioctl")
 		})},
-		{name: "a source kind the base does not know", input: "new_source.yaml", wantErr: `mapping: unknown source kind "gpfs" (known: block, lustre, nfs)`},
+		{name: "a source kind the base does not know", input: "new_source.yaml", wantErr: `mapping: unknown source kind "gpfs" (known: block, jobio, lustre, nfs)`},
 		{name: "no overrides", input: "empty.yaml", want: mapping.Default()},
 		{name: "unknown metric names source and counter", input: "unknown_metric.yaml", wantErr: `mapping: lustre.open: unknown metric "open_ops"`},
 		{name: "a counter's value must be a metric name", input: "bad_shape.yaml", wantErr: "mapping:"},

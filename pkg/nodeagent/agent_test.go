@@ -6,6 +6,8 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"strconv"
+	"strings"
 	"sync"
 	"testing"
 	"time"
@@ -19,6 +21,7 @@ import (
 	"sluice/pkg/metric"
 	"sluice/pkg/nodeagent"
 	"sluice/pkg/source"
+	"sluice/pkg/source/jobio"
 	"sluice/pkg/source/lustre"
 	"sluice/pkg/wire"
 )
@@ -255,4 +258,64 @@ func TestNextTick(t *testing.T) {
 			assert.Equal(t, tt.want, nodeagent.NextTick(tt.now, 5*time.Second, tt.phase))
 		})
 	}
+}
+
+// TestSharedNodeSplitsPerJob runs the agent over a node shared by two jobs:
+// a Lustre mount for the node and the jobio source over a cgroup v2 and
+// procfs tree laid out as the kernel's cgroup-v2.rst and proc.rst describe
+// (testdata/jobio/shared_node).
+func TestSharedNodeSplitsPerJob(t *testing.T) {
+	tree := t.TempDir()
+	require.NoError(t, os.CopyFS(tree, os.DirFS("../../testdata/jobio/shared_node")))
+	lroot, state := t.TempDir(), t.TempDir()
+	clk := &clock{t: t0}
+	writeStats(t, lroot, "scratch-ffff8f0000001000", map[string][2]uint64{"open": {100, 0}, "read_bytes": {10, 10 << 20}})
+	jobs, err := jobio.NewSource(jobio.Options{CgroupRoot: filepath.Join(tree, "cgroup"), ProcRoot: filepath.Join(tree, "proc")}, clk.now)
+	require.NoError(t, err)
+	a, err := nodeagent.New(nodeagent.Config{
+		Node: "bw007", StateDir: state, Now: clk.now, JobsFrom: nodeagent.JobsFromCgroups,
+		Sources: []source.Source{lustre.NewSource(lroot, clk.now), jobs},
+	})
+	require.NoError(t, err)
+	_, _, err = a.Collect(context.Background())
+	require.NoError(t, err)
+
+	clk.add(5 * time.Second)
+	writeStats(t, lroot, "scratch-ffff8f0000001000", map[string][2]uint64{"open": {160, 0}, "read_bytes": {20, 30 << 20}})
+	io2110 := filepath.Join(tree, "proc", "2110", "io")
+	bumpProcIO(t, io2110, map[string]uint64{"rchar": 4096, "syscr": 4})
+	s, ok, err := a.Collect(context.Background())
+	require.NoError(t, err)
+	require.True(t, ok)
+	assert.Equal(t, []string{"81234", "81240"}, s.Jobs)
+	require.Len(t, s.PerJob, 2)
+	byJob := map[string]metric.Values{}
+	for _, pj := range s.PerJob {
+		byJob[pj.Job] = pj.Values
+	}
+	// The node's Lustre deltas: 60 opens, 10 reads of 20 MiB.
+	assert.Equal(t, uint64(60), s.Values[metric.Opens])
+	assert.Equal(t, uint64(20<<20), s.Values[metric.ReadBytes])
+	// Job 81234's rank 2110 read 4096 bytes in 4 calls; the metrics jobio
+	// measures come from it, the rest (opens) from the node.
+	assert.Equal(t, uint64(4096), byJob["81234"][metric.ReadBytes])
+	assert.Equal(t, uint64(4), byJob["81234"][metric.ReadOps])
+	assert.Equal(t, uint64(60), byJob["81234"][metric.Opens])
+	assert.Zero(t, byJob["81240"][metric.ReadBytes], "81240 did no I/O of its own")
+	assert.Equal(t, uint64(60), byJob["81240"][metric.Opens])
+}
+
+// bumpProcIO adds to fields of a /proc/<pid>/io file, rewriting it in place.
+func bumpProcIO(t *testing.T, path string, add map[string]uint64) {
+	t.Helper()
+	data, err := os.ReadFile(path)
+	require.NoError(t, err)
+	var out []string
+	for _, line := range strings.Split(strings.TrimRight(string(data), "\n"), "\n") {
+		k, v, _ := strings.Cut(line, ": ")
+		n, err := strconv.ParseUint(v, 10, 64)
+		require.NoError(t, err, line)
+		out = append(out, fmt.Sprintf("%s: %d", k, n+add[k]))
+	}
+	require.NoError(t, os.WriteFile(path, []byte(strings.Join(out, "\n")+"\n"), 0o644))
 }

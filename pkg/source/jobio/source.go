@@ -1,0 +1,486 @@
+package jobio
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io/fs"
+	"os"
+	"regexp"
+	"slices"
+	"strconv"
+	"syscall"
+	"time"
+
+	"sluice/pkg/source"
+)
+
+// Defaults for the zero fields of Options.
+const (
+	// DefaultCgroupRoot is where cgroup v2 is mounted on systemd hosts.
+	DefaultCgroupRoot = "/sys/fs/cgroup"
+	// DefaultProcRoot is where procfs is mounted.
+	DefaultProcRoot = "/proc"
+	// DefaultJobPattern matches a path component "job_<id>" or "job<id>"
+	// with a numeric id, the usual layout of batch schedulers' job cgroups,
+	// e.g. "system.slice/<scheduler>.scope/job_81234/step_0".
+	DefaultJobPattern = `(?:^|/)job_?(\d+)(?:/|$)`
+	// DefaultMaxDepth is how many directory levels below the cgroup root a
+	// job directory can be: "system.slice/<scheduler>.scope/job_<id>" is at
+	// depth 3.
+	DefaultMaxDepth = 6
+	// DefaultRescanEvery is how many reads reuse one walk of the cgroup
+	// tree: at the agent's default 5 s interval a new job is found within a
+	// minute.
+	DefaultRescanEvery = 12
+)
+
+// Options configure a Source. The zero value reads the live system with
+// the defaults.
+type Options struct {
+	// CgroupRoot is the cgroup v2 mount (on a hybrid cgroup v1 system,
+	// /sys/fs/cgroup/unified). Empty means DefaultCgroupRoot.
+	CgroupRoot string
+	// ProcRoot is the procfs mount. Empty means DefaultProcRoot.
+	ProcRoot string
+	// JobPattern is a regular expression applied to each cgroup directory's
+	// path relative to CgroupRoot ("a/b/c", no leading slash); its first
+	// capture group is the job id. Empty means DefaultJobPattern, which
+	// matches the usual "job_<id>" layouts such as
+	// "system.slice/<scheduler>.scope/job_81234/step_0". A directory whose
+	// match captures an empty id is not a job.
+	JobPattern string
+	// MaxDepth is how many levels below CgroupRoot the walk looks for job
+	// directories, and how many levels below a job directory it reads the
+	// job's sub-cgroups. Zero means DefaultMaxDepth; it must not be negative.
+	MaxDepth int
+	// RescanEvery is how many reads reuse one walk of the cgroup tree (1:
+	// walk on every read). A known job's own sub-cgroups are listed on every
+	// read regardless. Zero means DefaultRescanEvery; it must not be
+	// negative.
+	RescanEvery int
+}
+
+// Source attributes I/O to the batch jobs running on a node: it finds each
+// job's cgroup v2 directory, sums /proc/<pid>/io over the job's processes
+// and reads the job cgroup's io.stat, and reports per-job totals that never
+// go down (see the package documentation for the rules).
+//
+// A Source keeps one open /proc/<pid>/io descriptor per process and reuses
+// read buffers, so it must be used by one goroutine at a time. Close
+// releases the descriptors.
+type Source struct {
+	cgroupRoot  string
+	procRoot    string
+	re          *regexp.Regexp
+	maxDepth    int
+	rescanEvery int
+	now         func() time.Time
+
+	jobs      map[string]*job
+	ids       []string // keys of jobs, sorted; rebuilt when jobs change
+	found     []string // job ids at the last walk, sorted
+	walked    bool
+	sinceWalk int
+	gen       uint64 // read generation
+
+	buf  []byte // file contents (io, stat, cgroup.procs, io.stat, uptime)
+	dbuf []byte // getdents64 records
+	pids []int
+}
+
+// NewSource returns a Source with opts, zero fields meaning the defaults.
+// now stamps each reading; nil means time.Now. It fails if JobPattern does
+// not compile or has no capture group, or MaxDepth or RescanEvery is
+// negative. It touches no files: a missing cgroup root shows at Read.
+func NewSource(opts Options, now func() time.Time) (*Source, error) {
+	if opts.CgroupRoot == "" {
+		opts.CgroupRoot = DefaultCgroupRoot
+	}
+	if opts.ProcRoot == "" {
+		opts.ProcRoot = DefaultProcRoot
+	}
+	if opts.JobPattern == "" {
+		opts.JobPattern = DefaultJobPattern
+	}
+	if opts.MaxDepth < 0 {
+		return nil, fmt.Errorf("jobio: MaxDepth %d is negative", opts.MaxDepth)
+	}
+	if opts.MaxDepth == 0 {
+		opts.MaxDepth = DefaultMaxDepth
+	}
+	if opts.RescanEvery < 0 {
+		return nil, fmt.Errorf("jobio: RescanEvery %d is negative", opts.RescanEvery)
+	}
+	if opts.RescanEvery == 0 {
+		opts.RescanEvery = DefaultRescanEvery
+	}
+	re, err := regexp.Compile(opts.JobPattern)
+	if err != nil {
+		return nil, fmt.Errorf("jobio: JobPattern: %w", err)
+	}
+	if re.NumSubexp() < 1 {
+		return nil, fmt.Errorf("jobio: JobPattern %q has no capture group for the job id", opts.JobPattern)
+	}
+	if now == nil {
+		now = time.Now
+	}
+	return &Source{
+		cgroupRoot:  opts.CgroupRoot,
+		procRoot:    opts.ProcRoot,
+		re:          re,
+		maxDepth:    opts.MaxDepth,
+		rescanEvery: opts.RescanEvery,
+		now:         now,
+		jobs:        make(map[string]*job),
+		buf:         make([]byte, 1024),
+		dbuf:        make([]byte, 8192),
+	}, nil
+}
+
+// Name returns "jobio", the prefix of every reading's key.
+func (s *Source) Name() string { return "jobio" }
+
+// Jobs returns the ids of the jobs found at the last walk of the cgroup
+// tree, sorted, for the agent to reconcile with the scheduler hooks'
+// records. It is nil before the first Read.
+func (s *Source) Jobs() []string { return slices.Clone(s.found) }
+
+// Close closes every kept /proc/<pid>/io descriptor and forgets all jobs;
+// a later Read starts afresh, as a new Source would.
+func (s *Source) Close() error {
+	for _, j := range s.jobs {
+		j.close()
+	}
+	clear(s.jobs)
+	s.ids, s.found, s.walked = nil, nil, false
+	return nil
+}
+
+// Read returns one reading per job, in job id order, with the job's
+// monotonic totals under the names of CounterNames. Key is
+// "jobio:<id>", Job is the id and Epoch is empty: the totals never go down,
+// so the agent never sees a reset.
+//
+// The cgroup tree is walked on the first read, then every RescanEvery
+// reads, and at the read after a job's cgroup was found gone; such a job is
+// reported once more with its final totals and then dropped. A missing cgroup root gives an error wrapping
+// source.ErrNoData; a node without job cgroups gives no readings and no
+// error. Other errors (a walk error, a process whose files cannot be read,
+// a missing /proc/uptime) are joined and returned with the readings.
+func (s *Source) Read(ctx context.Context) ([]source.Reading, error) {
+	var errs []error
+	if !s.walked || s.sinceWalk >= s.rescanEvery {
+		if err := s.walk(); err != nil {
+			if errors.Is(err, source.ErrNoData) {
+				return nil, err
+			}
+			errs = append(errs, err)
+		}
+	}
+	s.sinceWalk++
+	s.gen++
+
+	mark, markOK := s.readUptime()
+	if !markOK && len(s.ids) > 0 {
+		errs = append(errs, fmt.Errorf("jobio: reading %s/uptime: processes first seen now only set a base", s.procRoot))
+	}
+	readings := make([]source.Reading, 0, len(s.ids))
+	dropped := false
+	for _, id := range s.ids {
+		if err := ctx.Err(); err != nil {
+			errs = append(errs, fmt.Errorf("jobio: reading jobs: %w", err))
+			break
+		}
+		j := s.jobs[id]
+		s.pids = s.pids[:0]
+		j.errs = jobErrors{}
+		present := !j.lost && s.listJob(j)
+		if !present && j.gone {
+			j.close() // reported once more at the previous read
+			delete(s.jobs, id)
+			dropped = true
+			continue
+		}
+		j.gone = !present
+		if j.gone && !j.lost {
+			s.sinceWalk = s.rescanEvery // a job ended: walk again next time
+		}
+		s.account(j, mark, markOK)
+		if present {
+			s.readIOStat(j)
+		} else {
+			j.ioHave = false
+		}
+		readings = append(readings, j.reading(s.now()))
+		if err := j.errs.err(j.id); err != nil {
+			errs = append(errs, err)
+		}
+	}
+	if dropped {
+		s.sortIDs()
+	}
+	return readings, errors.Join(errs...)
+}
+
+// readUptime returns /proc/uptime in clock ticks: the mark that processes
+// first seen at the next read are compared with.
+func (s *Source) readUptime() (uint64, bool) {
+	b, err := readFile(s.procRoot+"/uptime", s.buf[:0])
+	s.keepBuf(b)
+	if err != nil {
+		return 0, false
+	}
+	return parseUptime(b)
+}
+
+// keepBuf keeps a buffer that readFile grew, for the next read.
+func (s *Source) keepBuf(b []byte) {
+	if cap(b) > cap(s.buf) {
+		s.buf = b[:cap(b)]
+	}
+}
+
+// walk looks for job directories under the cgroup root, breadth first to
+// MaxDepth levels, and updates s.jobs: a new job id gets a new job, a known
+// one keeps its state, and one not found any more is marked lost (reported
+// once more, then dropped).
+func (s *Source) walk() error {
+	fi, err := os.Stat(s.cgroupRoot)
+	if err != nil {
+		s.dropAll()
+		if errors.Is(err, fs.ErrNotExist) {
+			return fmt.Errorf("jobio: cgroup root %s: %w", s.cgroupRoot, source.ErrNoData)
+		}
+		return fmt.Errorf("jobio: cgroup root: %w", err)
+	}
+	if !fi.IsDir() {
+		s.dropAll()
+		return fmt.Errorf("jobio: cgroup root %s is not a directory", s.cgroupRoot)
+	}
+	type dir struct {
+		rel   string
+		depth int
+	}
+	var errs []error
+	found := make(map[string]string)
+	queue := []dir{{"", 0}}
+	for len(queue) > 0 {
+		d := queue[0]
+		queue = queue[1:]
+		path := s.cgroupRoot
+		if d.rel != "" {
+			path += "/" + d.rel
+		}
+		entries, err := os.ReadDir(path)
+		if err != nil {
+			if !vanished(err) {
+				errs = append(errs, fmt.Errorf("jobio: walking %s: %w", path, err))
+			}
+			continue
+		}
+		for _, e := range entries {
+			if !e.IsDir() {
+				continue
+			}
+			rel := e.Name()
+			if d.rel != "" {
+				rel = d.rel + "/" + rel
+			}
+			if m := s.re.FindStringSubmatch(rel); m != nil {
+				// The top-most match of an id wins: breadth first, a
+				// shallower directory is seen before any deeper one, and the
+				// walk does not descend into a job.
+				if id := m[1]; id != "" && found[id] == "" {
+					found[id] = rel
+				}
+				continue
+			}
+			if d.depth+1 < s.maxDepth {
+				queue = append(queue, dir{rel, d.depth + 1})
+			}
+		}
+	}
+	s.walked, s.sinceWalk = true, 0
+	s.found = s.found[:0]
+	for id, rel := range found {
+		s.found = append(s.found, id)
+		j := s.jobs[id]
+		if j == nil {
+			j = &job{id: id, key: "jobio:" + id, procs: make(map[int]*proc)}
+			s.jobs[id] = j
+		}
+		j.lost = false
+		if j.rel != rel {
+			j.setDir(rel, s.cgroupRoot+"/"+rel)
+		}
+	}
+	slices.Sort(s.found)
+	for id, j := range s.jobs {
+		// A job not found is lost, unless part of the tree could not be
+		// read: then each job's own listing decides.
+		if found[id] == "" && len(errs) == 0 {
+			j.lost = true
+		}
+	}
+	s.sortIDs()
+	return errors.Join(errs...)
+}
+
+// dropAll forgets every job, as when the cgroup root has gone.
+func (s *Source) dropAll() {
+	for _, j := range s.jobs {
+		j.close()
+	}
+	clear(s.jobs)
+	s.ids, s.found, s.walked = s.ids[:0], nil, false
+}
+
+// sortIDs rebuilds s.ids from s.jobs.
+func (s *Source) sortIDs() {
+	s.ids = s.ids[:0]
+	for id := range s.jobs {
+		s.ids = append(s.ids, id)
+	}
+	slices.Sort(s.ids)
+}
+
+// listJob reads the job's cgroup subtree into s.pids: the pids in
+// cgroup.procs of the job directory and of every directory below it, to
+// MaxDepth levels, sorted and without duplicates. It reports false when the
+// job directory has gone.
+func (s *Source) listJob(j *job) bool {
+	s.pids = s.pids[:0]
+	if !s.listDir(j, j.root, 0) {
+		return false
+	}
+	slices.Sort(s.pids)
+	s.pids = slices.Compact(s.pids)
+	return true
+}
+
+// listDir lists one directory of a job's subtree: its subdirectories, whose
+// nodes are created or dropped to match, then its cgroup.procs, then the
+// subdirectories in turn. It reports false when the directory has gone.
+func (s *Source) listDir(j *job, n *dirNode, depth int) bool {
+	n.seen = s.gen
+	err := eachSubdir(n.path, s.dbuf, func(name []byte) {
+		for _, c := range n.children {
+			if c.name == string(name) {
+				c.seen = s.gen
+				return
+			}
+		}
+		n.children = append(n.children, newDirNode(n.path, string(name), s.gen))
+	})
+	if err != nil {
+		if vanished(err) {
+			return false
+		}
+		j.errs.add(err)
+	}
+	n.children = slices.DeleteFunc(n.children, func(c *dirNode) bool { return c.seen != s.gen })
+
+	b, err := readFile(n.procs, s.buf[:0])
+	s.keepBuf(b)
+	switch {
+	case err == nil:
+		eachLineBytes(b, func(line []byte) {
+			line = trimSpace(line)
+			if len(line) == 0 {
+				return
+			}
+			if pid, ok := parseUint(line); ok && pid > 0 && pid <= 1<<22 {
+				s.pids = append(s.pids, int(pid))
+				return
+			}
+			j.errs.malformed++
+		}, func() { j.errs.malformed++ })
+	case vanished(err) || errors.Is(err, syscall.EOPNOTSUPP):
+		// Removed meanwhile, or a threaded cgroup, whose processes are
+		// listed by its threaded domain (cgroup-v2.rst, "Threads").
+	default:
+		j.errs.add(err)
+	}
+
+	if depth < s.maxDepth {
+		n.children = slices.DeleteFunc(n.children, func(c *dirNode) bool { return !s.listDir(j, c, depth+1) })
+	}
+	return true
+}
+
+// readIOStat adds the growth of the job cgroup's io.stat, summed over
+// devices, to the job's totals. The first read of a cgroup, a missing file
+// and a sum that went down (the cgroup was recreated) set a new base.
+func (s *Source) readIOStat(j *job) {
+	b, err := readFile(j.ioStat, s.buf[:0])
+	s.keepBuf(b)
+	if err != nil {
+		// No io controller in the job's parent's cgroup.subtree_control, or
+		// the cgroup went away meanwhile.
+		if !vanished(err) {
+			j.errs.add(err)
+		}
+		j.ioHave = false
+		return
+	}
+	sum, malformed := sumIOStatBytes(b)
+	j.errs.malformed += malformed
+	if j.ioHave {
+		var d [nIOStat]uint64
+		down := false
+		for i := range sum {
+			if sum[i] < j.ioLast[i] {
+				down = true
+				break
+			}
+			d[i] = sum[i] - j.ioLast[i]
+		}
+		if !down {
+			for i := range d {
+				j.totals[nProcIO+i] += d[i]
+			}
+		}
+	}
+	j.ioLast, j.ioHave = sum, true
+}
+
+// vanished reports whether err means a file or directory went away while
+// it was read: a process that exited (ESRCH from procfs) or a removed
+// cgroup (ENOENT, or ENODEV from a removed kernfs node).
+func vanished(err error) bool {
+	return errors.Is(err, fs.ErrNotExist) || errors.Is(err, syscall.ESRCH) ||
+		errors.Is(err, syscall.ENODEV) || errors.Is(err, syscall.ENOTDIR)
+}
+
+// jobErrors collects one job's unexpected errors during one read.
+type jobErrors struct {
+	first     error
+	n         int
+	malformed int
+}
+
+// add records err.
+func (e *jobErrors) add(err error) {
+	if e.first == nil {
+		e.first = err
+	}
+	e.n++
+}
+
+// err returns the job's errors as one error, or nil.
+func (e *jobErrors) err(id string) error {
+	switch e.n {
+	case 0:
+		return nil
+	case 1:
+		return fmt.Errorf("jobio: job %s: %w", id, e.first)
+	}
+	return fmt.Errorf("jobio: job %s: %d errors, first: %w", id, e.n, e.first)
+}
+
+// pidPath returns "<procRoot>/<pid>/<file>".
+func (s *Source) pidPath(pid int, file string) string {
+	var b [20]byte
+	return s.procRoot + "/" + string(strconv.AppendInt(b[:0], int64(pid), 10)) + "/" + file
+}
