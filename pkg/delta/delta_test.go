@@ -6,80 +6,87 @@ import (
 	"github.com/stretchr/testify/assert"
 
 	"sluice/pkg/delta"
-	"sluice/pkg/source"
+	"sluice/pkg/metric"
 )
 
-func reading(key, epoch string, counters map[string]uint64) source.Reading {
-	return source.Reading{Key: key, Epoch: epoch, Counters: counters}
+func inst(key, epoch string, pairs ...any) delta.Instance {
+	in := delta.Instance{Key: key, Epoch: epoch}
+	for i := 0; i < len(pairs); i += 2 {
+		in.Values[pairs[i].(metric.ID)] = uint64(pairs[i+1].(int))
+	}
+	return in
 }
+
+func vals(pairs ...any) metric.Values { return inst("", "", pairs...).Values }
 
 func TestUpdate(t *testing.T) {
 	// Reset semantics follow the counter table in the project's format
 	// notes: writing to a Lustre stats file clears every counter
 	// (lprocfs_stats_seq_write in lustre/obdclass/lprocfs_status.c), and
 	// start_time changes with it from 2.15.2.
+	o, g := metric.Opens, metric.StatOps
 	tests := []struct {
 		name      string
-		steps     [][]source.Reading
+		steps     [][]delta.Instance
 		want      []delta.Delta // for the last step
 		wantKnown int
 	}{
 		{
 			name:      "first reading only sets the base",
-			steps:     [][]source.Reading{{reading("lustre:a", "", map[string]uint64{"open": 1e9})}},
+			steps:     [][]delta.Instance{{inst("lustre:a", "", o, 1000000000)}},
 			want:      []delta.Delta{},
 			wantKnown: 1,
 		},
 		{
 			name: "plain increase",
-			steps: [][]source.Reading{
-				{reading("lustre:a", "1.0", map[string]uint64{"open": 10, "close": 4})},
-				{reading("lustre:a", "1.0", map[string]uint64{"open": 15, "close": 4})},
+			steps: [][]delta.Instance{
+				{inst("lustre:a", "1.0", o, 10, g, 4)},
+				{inst("lustre:a", "1.0", o, 15, g, 4)},
 			},
-			want:      []delta.Delta{{Key: "lustre:a", Counters: map[string]uint64{"open": 5, "close": 0}}},
+			want:      []delta.Delta{{Key: "lustre:a", Values: vals(o, 5)}},
 			wantKnown: 1,
 		},
 		{
-			name: "a counter that goes down resets the whole instance",
-			steps: [][]source.Reading{
-				{reading("lustre:a", "", map[string]uint64{"open": 100, "getattr": 7})},
-				{reading("lustre:a", "", map[string]uint64{"open": 3, "getattr": 9})},
+			name: "a metric that goes down resets the whole instance",
+			steps: [][]delta.Instance{
+				{inst("lustre:a", "", o, 100, g, 7)},
+				{inst("lustre:a", "", o, 3, g, 9)},
 			},
-			want:      []delta.Delta{{Key: "lustre:a", Counters: map[string]uint64{"open": 3, "getattr": 9}, Reset: true}},
+			want:      []delta.Delta{{Key: "lustre:a", Values: vals(o, 3, g, 9), Reset: true}},
 			wantKnown: 1,
 		},
 		{
 			name: "a changed epoch is a reset even when values grew",
-			steps: [][]source.Reading{
-				{reading("lustre:a", "100.0", map[string]uint64{"open": 10})},
-				{reading("lustre:a", "200.0", map[string]uint64{"open": 12})},
+			steps: [][]delta.Instance{
+				{inst("lustre:a", "100.0", o, 10)},
+				{inst("lustre:a", "200.0", o, 12)},
 			},
-			want:      []delta.Delta{{Key: "lustre:a", Counters: map[string]uint64{"open": 12}, Reset: true}},
+			want:      []delta.Delta{{Key: "lustre:a", Values: vals(o, 12), Reset: true}},
 			wantKnown: 1,
 		},
 		{
-			name: "a vanished counter line means zero, so it is a reset",
-			steps: [][]source.Reading{
-				{reading("lustre:a", "", map[string]uint64{"open": 10, "unlink": 5})},
-				{reading("lustre:a", "", map[string]uint64{"open": 11})},
+			name: "a metric falling to zero (its counter lines vanished) is a reset",
+			steps: [][]delta.Instance{
+				{inst("lustre:a", "", o, 10, metric.Removes, 5)},
+				{inst("lustre:a", "", o, 11)},
 			},
-			want:      []delta.Delta{{Key: "lustre:a", Counters: map[string]uint64{"open": 11}, Reset: true}},
+			want:      []delta.Delta{{Key: "lustre:a", Values: vals(o, 11), Reset: true}},
 			wantKnown: 1,
 		},
 		{
-			name: "a counter appearing from zero counts in full",
-			steps: [][]source.Reading{
-				{reading("lustre:a", "", map[string]uint64{"open": 10})},
-				{reading("lustre:a", "", map[string]uint64{"open": 10, "fsync": 4})},
+			name: "a metric appearing from zero counts in full",
+			steps: [][]delta.Instance{
+				{inst("lustre:a", "", o, 10)},
+				{inst("lustre:a", "", o, 10, metric.Syncs, 4)},
 			},
-			want:      []delta.Delta{{Key: "lustre:a", Counters: map[string]uint64{"open": 0, "fsync": 4}}},
+			want:      []delta.Delta{{Key: "lustre:a", Values: vals(metric.Syncs, 4)}},
 			wantKnown: 1,
 		},
 		{
 			name: "remount: a new instance sets a base, the old one is forgotten",
-			steps: [][]source.Reading{
-				{reading("lustre:scratch-ffff0001", "", map[string]uint64{"open": 500})},
-				{reading("lustre:scratch-ffff0002", "", map[string]uint64{"open": 20})},
+			steps: [][]delta.Instance{
+				{inst("lustre:scratch-ffff0001", "", o, 500)},
+				{inst("lustre:scratch-ffff0002", "", o, 20)},
 			},
 			want:      []delta.Delta{},
 			wantKnown: 1,
@@ -100,24 +107,26 @@ func TestUpdate(t *testing.T) {
 
 func TestRemountedInstanceComingBackStartsAfresh(t *testing.T) {
 	tr := delta.NewTracker()
-	tr.Update([]source.Reading{reading("lustre:a", "", map[string]uint64{"open": 5})})
+	tr.Update([]delta.Instance{inst("lustre:a", "", metric.Opens, 5)})
 	tr.Update(nil) // unmounted
-	got := tr.Update([]source.Reading{reading("lustre:a", "", map[string]uint64{"open": 900})})
+	got := tr.Update([]delta.Instance{inst("lustre:a", "", metric.Opens, 900)})
 	assert.Empty(t, got, "no spike from a base that was forgotten")
 }
 
-func FuzzNeverNegative(f *testing.F) {
+func FuzzNeverASpike(f *testing.F) {
 	f.Add(uint64(10), uint64(3), uint64(7), "e1", "e1")
 	f.Add(uint64(0), uint64(1<<63), uint64(1), "", "x")
 	f.Fuzz(func(t *testing.T, a, b, c uint64, e1, e2 string) {
 		tr := delta.NewTracker()
-		tr.Update([]source.Reading{reading("k", e1, map[string]uint64{"x": a, "y": b})})
-		ds := tr.Update([]source.Reading{reading("k", e2, map[string]uint64{"x": b, "y": c})})
-		for _, d := range ds {
-			for name, v := range d.Counters {
-				now := map[string]uint64{"x": b, "y": c}[name]
-				if v > now {
-					t.Fatalf("delta %s=%d exceeds the current value %d: a spike", name, v, now)
+		first := delta.Instance{Key: "k", Epoch: e1}
+		first.Values[metric.Opens], first.Values[metric.Creates] = a, b
+		second := delta.Instance{Key: "k", Epoch: e2}
+		second.Values[metric.Opens], second.Values[metric.Creates] = b, c
+		tr.Update([]delta.Instance{first})
+		for _, d := range tr.Update([]delta.Instance{second}) {
+			for i, v := range d.Values {
+				if v > second.Values[i] {
+					t.Fatalf("delta %s=%d exceeds the current value %d: a spike", metric.ID(i), v, second.Values[i])
 				}
 			}
 		}

@@ -222,7 +222,8 @@ func (t Table) clone() Table {
 	return c
 }
 
-// Apply adds the mapped counters of one source kind's deltas into v.
+// Apply adds the mapped counters of one source kind into v: the raw
+// counters of one instance become its sums per metric.
 func (t Table) Apply(sourceKind string, counters map[string]uint64, v *metric.Values) {
 	m := t[sourceKind]
 	for name, x := range counters {

@@ -95,6 +95,7 @@ type Agent struct {
 	queue  *queue
 	buf    []byte
 	recs   recordCache
+	insts  []delta.Instance // reused by Collect
 	// disagreed holds the jobs already logged as known to only one of
 	// hooks and cgroups.
 	disagreed map[string]bool
@@ -252,18 +253,23 @@ func (a *Agent) Collect(ctx context.Context) (s wire.Sample, ok bool, err error)
 				errs = append(errs, rerr)
 			}
 		}
+		insts := a.insts[:0]
 		jobOf := map[string]string{}
 		for _, r := range readings {
+			in := delta.Instance{Key: r.Key, Epoch: r.Epoch}
+			a.cfg.Mapping.Apply(src.Name(), r.Counters, &in.Values)
+			insts = append(insts, in)
 			if r.Job != "" {
 				jobOf[r.Key] = r.Job
 				split.sources = append(split.sources, src.Name())
 			}
 		}
-		for _, d := range a.deltas[src.Name()].Update(readings) {
+		a.insts = insts
+		for _, d := range a.deltas[src.Name()].Update(insts) {
 			if d.Reset {
 				a.log.Debug("counter reset", "source", src.Name(), "instance", d.Key)
 			}
-			a.cfg.Mapping.Apply(src.Name(), d.Counters, split.target(jobOf[d.Key], &s.Values))
+			split.target(jobOf[d.Key], &s.Values).Add(d.Values)
 		}
 	}
 	start := a.last

@@ -1,0 +1,138 @@
+package nodeagent_test
+
+import (
+	"context"
+	"fmt"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+
+	"github.com/stretchr/testify/require"
+
+	"sluice/pkg/jobstate"
+	"sluice/pkg/nodeagent"
+	"sluice/pkg/source"
+	"sluice/pkg/source/diskstats"
+	"sluice/pkg/source/jobio"
+	"sluice/pkg/source/lustre"
+	"sluice/pkg/source/nfs"
+)
+
+// node is a whole node's counter files: 4 Lustre mounts, 2 NFS mounts,
+// 8 block devices and 2 jobs of 20 processes each, plus the list of every
+// file a sample reads, for the bare-cost comparison.
+type node struct {
+	lustre, proc, cgroup, state string
+	files                       []string
+}
+
+func buildNode(b *testing.B) node {
+	n := node{lustre: b.TempDir(), proc: b.TempDir(), cgroup: b.TempDir(), state: b.TempDir()}
+	stats, err := os.ReadFile("../../testdata/lustre/v2_16_header/stats")
+	require.NoError(b, err)
+	for i := range 4 {
+		p := filepath.Join(n.lustre, fmt.Sprintf("fs%d-ffff9a0c1234%04x", i, i), "stats")
+		n.write(b, p, stats)
+	}
+	// Two NFS mounts (v3 and v4.2) among three others, as in the NFS
+	// source's own benchmark fixture.
+	ms, err := os.ReadFile("../../testdata/nfs/remount_1_before/mountstats")
+	require.NoError(b, err)
+	n.write(b, filepath.Join(n.proc, "self", "mountstats"), ms)
+	// Eight whole disks in the 20-field layout of iostats.rst.
+	var disk strings.Builder
+	for i := range 8 {
+		fmt.Fprintf(&disk, "%4d %7d sd%c %d %d %d %d %d %d %d %d %d %d %d %d %d %d %d %d %d\n",
+			8, i*16, 'a'+i, 1000+i, 10, 80000, 500, 2000, 20, 160000, 900, 0, 1300, 1400, 0, 0, 0, 0, 40, 30)
+	}
+	n.write(b, filepath.Join(n.proc, "diskstats"), []byte(disk.String()))
+	// The jobs' processes started before boot+86400 s (stat field 22 is in
+	// clock ticks since boot; /proc/uptime says where boot is).
+	n.write(b, filepath.Join(n.proc, "uptime"), []byte("90000.00 170000.00\n"))
+	// Two jobs of 20 processes, one step each, as a cgroup v2 tree.
+	for j, job := range []string{"81234", "81240"} {
+		var pids []string
+		for p := range 20 {
+			pid := 3000 + j*100 + p
+			pids = append(pids, fmt.Sprint(pid))
+			n.write(b, filepath.Join(n.proc, fmt.Sprint(pid), "io"), []byte(fmt.Sprintf(
+				"rchar: %d\nwchar: %d\nsyscr: %d\nsyscw: %d\nread_bytes: %d\nwrite_bytes: %d\ncancelled_write_bytes: 0\n",
+				1<<30+pid, 1<<29+pid, 1<<18, 1<<17, 1<<30, 1<<29)))
+			n.write(b, filepath.Join(n.proc, fmt.Sprint(pid), "stat"), []byte(fmt.Sprintf(
+				"%d (rank) S %d %d %d 0 -1 4194560 310 0 0 0 12 3 0 0 20 0 1 0 8610020 12984320 812\n", pid, 3000+j*100, pid, pid)))
+		}
+		step := filepath.Join(n.cgroup, "system.slice", "sched.scope", "job_"+job, "step_0")
+		n.write(b, filepath.Join(step, "cgroup.procs"), []byte(strings.Join(pids, "\n")+"\n"))
+		n.write(b, filepath.Join(filepath.Dir(step), "cgroup.procs"), nil)
+		n.write(b, filepath.Join(filepath.Dir(step), "io.stat"), []byte("8:0 rbytes=1024 wbytes=2048 rios=1 wios=2 dbytes=0 dios=0\n"))
+		dir, err := jobstate.Open(nodeagent.JobsDir(n.state))
+		require.NoError(b, err)
+		require.NoError(b, dir.Put(jobstate.Record{ID: job, Start: t0, StartSent: true}))
+	}
+	old := time.Now().Add(-time.Minute)
+	require.NoError(b, os.Chtimes(nodeagent.JobsDir(n.state), old, old))
+	return n
+}
+
+func (n *node) write(b *testing.B, path string, data []byte) {
+	require.NoError(b, os.MkdirAll(filepath.Dir(path), 0o755))
+	require.NoError(b, os.WriteFile(path, data, 0o644))
+	if !strings.HasSuffix(path, "/stat") { // read once per process, not per sample
+		n.files = append(n.files, path)
+	}
+}
+
+// BenchmarkNodeAllSources is one interval of the agent on a full node
+// (every source, deltas, mapping, per-job split), beside the bare cost of
+// reading the same files with pread on descriptors opened beforehand. The
+// README quotes both and their ratio.
+func BenchmarkNodeAllSources(b *testing.B) {
+	n := buildNode(b)
+	b.Run("agent", func(b *testing.B) {
+		// A live Lustre stats file has a new snapshot_time at every read;
+		// these fixtures do not change, so the Lustre source's clock is held
+		// still (see BenchmarkCollectOneMount).
+		frozen := func() time.Time { return t0 }
+		block, err := diskstats.NewSource(n.proc, diskstats.Options{}, nil)
+		require.NoError(b, err)
+		jobs, err := jobio.NewSource(jobio.Options{CgroupRoot: n.cgroup, ProcRoot: n.proc}, nil)
+		require.NoError(b, err)
+		a, err := nodeagent.New(nodeagent.Config{
+			Node: "bw001", StateDir: n.state,
+			Sources: []source.Source{lustre.NewSource(n.lustre, frozen), nfs.NewSource(n.proc, nil), block, jobs},
+		})
+		require.NoError(b, err)
+		ctx := context.Background()
+		_, _, err = a.Collect(ctx)
+		require.NoError(b, err)
+		b.ReportAllocs()
+		b.ResetTimer()
+		for b.Loop() {
+			s, _, err := a.Collect(ctx)
+			if err != nil || len(s.PerJob) != 2 {
+				b.Fatal(err, len(s.PerJob))
+			}
+		}
+	})
+	b.Run("bare-pread", func(b *testing.B) {
+		var fs []*os.File
+		for _, p := range n.files {
+			f, err := os.Open(p)
+			require.NoError(b, err)
+			defer f.Close()
+			fs = append(fs, f)
+		}
+		buf := make([]byte, 64<<10)
+		b.ReportAllocs()
+		b.ResetTimer()
+		for b.Loop() {
+			for _, f := range fs {
+				if _, err := f.ReadAt(buf, 0); err != nil && err.Error() != "EOF" {
+					b.Fatal(err)
+				}
+			}
+		}
+	})
+}
