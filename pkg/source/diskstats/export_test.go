@@ -2,7 +2,7 @@ package diskstats
 
 // Opens returns how many times s has opened its file, so that tests can
 // tell a kept descriptor from a reopened one.
-func Opens(s *Source) int { return s.opens }
+func Opens(s *Source) int { return s.file.Opens() }
 
 // ParseBuf parses data the way Source.Read does, from a buffer in memory.
 func ParseBuf(data []byte) Stats { return parseBuf(data, nil, nil) }

@@ -7,6 +7,8 @@ import (
 	"io"
 	"math"
 	"math/bits"
+
+	"sluice/pkg/source/internal/fields"
 )
 
 // maxLine is the longest line, newline included, that Parse reads; a longer
@@ -168,50 +170,8 @@ func (st *Stats) addLine(line []byte, known map[string]*devState) {
 // blank reports a line of only whitespace, which is neither a device nor
 // malformed.
 func parseLine(line []byte, known map[string]*devState) (d Device, ok, blank bool) {
-	var (
-		vals [numValues]uint64
-		name []byte
-		n    int // tokens seen
-	)
-	for i := 0; ; {
-		for i < len(line) && isSpace(line[i]) {
-			i++
-		}
-		if i == len(line) {
-			break
-		}
-		j := i
-		for j < len(line) && !isSpace(line[j]) {
-			j++
-		}
-		tok := line[i:j]
-		i = j
-		switch {
-		case n >= fields20:
-			return Device{}, false, false
-		case n == 2:
-			name = tok
-		default:
-			v, good := parseUint(tok)
-			if !good {
-				return Device{}, false, false
-			}
-			switch n {
-			case 0, 1:
-				if v > math.MaxUint32 {
-					return Device{}, false, false
-				}
-				if n == 0 {
-					d.Major = uint32(v)
-				} else {
-					d.Minor = uint32(v)
-				}
-			default:
-				vals[n-3] = v
-			}
-		}
-		n++
-	}
+	var tok [fields20 + 1][]byte // one more, to tell a line that has too many
+	n := fields.Split(line, tok[:])
 	switch n {
 	case 0:
 		return Device{}, false, true
@@ -219,10 +179,33 @@ func parseLine(line []byte, known map[string]*devState) (d Device, ok, blank boo
 	default:
 		return Device{}, false, false
 	}
-	if ds, found := known[string(name)]; found {
+	var vals [numValues]uint64
+	for i, t := range tok[:n] {
+		if i == 2 {
+			continue // the name
+		}
+		v, good := parseUint(t)
+		if !good {
+			return Device{}, false, false
+		}
+		switch i {
+		case 0, 1:
+			if v > math.MaxUint32 {
+				return Device{}, false, false
+			}
+			if i == 0 {
+				d.Major = uint32(v)
+			} else {
+				d.Minor = uint32(v)
+			}
+		default:
+			vals[i-3] = v
+		}
+	}
+	if ds, found := known[string(tok[2])]; found {
 		d.Name = ds.name
 	} else {
-		d.Name = string(name)
+		d.Name = string(tok[2])
 	}
 	d.Fields = n
 	d.setValues(&vals)
@@ -248,15 +231,6 @@ func (d *Device) values() [numValues]uint64 {
 		d.FlushesCompleted, d.FlushMs,
 	}
 }
-
-// isSpace reports whether c separates tokens. The kernel prints single
-// spaces; tabs, CR and the other ASCII spaces are accepted for files written
-// by hand.
-func isSpace(c byte) bool { return spaces[c] }
-
-// spaces marks the bytes isSpace accepts; a table is faster than the
-// comparisons on the parser's hot loop.
-var spaces = [256]bool{' ': true, '\t': true, '\n': true, '\r': true, '\v': true, '\f': true}
 
 // parseUint parses an unsigned decimal number without sign, as the kernel
 // prints %u and %lu, rejecting values over 2^64-1.

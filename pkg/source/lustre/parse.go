@@ -6,6 +6,8 @@ import (
 	"io"
 	"math"
 	"time"
+
+	"sluice/pkg/source/internal/fields"
 )
 
 // maxLine is the longest line, newline included, that Parse reads; a longer
@@ -133,8 +135,8 @@ func parse(br *bufio.Reader, counters []Counter) (Stats, error) {
 
 // parseLine adds one line to st. Blank lines are ignored.
 func (st *Stats) parseLine(line []byte) {
-	var tok [maxTokens + 1][]byte
-	n := split(line, &tok)
+	var tok [maxTokens + 1][]byte // one more, to tell a line that has too many
+	n := fields.Split(line, tok[:])
 	if n == 0 {
 		return
 	}
@@ -159,43 +161,6 @@ func (st *Stats) parseLine(line []byte) {
 		return
 	}
 	st.Counters = append(st.Counters, c)
-}
-
-// split stores up to maxTokens+1 whitespace-separated tokens of line in tok
-// and returns how many it stored; maxTokens+1 means "too many". The tokens
-// alias line, so nothing is allocated.
-func split(line []byte, tok *[maxTokens + 1][]byte) int {
-	n := 0
-	i := 0
-	for i < len(line) {
-		for i < len(line) && isSpace(line[i]) {
-			i++
-		}
-		if i == len(line) {
-			break
-		}
-		if n == len(tok) {
-			return n
-		}
-		start := i
-		for i < len(line) && !isSpace(line[i]) {
-			i++
-		}
-		tok[n] = line[start:i]
-		n++
-	}
-	return n
-}
-
-// spaceMask has bit b set for each byte b that separates tokens: space,
-// \t, \n, \v, \f and \r. The set matches what Write refuses inside names
-// and units, so that anything Write accepts parses back.
-const spaceMask = 1<<' ' | 1<<'\t' | 1<<'\n' | 1<<'\v' | 1<<'\f' | 1<<'\r'
-
-// isSpace reports whether b separates tokens, with one compare and one bit
-// test, since split calls it for every byte.
-func isSpace(b byte) bool {
-	return b <= ' ' && uint64(1)<<b&spaceMask != 0
 }
 
 // parseCounter parses the tokens of one counter line.

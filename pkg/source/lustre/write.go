@@ -6,6 +6,8 @@ import (
 	"io"
 	"strconv"
 	"time"
+
+	"sluice/pkg/source/internal/fields"
 )
 
 // ErrBadCounter means Write was given a counter it cannot print so that
@@ -226,13 +228,14 @@ func checkCounters(cs []Counter) error {
 	return nil
 }
 
-// validToken reports whether s can be printed as one token Parse splits out.
+// validToken reports whether s can be printed as one token Parse splits
+// out: it holds none of the bytes fields.IsSpace separates tokens on.
 func validToken(s string) bool {
 	if s == "" || len(s) > maxNameLen {
 		return false
 	}
 	for i := 0; i < len(s); i++ {
-		if isSpace(s[i]) {
+		if fields.IsSpace(s[i]) {
 			return false
 		}
 	}

@@ -5,6 +5,8 @@ import (
 	"fmt"
 	"io"
 	"math"
+
+	"sluice/pkg/source/internal/fields"
 )
 
 // OpStats is one line of a mount's per-op section, "<NAME>: n1 .. n8[ n9]",
@@ -146,7 +148,7 @@ func (p *parser) parse(data []byte, st *Stats) {
 
 // line handles one line, newline removed.
 func (p *parser) line(line []byte) {
-	n := split(line, &p.tok)
+	n := fields.Split(line, p.tok[:])
 	if n == 0 {
 		return // blank: the kernel ends every mount with one
 	}
@@ -396,41 +398,6 @@ func unescape(dst, b []byte) []byte {
 }
 
 func isOctal(c byte) bool { return c >= '0' && c <= '7' }
-
-// split stores up to maxTokens+1 whitespace-separated tokens of line in tok
-// and returns how many it found, or maxTokens+1 if there are more. The
-// tokens alias line, so nothing is allocated.
-func split(line []byte, tok *[maxTokens + 1][]byte) int {
-	n := 0
-	i := 0
-	for i < len(line) {
-		for i < len(line) && isSpace(line[i]) {
-			i++
-		}
-		if i == len(line) {
-			break
-		}
-		if n == len(tok) {
-			return n
-		}
-		start := i
-		for i < len(line) && !isSpace(line[i]) {
-			i++
-		}
-		tok[n] = line[start:i]
-		n++
-	}
-	return n
-}
-
-// spaceMask has bit b set for each byte b that separates tokens: space,
-// \t, \n, \v, \f and \r.
-const spaceMask = 1<<' ' | 1<<'\t' | 1<<'\n' | 1<<'\v' | 1<<'\f' | 1<<'\r'
-
-// isSpace reports whether b separates tokens.
-func isSpace(b byte) bool {
-	return b <= ' ' && uint64(1)<<b&spaceMask != 0
-}
 
 // parseUint parses a non-empty run of ASCII digits that fits in a uint64,
 // without allocating.

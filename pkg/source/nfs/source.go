@@ -4,16 +4,15 @@ import (
 	"context"
 	"errors"
 	"fmt"
-	"io"
 	"io/fs"
 	"maps"
-	"os"
 	"path/filepath"
 	"strconv"
 	"strings"
 	"time"
 
 	"sluice/pkg/source"
+	"sluice/pkg/source/internal/procfile"
 )
 
 // DefaultCheckEvery is how many reads share one check that the open file is
@@ -36,19 +35,16 @@ const ageSlack = 2
 //
 // It keeps the file open and reads it again from offset 0 with pread on
 // every call (a seq_file regenerates its content on a read at offset 0),
-// reusing its buffer and parse results, so it must be used by one goroutine
-// at a time. Close releases the file.
+// through pkg/source/internal/procfile, which also opens the path again
+// once after a failed read. It reuses its buffer and parse results, so it
+// must be used by one goroutine at a time. Close releases the file.
 type Source struct {
 	path string
 	now  func() time.Time
 
-	f          *os.File
-	fi         fs.FileInfo // f's identity, for the check every checkEvery reads
-	buf        []byte
-	st         Stats
-	p          parser
-	checkEvery int
-	sinceCheck int
+	file *procfile.File
+	st   Stats
+	p    parser
 
 	kept  []kept
 	state map[string]*mountState
@@ -86,20 +82,26 @@ func NewSource(procRoot string, now func() time.Time) *Source {
 	if now == nil {
 		now = time.Now
 	}
+	path := filepath.Join(procRoot, "self", "mountstats")
 	return &Source{
-		path:       filepath.Join(procRoot, "self", "mountstats"),
-		now:        now,
-		buf:        make([]byte, 32<<10),
-		checkEvery: DefaultCheckEvery,
-		state:      make(map[string]*mountState),
-		keys:       make(map[string]*deviceKey),
+		path:  path,
+		now:   now,
+		file:  newFile(path, DefaultCheckEvery),
+		state: make(map[string]*mountState),
+		keys:  make(map[string]*deviceKey),
 	}
+}
+
+// newFile returns the kept file at path, checked every checkEvery reads.
+func newFile(path string, checkEvery int) *procfile.File {
+	return procfile.New(path, procfile.Options{CheckEvery: checkEvery, MaxSize: maxFile})
 }
 
 // WithCheckEvery sets how many reads share one check that the open file is
 // still the file at the path (at least 1: check on every read) and returns s.
 func (s *Source) WithCheckEvery(n int) *Source {
-	s.checkEvery = max(n, 1)
+	_ = s.file.Close() // a file open already is opened again by the next Read
+	s.file = newFile(s.path, max(n, 1))
 	return s
 }
 
@@ -107,14 +109,7 @@ func (s *Source) WithCheckEvery(n int) *Source {
 func (s *Source) Name() string { return "nfs" }
 
 // Close closes the file the Source keeps open. A later Read opens it again.
-func (s *Source) Close() error {
-	if s.f == nil {
-		return nil
-	}
-	err := s.f.Close()
-	s.f, s.fi = nil, nil
-	return err
-}
+func (s *Source) Close() error { return s.file.Close() }
 
 // Read returns one reading per NFS superblock, in mount order.
 //
@@ -293,72 +288,16 @@ func (s *Source) epoch(key string, age uint64, now time.Time) (string, bool) {
 	return st.text, report
 }
 
-// load returns the file's current content, opening the file if needed.
+// load returns the file's current content, as procfile.File.Load does.
 func (s *Source) load() ([]byte, error) {
-	if s.f != nil && s.sinceCheck >= s.checkEvery {
-		s.sinceCheck = 0
-		if fi, err := os.Stat(s.path); err != nil || !os.SameFile(fi, s.fi) {
-			_ = s.Close() // replaced or gone: open the path again
-		}
-	}
-	if s.f == nil {
-		if err := s.open(); err != nil {
-			return nil, err
-		}
-	}
-	s.sinceCheck++
-	data, err := s.readAll()
-	if err == nil {
-		return data, nil
-	}
-	// The descriptor may have gone bad; one fresh open decides.
-	_ = s.Close()
-	if err := s.open(); err != nil {
-		return nil, err
-	}
-	if data, err = s.readAll(); err != nil {
-		_ = s.Close()
-		return nil, fmt.Errorf("nfs: reading %s: %w", s.path, err)
-	}
-	return data, nil
-}
-
-// open opens the file and records its identity.
-func (s *Source) open() error {
-	f, err := os.Open(s.path)
+	data, err := s.file.Load()
 	if err != nil {
 		if errors.Is(err, fs.ErrNotExist) {
-			return fmt.Errorf("nfs: %s: %w", s.path, source.ErrNoData)
+			return nil, fmt.Errorf("nfs: %s: %w", s.path, source.ErrNoData)
 		}
-		return fmt.Errorf("nfs: opening %s: %w", s.path, err)
+		return nil, fmt.Errorf("nfs: %w", err)
 	}
-	fi, err := f.Stat()
-	if err != nil {
-		_ = f.Close()
-		return fmt.Errorf("nfs: opening %s: %w", s.path, err)
-	}
-	s.f, s.fi, s.sinceCheck = f, fi, 0
-	return nil
-}
-
-// readAll reads the whole file from offset 0 into s.buf, growing it as
-// needed. A seq_file returns about a page per read call and then carries on
-// from where the last call stopped, which ReadAt's loop of preads does.
-func (s *Source) readAll() ([]byte, error) {
-	n := 0
-	for {
-		m, err := s.f.ReadAt(s.buf[n:], int64(n))
-		n += m
-		switch {
-		case err == io.EOF:
-			return s.buf[:n], nil
-		case err != nil:
-			return nil, err
-		case len(s.buf) >= maxFile:
-			return nil, fmt.Errorf("larger than %d bytes", maxFile)
-		}
-		s.buf = append(s.buf, make([]byte, len(s.buf))...)
-	}
+	return data, nil
 }
 
 // Raw returns the mount's cumulative counters under the raw names listed in

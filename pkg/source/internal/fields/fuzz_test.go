@@ -1,0 +1,51 @@
+package fields_test
+
+import (
+	"bytes"
+	"strings"
+	"testing"
+
+	"github.com/stretchr/testify/require"
+
+	"sluice/pkg/source/internal/fields"
+)
+
+// asciiSpace is the separator set written out independently of IsSpace.
+func asciiSpace(r rune) bool { return r < 0x80 && strings.ContainsRune(" \t\n\v\f\r", r) }
+
+// FuzzSplit checks Split's invariants: it leaves line alone, no token holds
+// a space byte, the tokens are those of bytes.FieldsFunc with the same
+// separators (its UTF-8 decoding cannot hide an ASCII byte), and when tok
+// was not filled they are the whole line with the spaces taken out.
+func FuzzSplit(f *testing.F) {
+	f.Add([]byte("   8       0 sda 4470 2330 447041 8079 6402 6776 495348 5651 0 2718 14836"), uint8(21))
+	f.Add([]byte("read_bytes 17 samples [bytes] 4096 1048576 9437184 5570035712\n"), uint8(9))
+	f.Add([]byte("\tREAD: 1 2 3 4 5 6 7 8 9\r\n"), uint8(3))
+	f.Add([]byte(" \t\n\v\f\r\x85\xa0\x00 \xe2\x80\x83x"), uint8(4))
+	f.Add([]byte(""), uint8(0))
+	f.Fuzz(func(t *testing.T, line []byte, size uint8) {
+		orig := bytes.Clone(line)
+		tok := make([][]byte, size%40)
+		n := fields.Split(line, tok)
+		require.Equal(t, orig, line, "line is not changed")
+
+		ref := bytes.FieldsFunc(line, asciiSpace)
+		require.Equal(t, min(len(ref), len(tok)), n, "token count")
+		var joined []byte
+		for i, tk := range tok[:n] {
+			require.NotEmpty(t, tk, "token %d", i)
+			require.False(t, bytes.ContainsFunc(tk, asciiSpace), "token %d %q holds a space byte", i, tk)
+			require.Equal(t, string(ref[i]), string(tk), "token %d", i)
+			joined = append(joined, tk...)
+		}
+		var spaceless []byte // byte by byte: bytes.Map would rewrite invalid UTF-8
+		for _, b := range line {
+			if !asciiSpace(rune(b)) {
+				spaceless = append(spaceless, b)
+			}
+		}
+		if n < len(tok) {
+			require.Equal(t, string(spaceless), string(joined), "not truncated: the tokens are the line without its spaces")
+		}
+	})
+}
