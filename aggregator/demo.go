@@ -152,7 +152,7 @@ func (d *demoRun) startAgents(ctx context.Context, nodes []string, s *sim.Sim, s
 	var cmds []*exec.Cmd
 	for _, n := range nodes {
 		cmd := exec.Command(d.bin, "run", "--node", n, "--interval", "1s",
-			"--source.lustre.root", s.LliteRoot(n), "--state.dir", d.stateDir(n),
+			"--sources", "lustre", "--source.lustre.root", s.LliteRoot(n), "--state.dir", d.stateDir(n),
 			"--nats.url", d.nats, "--nats.cluster", "brackwater", "--log.level", "warn")
 		cmd.Stderr = stderr
 		if err := cmd.Start(); err != nil {
