@@ -69,8 +69,8 @@ func flatten(n *yaml.Node, prefix string, out map[string]string) error {
 	case yaml.MappingNode:
 		for i := 0; i+1 < len(n.Content); i += 2 {
 			k, v := n.Content[i], n.Content[i+1]
-			if k.Kind != yaml.ScalarNode || k.Value == "" {
-				return fmt.Errorf("options file: line %d: keys must be plain names", k.Line)
+			if k.Kind != yaml.ScalarNode || slices.Contains(strings.Split(k.Value, "."), "") {
+				return fmt.Errorf("options file: line %d: %q is not an option name", k.Line, k.Value)
 			}
 			name := k.Value
 			if prefix != "" {

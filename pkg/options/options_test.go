@@ -28,6 +28,8 @@ func TestParseFile(t *testing.T) {
 		{name: "the same name twice", input: "nats.url: a\nnats:\n  url: b\n", wantErr: "nats.url given twice"},
 		{name: "not a map", input: "just text\n", wantErr: "expected a map"},
 		{name: "broken yaml", input: "a: [\n", wantErr: "options file"},
+		{name: "an empty part in a dotted name", input: ".: 00\n", wantErr: `"." is not an option name`},
+		{name: "a trailing dot", input: "nats.: x\n", wantErr: `"nats." is not an option name`},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
