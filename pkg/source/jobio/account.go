@@ -2,6 +2,7 @@ package jobio
 
 import (
 	"os"
+	"slices"
 	"time"
 
 	"sluice/pkg/source"
@@ -9,12 +10,16 @@ import (
 
 // job is the state kept for one job between reads.
 type job struct {
-	id, key string
-	rel     string   // job directory relative to the cgroup root
-	root    *dirNode // the job directory and its subtree
-	ioStat  string   // path of the job directory's io.stat
+	id, key    string
+	rel        string   // job directory relative to the cgroup root
+	root       *dirNode // the job directory and its subtree, as last listed
+	relist     bool     // list the subtree afresh at the next read
+	counts     bool     // its last listing was trusted and saw subdirectories counted
+	ioStat     string   // path of the job directory's io.stat
+	ioStatFile keptFile // its io.stat, kept open
 
 	procs  map[int]*proc // by pid: live and departed processes
+	list   []*proc       // the values of procs, for quick iteration
 	reaped []*proc       // scratch: processes found reaped at this read
 
 	totals  [nCounters]uint64
@@ -28,21 +33,35 @@ type job struct {
 	errs jobErrors
 }
 
-// setDir points the job at a (new) directory. Processes keep their state,
-// since they are keyed by pid; io.stat starts from a new base.
+// setDir points the job at a (new) directory, to be listed at the next
+// read. Processes keep their state, since they are keyed by pid; io.stat
+// starts from a new base.
 func (j *job) setDir(rel, path string) {
 	j.rel = rel
-	j.root = &dirNode{path: path, procs: path + "/cgroup.procs"}
+	if j.root != nil {
+		j.root.closeTree()
+	}
+	j.ioStatFile.close()
+	j.root = newDirNode(path, "", 0)
+	j.relist, j.counts = true, false
 	j.ioStat = path + "/io.stat"
 	j.ioHave = false
 }
 
-// close closes the job's kept descriptors.
+// close closes the job's kept descriptors: its processes' io files and its
+// cgroup directories and their cgroup.procs.
 func (j *job) close() {
 	for pid, p := range j.procs {
 		p.close()
 		delete(j.procs, pid)
 	}
+	clear(j.list)
+	j.list = j.list[:0]
+	if j.root != nil {
+		j.root.closeTree()
+		j.relist, j.counts = true, false
+	}
+	j.ioStatFile.close()
 }
 
 // reading returns the job's totals as a reading stamped t. The map is new
@@ -53,21 +72,6 @@ func (j *job) reading(t time.Time) source.Reading {
 		c[name] = j.totals[i]
 	}
 	return source.Reading{Key: j.key, Job: j.id, Time: t, Counters: c, Malformed: j.errs.malformed}
-}
-
-// dirNode is one directory of a job's cgroup subtree.
-type dirNode struct {
-	name     string
-	path     string
-	procs    string // path of its cgroup.procs
-	children []*dirNode
-	seen     uint64 // read generation that last listed it
-}
-
-// newDirNode returns the node of directory name under parent.
-func newDirNode(parent, name string, gen uint64) *dirNode {
-	path := parent + "/" + name
-	return &dirNode{name: name, path: path, procs: path + "/cgroup.procs", seen: gen}
 }
 
 // procKey identifies a process across pid reuse: its pid and its start
@@ -91,6 +95,7 @@ type proc struct {
 
 	departed bool   // no longer in the job's cgroup.procs but still readable
 	listed   uint64 // read generation that last listed it
+	dropped  bool   // removed from the job's procs: to go from its list
 
 	// Per-read flags.
 	sampled bool // cur was read now
@@ -219,7 +224,7 @@ func (s *Source) readStat(j *job, pid int) (ProcStat, bool) {
 //     parent (kernel/exit.c, wait_task_zombie).
 func (s *Source) account(j *job, mark uint64, markOK bool) {
 	gen := s.gen
-	for _, p := range j.procs {
+	for _, p := range j.list {
 		p.sampled, p.created, p.leaving, p.revived = false, false, false, false
 	}
 	j.reaped = j.reaped[:0]
@@ -239,23 +244,26 @@ func (s *Source) account(j *job, mark uint64, markOK bool) {
 			case sampleGone: // reaped, and the pid reused by a new process
 				j.reaped = append(j.reaped, p)
 				delete(j.procs, pid)
+				p.dropped = true
 			}
 		}
 		if p := s.newProc(j, pid); p != nil {
 			j.procs[pid] = p
+			j.list = append(j.list, p)
 		}
 	}
 
 	// Processes no longer listed: zombies, moved out, or reaped.
-	for pid, p := range j.procs {
-		if p.listed == gen {
+	for _, p := range j.list {
+		if p.dropped || p.listed == gen {
 			continue
 		}
 		wasDeparted := p.departed
 		switch s.sample(j, p) {
 		case sampleGone:
 			j.reaped = append(j.reaped, p)
-			delete(j.procs, pid)
+			delete(j.procs, p.key.pid)
+			p.dropped = true
 		case sampleOK:
 			if wasDeparted {
 				p.sampled = false // frozen: its growth is not the job's
@@ -263,6 +271,10 @@ func (s *Source) account(j *job, mark uint64, markOK bool) {
 				p.departed, p.leaving = true, true
 			}
 		}
+	}
+
+	if len(j.reaped) > 0 {
+		j.list = slices.DeleteFunc(j.list, func(p *proc) bool { return p.dropped })
 	}
 
 	// Reaped processes: hand their counts to the nearest tracked ancestor
@@ -285,7 +297,7 @@ func (s *Source) account(j *job, mark uint64, markOK bool) {
 	// Orphans: the kernel reparents a process's children when it exits
 	// (kernel/exit.c, forget_original_parent), so read their new parent.
 	if len(j.reaped) > 0 || s.anyLeaving(j) {
-		for _, p := range j.procs {
+		for _, p := range j.list {
 			if p.parent.pid != 0 && !p.created && j.parentLeft(p.parent) {
 				if st, ok := s.readStat(j, p.key.pid); ok {
 					p.ppid = st.PPID
@@ -300,14 +312,14 @@ func (s *Source) account(j *job, mark uint64, markOK bool) {
 	clear(j.reaped)
 
 	// New processes: find their parent among the tracked ones.
-	for _, p := range j.procs {
+	for _, p := range j.list {
 		if p.created {
 			p.parent = j.resolveParent(p)
 		}
 	}
 
 	// Count.
-	for _, p := range j.procs {
+	for _, p := range j.list {
 		if !p.sampled {
 			continue
 		}
@@ -361,7 +373,7 @@ func (j *job) ancestor(k procKey) *proc {
 
 // anyLeaving reports whether a process departed at this read.
 func (s *Source) anyLeaving(j *job) bool {
-	for _, p := range j.procs {
+	for _, p := range j.list {
 		if p.leaving {
 			return true
 		}

@@ -14,8 +14,9 @@
 // the walk does not descend into a job). The walk runs on the first read and
 // then every [Options.RescanEvery] reads; [Source.Jobs] returns the ids it
 // found, for the agent to reconcile with the scheduler hooks' records. A
-// known job's own subtree is listed on every read, so that a new job step's
-// processes are seen at once.
+// known job's own subtree is kept listed between reads and checked at every
+// read (see Cost), so that a new job step's processes are seen at the next
+// read, not at the next walk.
 //
 // The job's processes are the pids in cgroup.procs of the job directory and
 // of every directory below it. For each the source reads /proc/<pid>/io
@@ -103,11 +104,50 @@
 // offset 0: procfs regenerates the file on every read from offset 0, and
 // the descriptor keeps referring to the process it was opened for, failing
 // with ESRCH once it is reaped, which is how pid reuse is noticed without
-// re-reading stat. Read buffers are reused, so a Source must be used by one
-// goroutine at a time (the agent's loop); [Source.Close] closes the kept
-// descriptors. Per read and job the source lists each directory of the
-// job's subtree and reads its cgroup.procs, and reads io.stat; new
-// processes cost an open and a stat read.
+// re-reading stat. Read buffers, pid lists and maps are reused, so a
+// Source must be used by one goroutine at a time (the agent's loop), and a
+// read in steady state allocates only its readings.
+//
+// Each job's subtree is listed at the job's first read and then cached:
+// the source keeps each directory open, with its link count, and each
+// cgroup.procs open. Per read and directory it costs one fstat(2), which
+// compares the link count with the cached one, and one pread(2) of
+// cgroup.procs from offset 0, which regenerates the seq_file (a regular
+// file rewritten in place, as in the tests, reads anew the same way). On
+// cgroupfs (kernfs) a directory's st_nlink is 2 plus its number of
+// subdirectories (kernfs_refresh_inode in fs/kernfs/inode.c:
+// set_nlink(inode, kn->dir.subdirs + 2), from memory; it holds on the
+// sysfs and cgroup2 directories of a live kernel), so a step cgroup made
+// or removed anywhere in the subtree changes a count and the subtree is
+// listed again at once, at the same read. ext4 and tmpfs directories keep
+// the same count, so the tests exercise it. A removed directory is also
+// noticed by itself: its kept descriptor shows a count of 0 on a regular
+// filesystem, and reads of its kept cgroup.procs fail on kernfs (ENODEV
+// once the node is deactivated, from memory). The subtree
+// is also listed again at every walk (every RescanEvery reads), through the
+// kept descriptors of directories still there, and when a kept
+// cgroup.procs fails: that read falls back to open, read and close by path,
+// and the next read lists afresh. A listing is not trusted, and the
+// subtree is listed on every read as before, when a directory's link count
+// does not match the subdirectories found: on a filesystem that does not
+// count them (btrfs reports 1 for every directory) nothing is missed, and
+// on one that reports a plausible but wrong count (none known) a change is
+// caught at the next walk. The job's io.stat and /proc/uptime are kept
+// open too and re-read with pread; as they can go and come back on their
+// own, each read also checks the kept file's link count, and a count of 0
+// (removed, or replaced by a rename, on a regular filesystem) or a failed
+// read (ENODEV, ESRCH on kernfs and procfs) opens the path again.
+//
+// So a read in steady state costs, per process, one pread; per cgroup
+// directory of a job, one fstat and one pread; per job, a pread and an
+// fstat of io.stat; and a pread and an fstat of /proc/uptime. New
+// processes cost an open and a stat read; a walk costs a listing of every
+// directory down to the jobs, and a getdents(2) per known job directory
+// that has subdirectories. The source keeps open two descriptors per
+// cgroup directory of a job (one for a directory MaxDepth levels below the
+// job, whose subdirectories are not read), one per process, one per job
+// for io.stat and one for /proc/uptime; [Source.Close] closes them all,
+// and a directory's or process's are closed when it goes.
 //
 // # Caveats
 //
@@ -138,6 +178,9 @@
 //     counters vanish with the cgroup. Without the io controller enabled in
 //     the job's parent's cgroup.subtree_control there is no io.stat and the
 //     iostat counters stay at zero.
+//   - A cgroup directory renamed in place (cgroup v2 allows a rename within
+//     the same parent) keeps being read through its kept descriptors, and
+//     its new name is seen at the next walk.
 //   - A job is found up to RescanEvery reads after its cgroup appears, and
 //     its I/O before its first read is not counted (its totals start at
 //     zero; reporting that I/O later would be a jump). A smaller RescanEvery

@@ -147,9 +147,48 @@ func (p *procIOParser) result() ProcIO {
 // parseProcIOBytes parses a /proc/<pid>/io file held in b, without
 // allocating. seen has bit i set for each field index i that was present.
 func parseProcIOBytes(b []byte) (v [nProcIO]uint64, seen uint8, malformed int) {
+	if v, ok := parseProcIOExact(b); ok {
+		return v, allProcIO, 0
+	}
 	var p procIOParser
 	eachLineBytes(b, p.line, func() { p.malformed++ })
 	return p.v, p.seen, p.malformed
+}
+
+// procIOPrefixes are the starts of the lines of /proc/<pid>/io as
+// do_io_accounting prints them (fs/proc/base.c), in its order.
+var procIOPrefixes = [nProcIO]string{
+	"rchar: ", "wchar: ", "syscr: ", "syscw: ",
+	"read_bytes: ", "write_bytes: ", "cancelled_write_bytes: ",
+}
+
+// parseProcIOExact parses b if it is exactly what do_io_accounting prints:
+// the seven lines in order, each "<key>: <decimal>\n" with at most 19
+// digits, and nothing else. The general parser reads such a file to the
+// same values, with every key seen and nothing malformed; ok is false for
+// any other input, which the general parser then reads.
+func parseProcIOExact(b []byte) (v [nProcIO]uint64, ok bool) {
+	for i, prefix := range procIOPrefixes {
+		if len(b) < len(prefix) || string(b[:len(prefix)]) != prefix {
+			return v, false
+		}
+		b = b[len(prefix):]
+		var x uint64
+		n := 0
+		for ; n < len(b) && n < 19; n++ {
+			d := b[n] - '0'
+			if d > 9 {
+				break
+			}
+			x = x*10 + uint64(d)
+		}
+		if n == 0 || n == len(b) || b[n] != '\n' {
+			return v, false
+		}
+		v[i] = x
+		b = b[n+1:]
+	}
+	return v, len(b) == 0
 }
 
 // IOStatLine is one line of a cgroup v2 io.stat file: one block device's
@@ -529,6 +568,17 @@ func isSpace(c byte) bool {
 func parseUint(b []byte) (uint64, bool) {
 	if len(b) == 0 {
 		return 0, false
+	}
+	if len(b) <= 19 { // below 10^19: no overflow
+		var v uint64
+		for _, c := range b {
+			d := c - '0'
+			if d > 9 {
+				return 0, false
+			}
+			v = v*10 + uint64(d)
+		}
+		return v, true
 	}
 	var v uint64
 	for _, c := range b {

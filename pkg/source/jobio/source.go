@@ -1,6 +1,7 @@
 package jobio
 
 import (
+	"bytes"
 	"context"
 	"errors"
 	"fmt"
@@ -55,9 +56,11 @@ type Options struct {
 	// job's sub-cgroups. Zero means DefaultMaxDepth; it must not be negative.
 	MaxDepth int
 	// RescanEvery is how many reads reuse one walk of the cgroup tree (1:
-	// walk on every read). A known job's own sub-cgroups are listed on every
-	// read regardless. Zero means DefaultRescanEvery; it must not be
-	// negative.
+	// walk on every read); each walk also lists every known job's
+	// sub-cgroups again. Between walks a job's sub-cgroups are checked at
+	// every read, and a new or removed one is seen at the next read (see
+	// the package documentation). Zero means DefaultRescanEvery; it must
+	// not be negative.
 	RescanEvery int
 }
 
@@ -66,12 +69,15 @@ type Options struct {
 // and reads the job cgroup's io.stat, and reports per-job totals that never
 // go down (see the package documentation for the rules).
 //
-// A Source keeps one open /proc/<pid>/io descriptor per process and reuses
-// read buffers, so it must be used by one goroutine at a time. Close
-// releases the descriptors.
+// A Source keeps one open /proc/<pid>/io descriptor per process, two per
+// cgroup directory of a job and a few more (see the package
+// documentation), and reuses read buffers, so it must be used by one
+// goroutine at a time. Close releases the descriptors.
 type Source struct {
 	cgroupRoot  string
 	procRoot    string
+	uptime      string   // <procRoot>/uptime
+	uptimeFile  keptFile // kept open
 	re          *regexp.Regexp
 	maxDepth    int
 	rescanEvery int
@@ -87,6 +93,17 @@ type Source struct {
 	buf  []byte // file contents (io, stat, cgroup.procs, io.stat, uptime)
 	dbuf []byte // getdents64 records
 	pids []int
+
+	// Kept from one walk for the next.
+	walks     uint64               // walks begun
+	matches   map[string]*dirMatch // JobPattern's verdicts, by directory
+	walkFound map[string]string    // scratch: job id to directory
+	walkQueue []walkDir            // scratch: directories to list
+	relBuf    []byte               // scratch: a directory relative to the root
+	nameBuf   []byte               // scratch: subdirectory names
+	names     []nameSpan           // scratch: the names in nameBuf
+
+	oldScratch []*dirNode // scratch of listDir: a directory's known children
 }
 
 // NewSource returns a Source with opts, zero fields meaning the defaults.
@@ -128,11 +145,14 @@ func NewSource(opts Options, now func() time.Time) (*Source, error) {
 	return &Source{
 		cgroupRoot:  opts.CgroupRoot,
 		procRoot:    opts.ProcRoot,
+		uptime:      opts.ProcRoot + "/uptime",
 		re:          re,
 		maxDepth:    opts.MaxDepth,
 		rescanEvery: opts.RescanEvery,
 		now:         now,
 		jobs:        make(map[string]*job),
+		walkFound:   make(map[string]string),
+		matches:     make(map[string]*dirMatch),
 		buf:         make([]byte, 1024),
 		dbuf:        make([]byte, 8192),
 	}, nil
@@ -146,13 +166,16 @@ func (s *Source) Name() string { return "jobio" }
 // records. It is nil before the first Read.
 func (s *Source) Jobs() []string { return slices.Clone(s.found) }
 
-// Close closes every kept /proc/<pid>/io descriptor and forgets all jobs;
+// Close closes every kept descriptor (/proc/<pid>/io, cgroup directories,
+// cgroup.procs, io.stat, /proc/uptime) and forgets all jobs;
 // a later Read starts afresh, as a new Source would.
 func (s *Source) Close() error {
+	s.uptimeFile.close()
 	for _, j := range s.jobs {
 		j.close()
 	}
 	clear(s.jobs)
+	clear(s.matches)
 	s.ids, s.found, s.walked = nil, nil, false
 	return nil
 }
@@ -211,6 +234,7 @@ func (s *Source) Read(ctx context.Context) ([]source.Reading, error) {
 			s.readIOStat(j)
 		} else {
 			j.ioHave = false
+			j.ioStatFile.close()
 		}
 		readings = append(readings, j.reading(s.now()))
 		if err := j.errs.err(j.id); err != nil {
@@ -226,7 +250,7 @@ func (s *Source) Read(ctx context.Context) ([]source.Reading, error) {
 // readUptime returns /proc/uptime in clock ticks: the mark that processes
 // first seen at the next read are compared with.
 func (s *Source) readUptime() (uint64, bool) {
-	b, err := readFile(s.procRoot+"/uptime", s.buf[:0])
+	b, err := s.uptimeFile.read(kfd{}, cname{}, s.uptime, s.buf)
 	s.keepBuf(b)
 	if err != nil {
 		return 0, false
@@ -258,47 +282,51 @@ func (s *Source) walk() error {
 		s.dropAll()
 		return fmt.Errorf("jobio: cgroup root %s is not a directory", s.cgroupRoot)
 	}
-	type dir struct {
-		rel   string
-		depth int
-	}
+	s.walks++
 	var errs []error
-	found := make(map[string]string)
-	queue := []dir{{"", 0}}
-	for len(queue) > 0 {
-		d := queue[0]
-		queue = queue[1:]
+	found := s.walkFound
+	clear(found)
+	queue := append(s.walkQueue[:0], walkDir{"", 0})
+	for i := 0; i < len(queue); i++ {
+		d := queue[i]
 		path := s.cgroupRoot
 		if d.rel != "" {
 			path += "/" + d.rel
 		}
-		entries, err := os.ReadDir(path)
+		names, err := s.subdirNames(path)
 		if err != nil {
 			if !vanished(err) {
 				errs = append(errs, fmt.Errorf("jobio: walking %s: %w", path, err))
 			}
 			continue
 		}
-		for _, e := range entries {
-			if !e.IsDir() {
-				continue
-			}
-			rel := e.Name()
+		for _, nm := range names {
+			rel := append(s.relBuf[:0], d.rel...)
 			if d.rel != "" {
-				rel = d.rel + "/" + rel
+				rel = append(rel, '/')
 			}
-			if m := s.re.FindStringSubmatch(rel); m != nil {
+			rel = append(rel, s.nameBuf[nm.off:nm.end]...)
+			s.relBuf = rel
+			m, isJob := s.match(rel)
+			if isJob {
 				// The top-most match of an id wins: breadth first, a
 				// shallower directory is seen before any deeper one, and the
 				// walk does not descend into a job.
-				if id := m[1]; id != "" && found[id] == "" {
-					found[id] = rel
+				if _, ok := found[m.id]; !ok && m.id != "" {
+					found[m.id] = m.rel
 				}
 				continue
 			}
 			if d.depth+1 < s.maxDepth {
-				queue = append(queue, dir{rel, d.depth + 1})
+				queue = append(queue, walkDir{m.rel, d.depth + 1})
 			}
+		}
+	}
+	clear(queue)
+	s.walkQueue = queue[:0]
+	for rel, m := range s.matches {
+		if m.walk != s.walks {
+			delete(s.matches, rel) // not seen by this walk
 		}
 	}
 	s.walked, s.sinceWalk = true, 0
@@ -314,17 +342,69 @@ func (s *Source) walk() error {
 		if j.rel != rel {
 			j.setDir(rel, s.cgroupRoot+"/"+rel)
 		}
+		j.relist = true // every RescanEvery reads, each job's subtree too
 	}
 	slices.Sort(s.found)
 	for id, j := range s.jobs {
 		// A job not found is lost, unless part of the tree could not be
 		// read: then each job's own listing decides.
-		if found[id] == "" && len(errs) == 0 {
+		if _, ok := found[id]; !ok && len(errs) == 0 {
 			j.lost = true
 		}
 	}
 	s.sortIDs()
 	return errors.Join(errs...)
+}
+
+// dirMatch is JobPattern's verdict on a directory, kept between walks so
+// that each walk runs the pattern only on directories it has not seen.
+type dirMatch struct {
+	rel  string // the directory, relative to the cgroup root
+	id   string // the job id it captures; empty if none
+	job  bool   // the pattern matches: a job directory, or one not to descend into
+	walk uint64 // the last walk that saw it
+}
+
+// match returns JobPattern's verdict on directory rel, from s.matches or
+// computed now, and whether the pattern matches.
+func (s *Source) match(rel []byte) (*dirMatch, bool) {
+	m := s.matches[string(rel)]
+	if m == nil {
+		m = &dirMatch{rel: string(rel)}
+		if sub := s.re.FindSubmatch(rel); sub != nil {
+			m.job, m.id = true, string(sub[1])
+		}
+		s.matches[m.rel] = m
+	}
+	m.walk = s.walks
+	return m, m.job
+}
+
+// walkDir is a directory to list in a walk: its path relative to the
+// cgroup root and its depth below it.
+type walkDir struct {
+	rel   string
+	depth int
+}
+
+// nameSpan is a name held in Source.nameBuf.
+type nameSpan struct{ off, end int }
+
+// subdirNames returns the names of the subdirectories of path, sorted, as
+// spans of s.nameBuf, valid until the next call.
+func (s *Source) subdirNames(path string) ([]nameSpan, error) {
+	s.nameBuf, s.names = s.nameBuf[:0], s.names[:0]
+	err := eachSubdir(path, s.dbuf, func(name []byte) {
+		off := len(s.nameBuf)
+		s.nameBuf = append(s.nameBuf, name...)
+		s.names = append(s.names, nameSpan{off, len(s.nameBuf)})
+	})
+	if err != nil {
+		return nil, err
+	}
+	b := s.nameBuf
+	slices.SortFunc(s.names, func(x, y nameSpan) int { return bytes.Compare(b[x.off:x.end], b[y.off:y.end]) })
+	return s.names, nil
 }
 
 // dropAll forgets every job, as when the cgroup root has gone.
@@ -345,76 +425,11 @@ func (s *Source) sortIDs() {
 	slices.Sort(s.ids)
 }
 
-// listJob reads the job's cgroup subtree into s.pids: the pids in
-// cgroup.procs of the job directory and of every directory below it, to
-// MaxDepth levels, sorted and without duplicates. It reports false when the
-// job directory has gone.
-func (s *Source) listJob(j *job) bool {
-	s.pids = s.pids[:0]
-	if !s.listDir(j, j.root, 0) {
-		return false
-	}
-	slices.Sort(s.pids)
-	s.pids = slices.Compact(s.pids)
-	return true
-}
-
-// listDir lists one directory of a job's subtree: its subdirectories, whose
-// nodes are created or dropped to match, then its cgroup.procs, then the
-// subdirectories in turn. It reports false when the directory has gone.
-func (s *Source) listDir(j *job, n *dirNode, depth int) bool {
-	n.seen = s.gen
-	err := eachSubdir(n.path, s.dbuf, func(name []byte) {
-		for _, c := range n.children {
-			if c.name == string(name) {
-				c.seen = s.gen
-				return
-			}
-		}
-		n.children = append(n.children, newDirNode(n.path, string(name), s.gen))
-	})
-	if err != nil {
-		if vanished(err) {
-			return false
-		}
-		j.errs.add(err)
-	}
-	n.children = slices.DeleteFunc(n.children, func(c *dirNode) bool { return c.seen != s.gen })
-
-	b, err := readFile(n.procs, s.buf[:0])
-	s.keepBuf(b)
-	switch {
-	case err == nil:
-		eachLineBytes(b, func(line []byte) {
-			line = trimSpace(line)
-			if len(line) == 0 {
-				return
-			}
-			if pid, ok := parseUint(line); ok && pid > 0 && pid <= 1<<22 {
-				s.pids = append(s.pids, int(pid))
-				return
-			}
-			j.errs.malformed++
-		}, func() { j.errs.malformed++ })
-	case vanished(err) || errors.Is(err, syscall.EOPNOTSUPP):
-		// Removed meanwhile, or a threaded cgroup, whose processes are
-		// listed by its threaded domain (cgroup-v2.rst, "Threads").
-	default:
-		j.errs.add(err)
-	}
-
-	if depth < s.maxDepth {
-		n.children = slices.DeleteFunc(n.children, func(c *dirNode) bool { return !s.listDir(j, c, depth+1) })
-	}
-	return true
-}
-
 // readIOStat adds the growth of the job cgroup's io.stat, summed over
 // devices, to the job's totals. The first read of a cgroup, a missing file
 // and a sum that went down (the cgroup was recreated) set a new base.
 func (s *Source) readIOStat(j *job) {
-	b, err := readFile(j.ioStat, s.buf[:0])
-	s.keepBuf(b)
+	b, err := s.readIOStatFile(j)
 	if err != nil {
 		// No io controller in the job's parent's cgroup.subtree_control, or
 		// the cgroup went away meanwhile.
@@ -443,6 +458,14 @@ func (s *Source) readIOStat(j *job) {
 		}
 	}
 	j.ioLast, j.ioHave = sum, true
+}
+
+// readIOStatFile reads the job directory's io.stat, kept open (see
+// keptFile) and opened by name in the kept job directory.
+func (s *Source) readIOStatFile(j *job) ([]byte, error) {
+	b, err := j.ioStatFile.read(j.root.dir, ioStatName, j.ioStat, s.buf)
+	s.keepBuf(b)
+	return b, err
 }
 
 // vanished reports whether err means a file or directory went away while
