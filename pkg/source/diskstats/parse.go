@@ -6,7 +6,6 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"math/bits"
 
 	"sluice/pkg/source/internal/fields"
 )
@@ -184,7 +183,7 @@ func parseLine(line []byte, known map[string]*devState) (d Device, ok, blank boo
 		if i == 2 {
 			continue // the name
 		}
-		v, good := parseUint(t)
+		v, good := fields.ParseUint(t)
 		if !good {
 			return Device{}, false, false
 		}
@@ -230,36 +229,4 @@ func (d *Device) values() [numValues]uint64 {
 		d.DiscardsCompleted, d.DiscardsMerged, d.SectorsDiscarded, d.DiscardMs,
 		d.FlushesCompleted, d.FlushMs,
 	}
-}
-
-// parseUint parses an unsigned decimal number without sign, as the kernel
-// prints %u and %lu, rejecting values over 2^64-1.
-func parseUint(b []byte) (uint64, bool) {
-	if len(b) == 0 {
-		return 0, false
-	}
-	var v uint64
-	if len(b) <= 19 { // 10^19-1 < 2^64: no overflow possible
-		for _, c := range b {
-			c -= '0'
-			if c > 9 {
-				return 0, false
-			}
-			v = v*10 + uint64(c)
-		}
-		return v, true
-	}
-	for _, c := range b {
-		c -= '0'
-		if c > 9 {
-			return 0, false
-		}
-		hi, lo := bits.Mul64(v, 10)
-		sum, carry := bits.Add64(lo, uint64(c), 0)
-		if hi != 0 || carry != 0 {
-			return 0, false
-		}
-		v = sum
-	}
-	return v, true
 }

@@ -3,6 +3,8 @@
 package jobio
 
 import (
+	"sluice/pkg/source/internal/fields"
+
 	"context"
 	"os"
 	"path/filepath"
@@ -97,7 +99,7 @@ func FuzzAddPids(f *testing.F) {
 			if len(line) == 0 {
 				return
 			}
-			if pid, ok := parseUint(line); ok && pid > 0 && pid <= 1<<22 {
+			if pid, ok := fields.ParseUint(line); ok && pid > 0 && pid <= 1<<22 {
 				want = append(want, int(pid))
 				return
 			}

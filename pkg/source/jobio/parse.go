@@ -7,6 +7,8 @@ import (
 	"fmt"
 	"io"
 	"math"
+
+	"sluice/pkg/source/internal/fields"
 )
 
 // maxLine is the longest line, newline included, that ParseProcIO and
@@ -121,7 +123,7 @@ func (p *procIOParser) line(line []byte) {
 		p.malformed++
 		return
 	}
-	v, ok := parseUint(trimSpace(line[colon+1:]))
+	v, ok := fields.ParseUint(trimSpace(line[colon+1:]))
 	key := trimSpace(line[:colon])
 	if !ok || len(key) == 0 {
 		p.malformed++
@@ -304,7 +306,7 @@ func parseIOStatLine(line []byte, extra bool) (l IOStatLine, ok bool) {
 		}
 		key, val := tok[:eq], tok[eq+1:]
 		if i := ioStatKey(key); i >= 0 {
-			n, good := parseUint(val)
+			n, good := fields.ParseUint(val)
 			if !good {
 				l.Malformed++
 				continue
@@ -349,8 +351,8 @@ func parseDevice(b []byte) (maj, mnr uint32, ok bool) {
 	if colon <= 0 {
 		return 0, 0, false
 	}
-	a, ok1 := parseUint(b[:colon])
-	c, ok2 := parseUint(b[colon+1:])
+	a, ok1 := fields.ParseUint(b[:colon])
+	c, ok2 := fields.ParseUint(b[colon+1:])
 	if !ok1 || !ok2 || a > math.MaxUint32 || c > math.MaxUint32 || a == 0 && c == 0 {
 		return 0, 0, false
 	}
@@ -405,7 +407,7 @@ func parseProcStatBytes(b []byte) (ProcStat, []byte, error) {
 	if open < 2 || closing < open || b[open-1] != ' ' {
 		return st, nil, fmt.Errorf("jobio: no \"<pid> (<comm>)\": %w", ErrMalformed)
 	}
-	pid, ok := parseUint(b[:open-1])
+	pid, ok := fields.ParseUint(b[:open-1])
 	if !ok || pid == 0 || pid > math.MaxInt32 {
 		return st, nil, fmt.Errorf("jobio: bad pid %q: %w", b[:open-1], ErrMalformed)
 	}
@@ -426,13 +428,13 @@ func parseProcStatBytes(b []byte) (ProcStat, []byte, error) {
 			}
 			st.State = tok[0]
 		case 4:
-			ppid, ok := parseUint(tok)
+			ppid, ok := fields.ParseUint(tok)
 			if !ok || ppid > math.MaxInt32 {
 				return st, nil, fmt.Errorf("jobio: stat of pid %d: bad ppid %q: %w", st.PID, tok, ErrMalformed)
 			}
 			st.PPID = int(ppid)
 		case 22:
-			if st.StartTime, ok = parseUint(tok); !ok {
+			if st.StartTime, ok = fields.ParseUint(tok); !ok {
 				return st, nil, fmt.Errorf("jobio: stat of pid %d: bad starttime %q: %w", st.PID, tok, ErrMalformed)
 			}
 		}
@@ -449,7 +451,7 @@ func parseUptime(b []byte) (uint64, bool) {
 	if dot <= 0 {
 		return 0, false
 	}
-	sec, ok := parseUint(tok[:dot])
+	sec, ok := fields.ParseUint(tok[:dot])
 	if !ok || sec > math.MaxUint64/userHZ-1 {
 		return 0, false
 	}
@@ -531,14 +533,14 @@ func wrapRead(what string, err error) error {
 // after it; tok is nil when b holds only blanks.
 func nextToken(b []byte) (tok, rest []byte) {
 	i := 0
-	for i < len(b) && isSpace(b[i]) {
+	for i < len(b) && fields.IsSpace(b[i]) {
 		i++
 	}
 	if i == len(b) {
 		return nil, nil
 	}
 	j := i
-	for j < len(b) && !isSpace(b[j]) {
+	for j < len(b) && !fields.IsSpace(b[j]) {
 		j++
 	}
 	return b[i:j], b[j:]
@@ -546,47 +548,11 @@ func nextToken(b []byte) (tok, rest []byte) {
 
 // trimSpace returns b without leading and trailing blanks.
 func trimSpace(b []byte) []byte {
-	for len(b) > 0 && isSpace(b[0]) {
+	for len(b) > 0 && fields.IsSpace(b[0]) {
 		b = b[1:]
 	}
-	for len(b) > 0 && isSpace(b[len(b)-1]) {
+	for len(b) > 0 && fields.IsSpace(b[len(b)-1]) {
 		b = b[:len(b)-1]
 	}
 	return b
-}
-
-// spaceMask has bit c set for each byte c that separates tokens: space,
-// \t, \n, \v, \f and \r.
-const spaceMask = 1<<' ' | 1<<'\t' | 1<<'\n' | 1<<'\v' | 1<<'\f' | 1<<'\r'
-
-// isSpace reports whether c separates tokens.
-func isSpace(c byte) bool {
-	return c <= ' ' && uint64(1)<<c&spaceMask != 0
-}
-
-// parseUint parses a non-empty run of ASCII digits that fits in a uint64.
-func parseUint(b []byte) (uint64, bool) {
-	if len(b) == 0 {
-		return 0, false
-	}
-	if len(b) <= 19 { // below 10^19: no overflow
-		var v uint64
-		for _, c := range b {
-			d := c - '0'
-			if d > 9 {
-				return 0, false
-			}
-			v = v*10 + uint64(d)
-		}
-		return v, true
-	}
-	var v uint64
-	for _, c := range b {
-		d := uint64(c) - '0'
-		if d > 9 || v > (math.MaxUint64-d)/10 {
-			return 0, false
-		}
-		v = v*10 + d
-	}
-	return v, true
 }

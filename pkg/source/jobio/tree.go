@@ -5,6 +5,8 @@ import (
 	"errors"
 	"slices"
 	"syscall"
+
+	"sluice/pkg/source/internal/fields"
 )
 
 // File names opened in a kept cgroup directory.
@@ -383,7 +385,7 @@ func (s *Source) addPids(j *job, b []byte) {
 		if line = trimSpace(line); len(line) == 0 {
 			continue
 		}
-		if pid, ok := parseUint(line); ok && pid > 0 && pid <= maxPid {
+		if pid, ok := fields.ParseUint(line); ok && pid > 0 && pid <= maxPid {
 			s.pids = append(s.pids, int(pid))
 			continue
 		}

@@ -4,7 +4,6 @@ import (
 	"bufio"
 	"fmt"
 	"io"
-	"math"
 	"time"
 
 	"sluice/pkg/source/internal/fields"
@@ -177,25 +176,25 @@ func parseCounter(tok [][]byte) (Counter, bool) {
 		return c, false
 	}
 	var ok bool
-	if c.Samples, ok = parseUint(tok[1]); !ok {
+	if c.Samples, ok = fields.ParseUint(tok[1]); !ok {
 		return c, false
 	}
 	c.Fields = len(tok) - 4
 	if c.Fields >= 3 {
 		// Lustre prints these with %lld: a '-' sign fails parseUint, which
 		// is what we want, since a negative count or sum is corrupt.
-		if c.Min, ok = parseUint(tok[4]); !ok {
+		if c.Min, ok = fields.ParseUint(tok[4]); !ok {
 			return c, false
 		}
-		if c.Max, ok = parseUint(tok[5]); !ok {
+		if c.Max, ok = fields.ParseUint(tok[5]); !ok {
 			return c, false
 		}
-		if c.Sum, ok = parseUint(tok[6]); !ok {
+		if c.Sum, ok = fields.ParseUint(tok[6]); !ok {
 			return c, false
 		}
 	}
 	if c.Fields == 4 {
-		if c.SumSq, ok = parseUint(tok[7]); !ok {
+		if c.SumSq, ok = fields.ParseUint(tok[7]); !ok {
 			return c, false
 		}
 	}
@@ -232,11 +231,11 @@ func parseStamp(tok [][]byte) (time.Time, bool) {
 	if dot < 0 {
 		return time.Time{}, false
 	}
-	sec, ok := parseUint(v[:dot])
+	sec, ok := fields.ParseUint(v[:dot])
 	if !ok || sec > maxStampSec {
 		return time.Time{}, false
 	}
-	frac, ok := parseUint(v[dot+1:])
+	frac, ok := fields.ParseUint(v[dot+1:])
 	if !ok || frac >= limit {
 		return time.Time{}, false
 	}
@@ -244,24 +243,4 @@ func parseStamp(tok [][]byte) (time.Time, bool) {
 		return time.Time{}, true
 	}
 	return time.Unix(int64(sec), int64(frac*scale)), true
-}
-
-// parseUint parses a non-empty run of ASCII digits that fits in a uint64.
-// It works on the byte slice directly so that parsing allocates nothing.
-func parseUint(b []byte) (uint64, bool) {
-	if len(b) == 0 {
-		return 0, false
-	}
-	var v uint64
-	for _, c := range b {
-		d := uint64(c) - '0'
-		if d > 9 {
-			return 0, false
-		}
-		if v > (math.MaxUint64-d)/10 {
-			return 0, false
-		}
-		v = v*10 + d
-	}
-	return v, true
 }

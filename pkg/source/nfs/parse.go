@@ -4,7 +4,6 @@ import (
 	"bytes"
 	"fmt"
 	"io"
-	"math"
 
 	"sluice/pkg/source/internal/fields"
 )
@@ -303,7 +302,7 @@ func (p *parser) op(t [][]byte, n int) bool {
 	var v [9]uint64
 	for i, b := range t[1:n] {
 		var ok bool
-		if v[i], ok = parseUint(b); !ok {
+		if v[i], ok = fields.ParseUint(b); !ok {
 			return false
 		}
 	}
@@ -327,7 +326,7 @@ func (p *parser) numbersInto(t [][]byte, n int, dst []uint64) bool {
 	v := p.numbers[:len(dst)]
 	for i, b := range t[1:n] {
 		var ok bool
-		if v[i], ok = parseUint(b); !ok {
+		if v[i], ok = fields.ParseUint(b); !ok {
 			return false
 		}
 	}
@@ -340,7 +339,7 @@ func parseOne(t [][]byte, n int) (uint64, bool) {
 	if n != 2 {
 		return 0, false
 	}
-	return parseUint(t[1])
+	return fields.ParseUint(t[1])
 }
 
 // bad counts a skipped line.
@@ -398,23 +397,3 @@ func unescape(dst, b []byte) []byte {
 }
 
 func isOctal(c byte) bool { return c >= '0' && c <= '7' }
-
-// parseUint parses a non-empty run of ASCII digits that fits in a uint64,
-// without allocating.
-func parseUint(b []byte) (uint64, bool) {
-	if len(b) == 0 {
-		return 0, false
-	}
-	var v uint64
-	for _, c := range b {
-		d := uint64(c) - '0'
-		if d > 9 {
-			return 0, false
-		}
-		if v > (math.MaxUint64-d)/10 {
-			return 0, false
-		}
-		v = v*10 + d
-	}
-	return v, true
-}

@@ -1,6 +1,7 @@
 package fields_test
 
 import (
+	"strconv"
 	"strings"
 	"testing"
 
@@ -99,4 +100,32 @@ func BenchmarkSplit(b *testing.B) {
 			b.Fatal("wrong count")
 		}
 	}
+}
+
+func TestParseUintAgreesWithStrconv(t *testing.T) {
+	// Reference: the standard library's strconv.ParseUint(s, 10, 64), with
+	// signs and underscores (which it accepts in some forms) ruled out.
+	for _, in := range []string{"0", "7", "18446744073709551615", "18446744073709551616", "00012", "", "-1", "+1", "1_000", "12a", "9999999999999999999", "99999999999999999999", " 1"} {
+		got, ok := fields.ParseUint([]byte(in))
+		want, err := strconv.ParseUint(in, 10, 64)
+		plain := err == nil && !strings.ContainsAny(in, "+-_ ")
+		assert.Equal(t, plain, ok, "%q", in)
+		if plain {
+			assert.Equal(t, want, got, "%q", in)
+		}
+	}
+}
+
+func FuzzParseUint(f *testing.F) {
+	for _, s := range []string{"0", "18446744073709551615", "18446744073709551616", "x"} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, in string) {
+		got, ok := fields.ParseUint([]byte(in))
+		want, err := strconv.ParseUint(in, 10, 64) // reference: the standard library
+		plain := err == nil && !strings.ContainsAny(in, "+-_")
+		if ok != plain || (ok && got != want) {
+			t.Fatalf("ParseUint(%q) = %d, %v; strconv says %d, %v", in, got, ok, want, err)
+		}
+	})
 }
