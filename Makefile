@@ -44,13 +44,20 @@ lint:
 	    echo "go mod tidy changed go.mod/go.sum; run it and commit the result"; \
 	    cp /tmp/sluice-go.mod.bak go.mod; cp /tmp/sluice-go.sum.bak go.sum; exit 1; fi
 
-# Each fuzz target runs alone (go test -fuzz takes one target at a time).
+# Each fuzz target runs alone (go test -fuzz takes one target at a time). A
+# run that finds a failing input fails at once (the input is written under
+# the package's testdata/fuzz); a run that stops without one (a fuzzing
+# worker lost under load) is shown and tried once more.
 fuzz:
 	@set -e; for pkg in $$($(GO) list ./...); do \
 	  for t in $$($(GO) test -list '^Fuzz' $$pkg | grep '^Fuzz' || true); do \
 	    echo "fuzz $$pkg $$t ($(FUZZTIME))"; \
-	    $(GO) test -run '^$$' -fuzz "^$$t$$" -fuzztime $(FUZZTIME) $$pkg >/dev/null || \
-	      { $(GO) test -run '^$$' -fuzz "^$$t$$" -fuzztime $(FUZZTIME) $$pkg; exit 1; }; \
+	    if ! out=$$($(GO) test -run '^$$' -fuzz "^$$t$$" -fuzztime $(FUZZTIME) $$pkg 2>&1); then \
+	      echo "$$out" | tail -40; \
+	      if echo "$$out" | grep -q 'Failing input written to'; then exit 1; fi; \
+	      echo "fuzz $$t stopped without a failing input; trying once more"; \
+	      $(GO) test -run '^$$' -fuzz "^$$t$$" -fuzztime $(FUZZTIME) $$pkg || exit 1; \
+	    fi; \
 	  done; done
 
 bench:
