@@ -210,6 +210,33 @@ func (c *common) hook(log *slog.Logger) nodeagent.HookConfig {
 	return nodeagent.HookConfig{StateDir: c.stateDir, Node: c.node, NATSURL: c.natsURL, Prefix: c.prefix, Cluster: c.cluster, Logger: log}
 }
 
+// hook is a parsed hook command: its common flags, job id and time.
+type hook struct {
+	cfg nodeagent.HookConfig
+	id  string
+	at  time.Time
+}
+
+// parseHook parses a hook command's flags (after extra ones are added to
+// fs) and checks the id and time.
+func parseHook(cmd string, fs *flag.FlagSet, c *common, id, at *string, args []string, stderr io.Writer) (hook, error) {
+	if err := parseWithOptions(fs, args); err != nil {
+		return hook{}, err
+	}
+	log, err := c.logger(stderr)
+	if err != nil {
+		return hook{}, err
+	}
+	if *id == "" {
+		return hook{}, fmt.Errorf("%s: --id is required", cmd)
+	}
+	t, err := hookTime(*at)
+	if err != nil {
+		return hook{}, err
+	}
+	return hook{cfg: c.hook(log), id: *id, at: t}, nil
+}
+
 func jobStart(ctx context.Context, args []string, stderr io.Writer) error {
 	var c common
 	fs, id, at := hookFlags("agent job start", &c)
@@ -217,17 +244,7 @@ func jobStart(ctx context.Context, args []string, stderr io.Writer) error {
 	account := fs.String("account", "", "accounting project")
 	name := fs.String("name", "", "job name")
 	nodes := fs.String("nodes", "", "the job's node list, compact form allowed: bw[001-004],bw010")
-	if err := parseWithOptions(fs, args); err != nil {
-		return err
-	}
-	log, err := c.logger(stderr)
-	if err != nil {
-		return err
-	}
-	if *id == "" {
-		return errors.New("job start: --id is required")
-	}
-	t, err := hookTime(*at)
+	h, err := parseHook("job start", fs, &c, id, at, args, stderr)
 	if err != nil {
 		return err
 	}
@@ -235,27 +252,17 @@ func jobStart(ctx context.Context, args []string, stderr io.Writer) error {
 	if err != nil {
 		return fmt.Errorf("--nodes: %w", err)
 	}
-	rec := jobstate.Record{ID: *id, User: *user, Account: *account, Name: *name, Nodes: list, Start: t}
-	return nodeagent.JobStart(ctx, c.hook(log), rec)
+	rec := jobstate.Record{ID: h.id, User: *user, Account: *account, Name: *name, Nodes: list, Start: h.at}
+	return nodeagent.JobStart(ctx, h.cfg, rec)
 }
 
 func jobEnd(ctx context.Context, args []string, stderr io.Writer) error {
 	var c common
 	fs, id, at := hookFlags("agent job end", &c)
 	exit := fs.Int("exit-code", 0, "the job's exit code")
-	if err := parseWithOptions(fs, args); err != nil {
-		return err
-	}
-	log, err := c.logger(stderr)
+	h, err := parseHook("job end", fs, &c, id, at, args, stderr)
 	if err != nil {
 		return err
 	}
-	if *id == "" {
-		return errors.New("job end: --id is required")
-	}
-	t, err := hookTime(*at)
-	if err != nil {
-		return err
-	}
-	return nodeagent.JobEnd(ctx, c.hook(log), *id, t, int32(*exit))
+	return nodeagent.JobEnd(ctx, h.cfg, h.id, h.at, int32(*exit))
 }

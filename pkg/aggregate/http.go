@@ -36,12 +36,8 @@ func (s *Service) Snapshot() export.Snapshot {
 			running = append(running, j)
 		}
 	}
-	agents := make([]model.Agent, 0, len(s.agents))
-	for _, a := range s.agents {
-		agents = append(agents, a)
-	}
 	return export.Snapshot{
-		Agents:       agents,
+		Agents:       s.agentsLocked(),
 		Ingest:       s.ingest.Clone(),
 		Jobs:         running,
 		Cuts:         s.tr.Options().Cuts,
@@ -50,6 +46,15 @@ func (s *Service) Snapshot() export.Snapshot {
 		Nodes:        s.tr.Nodes(),
 		MaxJobSeries: s.opts.MaxJobSeries,
 	}
+}
+
+// agentsLocked copies the agents' latest status; the caller holds mu.
+func (s *Service) agentsLocked() []model.Agent {
+	agents := make([]model.Agent, 0, len(s.agents))
+	for _, a := range s.agents {
+		agents = append(agents, a)
+	}
+	return agents
 }
 
 // JobDetail is a job's summary with its closed windows, as
@@ -98,7 +103,9 @@ func (s *Service) handler() http.Handler {
 		writeJSON(w, JobDetail{Summary: sum, ClosedWindows: ws})
 	})
 	mux.HandleFunc("GET /api/v1/agents", func(w http.ResponseWriter, _ *http.Request) {
-		agents := s.Snapshot().Agents
+		s.mu.Lock()
+		agents := s.agentsLocked()
+		s.mu.Unlock()
 		slices.SortFunc(agents, func(a, b model.Agent) int { return strings.Compare(a.Node, b.Node) })
 		writeJSON(w, map[string]any{"agents": agents})
 	})
