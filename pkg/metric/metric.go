@@ -130,3 +130,23 @@ func RatesOf(v Values, seconds float64) Rates {
 	}
 	return r
 }
+
+// Set is a set of metrics, one bit per ID.
+type Set uint32
+
+// Add puts id in the set.
+func (s *Set) Add(id ID) { *s |= 1 << id }
+
+// Has reports whether id is in the set.
+func (s Set) Has(id ID) bool { return s&(1<<id) != 0 }
+
+// IDs lists the set's metrics in wire order.
+func (s Set) IDs() []ID {
+	var ids []ID
+	for id := range Count {
+		if s.Has(id) {
+			ids = append(ids, id)
+		}
+	}
+	return ids
+}

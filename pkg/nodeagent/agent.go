@@ -50,7 +50,9 @@ type Config struct {
 	Node string
 	// Interval is the sampling interval; zero means 5 seconds.
 	Interval time.Duration
-	// Sources are the counter sources to read, in order.
+	// Sources are the counter sources to read, in order. New hands each
+	// source.Summer its mapping row, so a source must not be shared with
+	// another agent built on a different mapping.
 	Sources []source.Source
 	// Mapping maps raw counters to metrics; nil means mapping.Default().
 	Mapping mapping.Table
@@ -166,6 +168,9 @@ func New(cfg Config) (*Agent, error) {
 	for _, s := range cfg.Sources {
 		a.deltas[s.Name()] = delta.NewTracker()
 		a.costs[s.Name()] = &cost{}
+		if sm, ok := s.(source.Summer); ok {
+			sm.SumWith(cfg.Mapping[s.Name()])
+		}
 	}
 	if a.seq, err = a.loadSeq(); err != nil {
 		return nil, err
@@ -256,8 +261,10 @@ func (a *Agent) Collect(ctx context.Context) (s wire.Sample, ok bool, err error)
 		insts := a.insts[:0]
 		jobOf := map[string]string{}
 		for _, r := range readings {
-			in := delta.Instance{Key: r.Key, Epoch: r.Epoch}
-			a.cfg.Mapping.Apply(src.Name(), r.Counters, &in.Values)
+			in := delta.Instance{Key: r.Key, Epoch: r.Epoch, Values: r.Sums}
+			if r.Counters != nil {
+				a.cfg.Mapping.Apply(src.Name(), r.Counters, &in.Values)
+			}
 			insts = append(insts, in)
 			if r.Job != "" {
 				jobOf[r.Key] = r.Job

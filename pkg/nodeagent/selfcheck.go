@@ -40,6 +40,9 @@ func (a *Agent) Check(ctx context.Context) ([]SourceReport, error) {
 					seen[id] = true
 				}
 			}
+			for _, id := range rd.Present.IDs() {
+				seen[id] = true
+			}
 		}
 		for id := range seen {
 			r.Metrics = append(r.Metrics, id)

@@ -17,6 +17,8 @@ import (
 	"context"
 	"errors"
 	"time"
+
+	"sluice/pkg/metric"
 )
 
 // ErrNoData means the source's files do not exist on this node (for example
@@ -37,6 +39,13 @@ type Reading struct {
 	// Counters maps raw counter names to cumulative values. A counter that
 	// is absent is zero (Lustre omits counters whose count is zero).
 	Counters map[string]uint64
+	// Sums holds the counters already summed into metrics, when the
+	// source was given its mapping row (see [Summer]); Counters is then nil.
+	Sums metric.Values
+	// Present is, in that case, the set of metrics that at least one
+	// counter present in the file maps to (even at zero), which is what
+	// "agent check" lists.
+	Present metric.Set
 	// Malformed counts lines that could not be parsed and were skipped.
 	Malformed int
 	// Job, when set, says the counters belong to that one job (a per-job
@@ -50,4 +59,14 @@ type Source interface {
 	Name() string
 	// Read returns one reading per instance found.
 	Read(ctx context.Context) ([]Reading, error)
+}
+
+// Summer is a Source that sums its raw counters into metrics as it reads,
+// given the mapping row of its kind (raw counter name to metric). The agent
+// hands every Summer its row: building and walking a counter map per
+// instance on every read was most of the agent's own cost. Readings then
+// carry Sums and Present instead of Counters.
+type Summer interface {
+	Source
+	SumWith(row map[string]metric.ID)
 }

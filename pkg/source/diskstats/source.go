@@ -78,6 +78,7 @@ type Source struct {
 	devs  []Device
 	state map[string]*devState
 	gen   uint64
+	plan  *plan // set by SumWith
 }
 
 // NewSource returns a Source reading <procRoot>/diskstats; an empty procRoot
@@ -174,11 +175,13 @@ func (s *Source) Read(ctx context.Context) ([]source.Reading, error) {
 			continue
 		}
 		ds.update(d)
-		readings = append(readings, source.Reading{
-			Key:      ds.key,
-			Time:     now,
-			Counters: ds.counters(),
-		})
+		r := source.Reading{Key: ds.key, Time: now}
+		if s.plan != nil {
+			s.plan.sum(ds, &r)
+		} else {
+			r.Counters = ds.counters()
+		}
+		readings = append(readings, r)
 	}
 	if seen != len(s.state) {
 		// A device went away: forget it, so that one coming back under

@@ -64,14 +64,20 @@ func (j *job) close() {
 	j.ioStatFile.close()
 }
 
-// reading returns the job's totals as a reading stamped t. The map is new
-// on every call, so that earlier readings stay intact.
-func (j *job) reading(t time.Time) source.Reading {
-	c := make(map[string]uint64, nCounters)
-	for i, name := range counterNames {
-		c[name] = j.totals[i]
+// reading returns the job's totals as a reading stamped t: summed by p
+// when the source has a plan, else as a counter map that is new on every
+// call, so that earlier readings stay intact.
+func (j *job) reading(t time.Time, p *plan) source.Reading {
+	r := source.Reading{Key: j.key, Job: j.id, Time: t, Malformed: j.errs.malformed}
+	if p != nil {
+		p.sum(j.totals, &r)
+		return r
 	}
-	return source.Reading{Key: j.key, Job: j.id, Time: t, Counters: c, Malformed: j.errs.malformed}
+	r.Counters = make(map[string]uint64, nCounters)
+	for i, name := range counterNames {
+		r.Counters[name] = j.totals[i]
+	}
+	return r
 }
 
 // procKey identifies a process across pid reuse: its pid and its start

@@ -92,6 +92,7 @@ type Source struct {
 
 	buf  []byte // file contents (io, stat, cgroup.procs, io.stat, uptime)
 	dbuf []byte // getdents64 records
+	plan *plan  // set by SumWith
 	pids []int
 
 	// Kept from one walk for the next.
@@ -236,7 +237,7 @@ func (s *Source) Read(ctx context.Context) ([]source.Reading, error) {
 			j.ioHave = false
 			j.ioStatFile.close()
 		}
-		readings = append(readings, j.reading(s.now()))
+		readings = append(readings, j.reading(s.now(), s.plan))
 		if err := j.errs.err(j.id); err != nil {
 			errs = append(errs, err)
 		}

@@ -30,6 +30,7 @@ type Source struct {
 	now     func() time.Time
 	br      *bufio.Reader
 	scratch []Counter
+	plan    *plan // set by SumWith
 
 	// mounts caches the instance directories found by the last listing;
 	// the root is listed again every rescanEvery reads, or at once when a
@@ -42,6 +43,8 @@ type Source struct {
 // mount is one instance directory and its open stats file.
 type mount struct {
 	name     string
+	key      string // the reading key, "lustre:<name>"
+	path     string // <root>/<name>/stats
 	f        *os.File  // nil until first read, and after a failed one
 	snapshot time.Time // snapshot_time at the last read
 	readAt   time.Time // Source clock at the last read
@@ -103,7 +106,7 @@ func (s *Source) Read(ctx context.Context) ([]source.Reading, error) {
 			errs = append(errs, fmt.Errorf("lustre: reading %s: %w", s.root, err))
 			break
 		}
-		path := filepath.Join(s.root, m.name, "stats")
+		path := m.path
 		now := s.now()
 		st, err := s.readMount(m, path, now)
 		if err != nil {
@@ -115,13 +118,13 @@ func (s *Source) Read(ctx context.Context) ([]source.Reading, error) {
 			errs = append(errs, fmt.Errorf("lustre: reading %s: %w", path, err))
 			continue
 		}
-		readings = append(readings, source.Reading{
-			Key:       "lustre:" + m.name,
-			Epoch:     epoch(st),
-			Time:      now,
-			Counters:  st.Raw(),
-			Malformed: st.Malformed,
-		})
+		r := source.Reading{Key: m.key, Epoch: epoch(st), Time: now, Malformed: st.Malformed}
+		if s.plan != nil {
+			s.plan.sum(st.Counters, &r)
+		} else {
+			r.Counters = st.Raw()
+		}
+		readings = append(readings, r)
 	}
 	if gone {
 		s.sinceScan = s.rescanEvery // an unmount: list again next time
@@ -154,7 +157,7 @@ func (s *Source) scan() error {
 		}
 		m := old[e.Name()]
 		if m == nil {
-			m = &mount{name: e.Name()}
+			m = &mount{name: e.Name(), key: "lustre:" + e.Name(), path: filepath.Join(s.root, e.Name(), "stats")}
 		}
 		delete(old, e.Name())
 		s.mounts = append(s.mounts, m)

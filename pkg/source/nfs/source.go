@@ -50,6 +50,7 @@ type Source struct {
 	state map[string]*mountState
 	keys  map[string]*deviceKey // by device
 	gen   uint64
+	plan  *plan // set by SumWith
 }
 
 // kept is one mount chosen for a reading.
@@ -162,13 +163,13 @@ func (s *Source) Read(ctx context.Context) ([]source.Reading, error) {
 		if !ok {
 			continue
 		}
-		readings = append(readings, source.Reading{
-			Key:       k.key,
-			Epoch:     epoch,
-			Time:      now,
-			Counters:  k.m.Raw(),
-			Malformed: k.malformed,
-		})
+		r := source.Reading{Key: k.key, Epoch: epoch, Time: now, Malformed: k.malformed}
+		if s.plan != nil {
+			s.plan.sum(k.m, &r)
+		} else {
+			r.Counters = k.m.Raw()
+		}
+		readings = append(readings, r)
 	}
 	for key, st := range s.state {
 		if st.gen != s.gen {

@@ -1,0 +1,49 @@
+// Package sourcetest checks that a source's summed readings (source.Summer)
+// equal its counter readings run through the mapping, for the tests of
+// every source package.
+package sourcetest
+
+import (
+	"context"
+	"testing"
+
+	"github.com/stretchr/testify/require"
+
+	"sluice/pkg/mapping"
+	"sluice/pkg/metric"
+	"sluice/pkg/source"
+)
+
+// SumsMatch reads plain (built without a mapping row) and summing (the
+// same files, after SumWith) once each and checks, reading by reading,
+// that Sums equals mapping.Table.Apply over Counters and that Present is
+// the set of metrics of the counters present.
+func SumsMatch(t *testing.T, table mapping.Table, plain source.Source, summing source.Summer) {
+	t.Helper()
+	row := table[plain.Name()]
+	require.NotNil(t, row, "no mapping row for %s", plain.Name())
+	summing.SumWith(row)
+	ctx := context.Background()
+	want, errPlain := plain.Read(ctx)
+	got, errSum := summing.Read(ctx)
+	require.Equal(t, errPlain == nil, errSum == nil, "errors differ: %v / %v", errPlain, errSum)
+	require.Len(t, got, len(want))
+	for i, w := range want {
+		g := got[i]
+		require.Nil(t, g.Counters, "a summing reading carries no counter map")
+		var sums metric.Values
+		table.Apply(plain.Name(), w.Counters, &sums)
+		var present metric.Set
+		for name := range w.Counters {
+			if id, ok := row[name]; ok {
+				present.Add(id)
+			}
+		}
+		require.Equal(t, w.Key, g.Key)
+		require.Equal(t, w.Epoch, g.Epoch)
+		require.Equal(t, w.Job, g.Job)
+		require.Equal(t, w.Malformed, g.Malformed)
+		require.Equal(t, sums, g.Sums, "sums of %s", w.Key)
+		require.Equal(t, present.IDs(), g.Present.IDs(), "present metrics of %s", w.Key)
+	}
+}

@@ -1,0 +1,33 @@
+package jobio
+
+import (
+	"sluice/pkg/metric"
+	"sluice/pkg/source"
+)
+
+// SumWith makes the source sum each job's counters into metrics as it
+// reads, by the mapping row of source kind "jobio" (see source.Summer): the
+// same sums as mapping.Table.Apply over the counter map, without building
+// it.
+func (s *Source) SumWith(row map[string]metric.ID) {
+	var p plan
+	for i, name := range counterNames {
+		p[i].id, p[i].ok = row[name]
+	}
+	s.plan = &p
+}
+
+// plan is the metric, if any, of each counter in counterNames order.
+type plan [nCounters]struct {
+	id metric.ID
+	ok bool
+}
+
+func (p *plan) sum(totals [nCounters]uint64, r *source.Reading) {
+	for i, v := range totals {
+		if p[i].ok {
+			r.Sums[p[i].id] += v
+			r.Present.Add(p[i].id)
+		}
+	}
+}

@@ -1,0 +1,41 @@
+package nfs_test
+
+import (
+	"os"
+	"path/filepath"
+	"testing"
+
+	"github.com/stretchr/testify/require"
+
+	"sluice/pkg/mapping"
+	"sluice/pkg/metric"
+	"sluice/pkg/source/internal/sourcetest"
+	"sluice/pkg/source/nfs"
+)
+
+// TestSumsEqualMappedCounters checks the summing read path against
+// Mount.Raw through the default mapping, and through one that also maps
+// events, an unknown operation and a latency-free byte field, on every
+// fixture.
+func TestSumsEqualMappedCounters(t *testing.T) {
+	t.Parallel()
+	extra := mapping.Default()
+	extra["nfs"]["events.inode_revalidate"] = metric.StatOps
+	extra["nfs"]["events.fsync"] = metric.Syncs
+	extra["nfs"]["op.NO_SUCH_OP"] = metric.OtherOps
+	extra["nfs"]["bytes.server_read"] = metric.OtherOps
+	cases, err := os.ReadDir(testdata)
+	require.NoError(t, err)
+	for _, c := range cases {
+		data, err := os.ReadFile(filepath.Join(testdata, c.Name(), "mountstats"))
+		if err != nil {
+			continue
+		}
+		for name, table := range map[string]mapping.Table{"default": mapping.Default(), "extra": extra} {
+			t.Run(c.Name()+"/"+name, func(t *testing.T) {
+				root, _ := procRoot(t, data)
+				sourcetest.SumsMatch(t, table, nfs.NewSource(root, nil), nfs.NewSource(root, nil))
+			})
+		}
+	}
+}
