@@ -43,8 +43,8 @@ type Source struct {
 // mount is one instance directory and its open stats file.
 type mount struct {
 	name     string
-	key      string // the reading key, "lustre:<name>"
-	path     string // <root>/<name>/stats
+	key      string    // the reading key, "lustre:<name>"
+	path     string    // <root>/<name>/stats
 	f        *os.File  // nil until first read, and after a failed one
 	snapshot time.Time // snapshot_time at the last read
 	readAt   time.Time // Source clock at the last read
