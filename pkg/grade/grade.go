@@ -33,6 +33,7 @@ package grade
 
 import (
 	"fmt"
+	"math"
 	"strings"
 )
 
@@ -116,4 +117,18 @@ func Format(gs []Grade) string {
 		b.WriteByte(g.Byte())
 	}
 	return b.String()
+}
+
+// Seed returns grade cuts for a metric the baseline has not learned yet:
+// the elevated and critical seed cut points on top, and below them three
+// cuts that split the span from the idle floor to the elevated cut evenly
+// on a log scale, standing in for p50, p75 and p90 (common practice: I/O
+// rates spread over orders of magnitude).
+func Seed(floor, elevated, critical float64) Cuts {
+	var c Cuts
+	for i := range 3 {
+		c[i] = floor * math.Pow(elevated/floor, float64(i+1)/4)
+	}
+	c[3], c[4] = elevated, critical
+	return c
 }

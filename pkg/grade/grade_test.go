@@ -52,3 +52,10 @@ func TestParseFormat(t *testing.T) {
 	assert.ErrorContains(t, err, `character 4 is '7'`)
 	assert.Equal(t, "grade(9)", grade.Grade(9).String())
 }
+
+// Seed cuts for floor 1, elevated 10000: 10, 100, 1000 (10000^(1/4) = 10,
+// worked by hand), then the seed level cuts.
+func TestSeed(t *testing.T) {
+	c := grade.Seed(1, 1e4, 1e5)
+	assert.InDeltaSlice(t, []float64{10, 100, 1000, 1e4, 1e5}, c[:], 1e-9)
+}

@@ -127,11 +127,15 @@ func (c Cuts) Classify(id metric.ID, rate float64) Level {
 }
 
 // Idle reports whether rate is below the idle floor of metric id.
-func Idle(id metric.ID, rate float64) bool {
+func Idle(id metric.ID, rate float64) bool { return rate < Floor(id) }
+
+// Floor is the idle floor of metric id: IdleBytesPerSecond for byte
+// metrics, IdleOpsPerSecond for the others.
+func Floor(id metric.ID) float64 {
 	if id.IsBytes() {
-		return rate < IdleBytesPerSecond
+		return IdleBytesPerSecond
 	}
-	return rate < IdleOpsPerSecond
+	return IdleOpsPerSecond
 }
 
 // Levels holds one level per metric.

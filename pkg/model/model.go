@@ -19,6 +19,7 @@ import (
 
 	"sluice/pkg/level"
 	"sluice/pkg/metric"
+	"sluice/pkg/signature"
 )
 
 // JobMeta is what the scheduler hooks tell about a job.
@@ -48,8 +49,16 @@ type Window struct {
 	Nodes int       `json:"nodes"` // nodes that reported in the window
 	// Rates is the mean over reporting nodes of each node's rate
 	// (bytes/s or ops/s), indexed by metric.ID.
-	Rates  metric.Rates `json:"rates"`
-	Levels level.Levels `json:"levels"`
+	Rates  metric.Rates     `json:"rates"`
+	Levels level.Levels     `json:"levels"`
+	Grades signature.Grades `json:"grades"`
+	// BusiestShare is the busiest node's share of the job's data bytes
+	// (read plus write) in the window, 0 to 1; 1 for a one-node job and 0
+	// when no bytes moved. NodeSpread is the coefficient of variation of
+	// the per-node data byte rates (population standard deviation over
+	// mean; 0 for one node or no bytes).
+	BusiestShare float64 `json:"busiest_share"`
+	NodeSpread   float64 `json:"node_spread"`
 }
 
 // Flag is a finding about a running job: why, since when, how strong.
@@ -75,14 +84,18 @@ func (f Flag) Active() bool { return f.Cleared.IsZero() }
 // Summary is a running or recently ended job as the API lists it.
 type Summary struct {
 	JobMeta
-	State       string       `json:"state"` // "running" or "ended"
-	NodesSeen   int          `json:"nodes_seen"`
-	LastSample  time.Time    `json:"last_sample,omitzero"`
-	Live        metric.Rates `json:"live"` // live-window per-node rates
-	LiveLevels  level.Levels `json:"live_levels"`
-	Windows     int          `json:"windows"` // closed windows
-	LastWindow  *Window      `json:"last_window,omitempty"`
-	ActiveFlags []Flag       `json:"flags"`
+	State      string           `json:"state"` // "running" or "ended"
+	NodesSeen  int              `json:"nodes_seen"`
+	LastSample time.Time        `json:"last_sample,omitzero"`
+	Live       metric.Rates     `json:"live"` // live-window per-node rates
+	LiveLevels level.Levels     `json:"live_levels"`
+	LiveGrades signature.Grades `json:"live_grades"`
+	// Signature is each metric's signature in compact text form
+	// (signature.Signature.Text), keyed by metric name.
+	Signature   map[string]string `json:"signature"`
+	Windows     int               `json:"windows"` // closed windows
+	LastWindow  *Window           `json:"last_window,omitempty"`
+	ActiveFlags []Flag            `json:"flags"`
 }
 
 // Agent is what the latest heartbeats of one node's agent say.

@@ -14,8 +14,9 @@
 //
 // The binary form ([Signature.MarshalBinary]) is what the store keeps:
 // a version byte, the window count, then per metric the number of runs and
-// each run as a grade byte and a uvarint length. A job that spends hours at
-// one grade costs three bytes per metric.
+// each run as a grade byte and a uvarint length, then a byte saying whether
+// a live entry follows (0 or 1) and, if so, its grades, one byte per
+// metric. A job that spends hours at one grade costs three bytes per metric.
 //
 // # Caveats
 //
@@ -37,6 +38,23 @@ import (
 
 // Grades is one window's grade per metric, indexed by metric.ID.
 type Grades [metric.Count]grade.Grade
+
+// MarshalText writes the grades as a digit string in metric order, e.g.
+// "000000600400", so that JSON records stay short and readable.
+func (g Grades) MarshalText() ([]byte, error) { return []byte(grade.Format(g[:])), nil }
+
+// UnmarshalText reads the form MarshalText writes.
+func (g *Grades) UnmarshalText(b []byte) error {
+	gs, err := grade.Parse(string(b))
+	if err != nil {
+		return err
+	}
+	if len(gs) != len(g) {
+		return fmt.Errorf("grades %q: %d digits, want %d", b, len(gs), len(g))
+	}
+	copy(g[:], gs)
+	return nil
+}
 
 // Run is Count consecutive windows at one grade.
 type Run struct {
@@ -108,7 +126,10 @@ func (s *Signature) Text(id metric.ID) string {
 		}
 	}
 	if s.HasLive {
-		b.WriteString(" |")
+		if b.Len() > 0 {
+			b.WriteByte(' ')
+		}
+		b.WriteByte('|')
 		b.WriteByte(s.Live[id].Byte())
 	}
 	return b.String()
@@ -117,8 +138,7 @@ func (s *Signature) Text(id metric.ID) string {
 // version is the first byte of the binary form.
 const version = 1
 
-// MarshalBinary encodes the closed windows' runs (the live entry is not
-// kept: it is provisional).
+// MarshalBinary encodes the closed windows' runs and the live entry.
 func (s *Signature) MarshalBinary() ([]byte, error) {
 	b := []byte{version}
 	b = binary.AppendUvarint(b, uint64(s.Windows))
@@ -128,6 +148,13 @@ func (s *Signature) MarshalBinary() ([]byte, error) {
 			b = append(b, byte(r.Grade))
 			b = binary.AppendUvarint(b, uint64(r.Count))
 		}
+	}
+	if !s.HasLive {
+		return append(b, 0), nil
+	}
+	b = append(b, 1)
+	for _, g := range s.Live {
+		b = append(b, byte(g))
 	}
 	return b, nil
 }
@@ -164,6 +191,7 @@ func (s *Signature) UnmarshalBinary(b []byte) error {
 			d.fail("%s: runs cover %d windows, want %d", metric.ID(id), total, windows)
 		}
 	}
+	d.live(&out)
 	if d.err == nil && len(d.b) > 0 {
 		d.fail("%d trailing bytes", len(d.b))
 	}
@@ -197,6 +225,33 @@ func (d *decoder) uvarint() uint64 {
 	}
 	d.b = d.b[n:]
 	return v
+}
+
+func (d *decoder) live(s *Signature) {
+	if d.err != nil {
+		return
+	}
+	if len(d.b) == 0 || d.b[0] > 1 {
+		d.fail("want a live flag of 0 or 1")
+		return
+	}
+	has := d.b[0] == 1
+	d.b = d.b[1:]
+	if !has {
+		return
+	}
+	if len(d.b) < len(s.Live) {
+		d.fail("truncated live grades")
+		return
+	}
+	for i := range s.Live {
+		if s.Live[i] = grade.Grade(d.b[i]); s.Live[i] >= grade.Count {
+			d.fail("live grade %d", d.b[i])
+			return
+		}
+	}
+	d.b = d.b[len(s.Live):]
+	s.HasLive = true
 }
 
 func (d *decoder) run(id metric.ID) Run {

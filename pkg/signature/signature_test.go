@@ -77,6 +77,9 @@ func TestIncrementalEqualsBatch(t *testing.T) {
 		}
 		batch := signature.Build(windows)
 		require.Equal(t, batch, inc, "trial %d", trial)
+		if r.IntN(2) == 0 {
+			inc.SetLive(randomWindows(r, 1)[0])
+		}
 		for id := range metric.Count {
 			seq := inc.Sequence(id)
 			require.Len(t, seq, len(windows))
@@ -88,7 +91,7 @@ func TestIncrementalEqualsBatch(t *testing.T) {
 		require.NoError(t, err)
 		var back signature.Signature
 		require.NoError(t, back.UnmarshalBinary(b))
-		require.Equal(t, batch, back)
+		require.Equal(t, inc, back)
 	}
 }
 
@@ -99,8 +102,8 @@ func TestCompact(t *testing.T) {
 	}
 	b, err := s.MarshalBinary()
 	require.NoError(t, err)
-	// version, 2-byte window count, then per metric 1 + 1 + 2 bytes.
-	assert.Equal(t, 1+2+int(metric.Count)*4, len(b))
+	// version, 2-byte window count, per metric 1 + 1 + 2 bytes, no live.
+	assert.Equal(t, 1+2+int(metric.Count)*4+1, len(b))
 }
 
 func TestUnmarshalRejects(t *testing.T) {
@@ -116,9 +119,12 @@ func TestUnmarshalRejects(t *testing.T) {
 	}{
 		{"empty", nil, "version"},
 		{"wrong version", append([]byte{9}, good[1:]...), "version"},
-		{"truncated count", good[:len(good)-1], "bad varint"},
-		{"truncated run", good[:len(good)-2], "truncated run"},
+		{"no live flag", good[:len(good)-1], "live flag"},
+		{"truncated count", good[:len(good)-2], "bad varint"},
+		{"truncated run", good[:len(good)-3], "truncated run"},
 		{"trailing", append(append([]byte{}, good...), 0), "trailing"},
+		{"bad live flag", append(append([]byte{}, good[:len(good)-1]...), 2), "live flag"},
+		{"truncated live", append(append([]byte{}, good[:len(good)-1]...), 1, 0), "truncated live"},
 		{"bad grade", func() []byte { b := append([]byte{}, good...); b[3] = 7; return b }(), "grade 7"},
 		{"zero run", func() []byte { b := append([]byte{}, good...); b[4] = 0; return b }(), "run of 0"},
 		{"runs do not add up", func() []byte { b := append([]byte{}, good...); b[1] = 3; return b }(), "cover 2 windows, want 3"},
@@ -141,6 +147,9 @@ func FuzzUnmarshal(f *testing.F) {
 	b, _ := s.MarshalBinary()
 	f.Add(b)
 	f.Add([]byte{1, 0})
+	s.SetLive(s.Live)
+	b, _ = s.MarshalBinary()
+	f.Add(b)
 	f.Fuzz(func(t *testing.T, data []byte) {
 		var got signature.Signature
 		if err := got.UnmarshalBinary(data); err != nil {

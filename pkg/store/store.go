@@ -14,6 +14,7 @@
 //	windows  job id, 0x00, 8-byte big-endian index -> model.Window
 //	flags    flag id -> model.Flag
 //	nodes    node -> tracker.SeqSet
+//	signatures job id -> signature.Signature in its binary form
 //
 // # Caveats
 //
@@ -33,6 +34,7 @@ import (
 	bolterr "go.etcd.io/bbolt/errors"
 
 	"sluice/pkg/model"
+	"sluice/pkg/signature"
 	"sluice/pkg/tracker"
 )
 
@@ -45,7 +47,8 @@ var (
 	bucketWindows = []byte("windows")
 	bucketFlags   = []byte("flags")
 	bucketNodes   = []byte("nodes")
-	allBuckets    = [][]byte{bucketMeta, bucketJobs, bucketWindows, bucketFlags, bucketNodes}
+	bucketSigs    = []byte("signatures")
+	allBuckets    = [][]byte{bucketMeta, bucketJobs, bucketWindows, bucketFlags, bucketNodes, bucketSigs}
 )
 
 // ErrLocked means another process holds the file.
@@ -139,7 +142,7 @@ func (b *Batch) Empty() bool {
 func (s *Store) Apply(b *Batch) error {
 	err := s.db.Update(func(tx *bolt.Tx) error {
 		for i := range b.Jobs {
-			if err := putJSON(tx.Bucket(bucketJobs), []byte(b.Jobs[i].Meta.ID), &b.Jobs[i]); err != nil {
+			if err := putJob(tx, &b.Jobs[i]); err != nil {
 				return err
 			}
 		}
@@ -175,6 +178,20 @@ func (s *Store) Apply(b *Batch) error {
 	return nil
 }
 
+// putJob writes a job's record and, apart, its signature. Signatures of
+// forgotten jobs stay, like their windows.
+func putJob(tx *bolt.Tx, j *tracker.JobState) error {
+	key := []byte(j.Meta.ID)
+	if err := putJSON(tx.Bucket(bucketJobs), key, j); err != nil {
+		return err
+	}
+	sig, err := j.Signature.MarshalBinary()
+	if err != nil {
+		return fmt.Errorf("encode signature of %q: %w", key, err)
+	}
+	return tx.Bucket(bucketSigs).Put(key, sig)
+}
+
 func putJSON(b *bolt.Bucket, key []byte, v any) error {
 	data, err := json.Marshal(v)
 	if err != nil {
@@ -205,6 +222,9 @@ func (s *Store) Load() (State, error) {
 			var j tracker.JobState
 			if err := json.Unmarshal(v, &j); err != nil {
 				return fmt.Errorf("job %q: %w", k, err)
+			}
+			if err := loadSignature(tx, &j); err != nil {
+				return err
 			}
 			st.Jobs = append(st.Jobs, j)
 			return nil
@@ -238,23 +258,65 @@ func (s *Store) Load() (State, error) {
 	return st, nil
 }
 
+// loadSignature reads a job's signature, or rebuilds it from the job's
+// stored windows when the file has none (written before signatures were
+// kept): both give the same signature.
+func loadSignature(tx *bolt.Tx, j *tracker.JobState) error {
+	if b := tx.Bucket(bucketSigs).Get([]byte(j.Meta.ID)); b != nil {
+		if err := j.Signature.UnmarshalBinary(b); err != nil {
+			return fmt.Errorf("signature of job %q: %w", j.Meta.ID, err)
+		}
+		return nil
+	}
+	ws, err := windowsOf(tx, j.Meta.ID)
+	if err != nil {
+		return err
+	}
+	j.Signature = signature.Build(gradesOf(ws))
+	return nil
+}
+
+func gradesOf(ws []model.Window) []signature.Grades {
+	gs := make([]signature.Grades, len(ws))
+	for i, w := range ws {
+		gs[i] = w.Grades
+	}
+	return gs
+}
+
+// Signature rebuilds a job's signature from its stored windows.
+func (s *Store) Signature(job string) (signature.Signature, error) {
+	ws, err := s.Windows(job)
+	if err != nil {
+		return signature.Signature{}, err
+	}
+	return signature.Build(gradesOf(ws)), nil
+}
+
 // Windows returns a job's closed windows in index order.
 func (s *Store) Windows(job string) ([]model.Window, error) {
 	var ws []model.Window
-	prefix := append([]byte(job), 0)
 	err := s.db.View(func(tx *bolt.Tx) error {
-		c := tx.Bucket(bucketWindows).Cursor()
-		for k, v := c.Seek(prefix); k != nil && len(k) == len(prefix)+8 && string(k[:len(prefix)]) == string(prefix); k, v = c.Next() {
-			var w model.Window
-			if err := json.Unmarshal(v, &w); err != nil {
-				return fmt.Errorf("window %q: %w", k, err)
-			}
-			ws = append(ws, w)
-		}
-		return nil
+		var err error
+		ws, err = windowsOf(tx, job)
+		return err
 	})
 	if err != nil {
 		return nil, fmt.Errorf("store %s: windows of %s: %w", s.path, job, err)
+	}
+	return ws, nil
+}
+
+func windowsOf(tx *bolt.Tx, job string) ([]model.Window, error) {
+	var ws []model.Window
+	prefix := append([]byte(job), 0)
+	c := tx.Bucket(bucketWindows).Cursor()
+	for k, v := c.Seek(prefix); k != nil && len(k) == len(prefix)+8 && string(k[:len(prefix)]) == string(prefix); k, v = c.Next() {
+		var w model.Window
+		if err := json.Unmarshal(v, &w); err != nil {
+			return nil, fmt.Errorf("window %q: %w", k, err)
+		}
+		ws = append(ws, w)
 	}
 	return ws, nil
 }

@@ -9,6 +9,7 @@ import (
 	"sluice/pkg/level"
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
+	"sluice/pkg/signature"
 )
 
 // EventKind says what changed.
@@ -56,17 +57,18 @@ func (t *Tracker) evaluate(j *JobState) {
 	}
 	j.LiveRates = meanRate(nodes)
 	j.LiveNodes = len(nodes)
+	var live signature.Grades
+	j.LiveLevels, live = t.coding.code(j.LiveRates)
+	j.Signature.SetLive(live)
 	for i, r := range j.LiveRates {
-		id := metric.ID(i)
-		j.LiveLevels[i] = t.opts.Cuts.Classify(id, r)
-		t.step(j, id, r)
+		t.step(j, metric.ID(i), r)
 	}
 	t.dirtyJobs[j.Meta.ID] = struct{}{}
 }
 
 func (t *Tracker) step(j *JobState, id metric.ID, rate float64) {
 	h := &j.Hyst[id]
-	cut := t.opts.Cuts[id].Critical
+	cut := t.coding.Levels[id].Critical
 	now := j.LastSample
 	if rate > cut {
 		if h.Above == 0 {
@@ -146,10 +148,15 @@ func summarize(j *JobState) model.Summary {
 		LastSample:  j.LastSample,
 		Live:        j.LiveRates,
 		LiveLevels:  j.LiveLevels,
+		LiveGrades:  j.Signature.Live,
+		Signature:   make(map[string]string, metric.Count),
 		Windows:     j.Closed,
 		ActiveFlags: []model.Flag{},
 	}
 	s.Nodes = append([]string(nil), j.Meta.Nodes...)
+	for id := range metric.Count {
+		s.Signature[id.String()] = j.Signature.Text(id)
+	}
 	if j.Finished {
 		s.State = "ended"
 	}
@@ -236,6 +243,9 @@ func (j *JobState) clone() JobState {
 	if j.LastWindow != nil {
 		w := *j.LastWindow
 		c.LastWindow = &w
+	}
+	for i := range c.Signature.Runs {
+		c.Signature.Runs[i] = slices.Clone(j.Signature.Runs[i])
 	}
 	for i, h := range j.Hyst {
 		if h.Flag != nil {

@@ -2,12 +2,14 @@ package tracker
 
 import (
 	"maps"
+	"math"
 	"slices"
 	"time"
 
 	"sluice/pkg/level"
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
+	"sluice/pkg/signature"
 )
 
 // JobState is everything the tracker holds about one job. It is exported
@@ -31,6 +33,9 @@ type JobState struct {
 	LiveNodes  int                      `json:"live_nodes"`
 	Hyst       [metric.Count]Hysteresis `json:"hyst"`
 	Finished   bool                     `json:"finished,omitempty"`
+	// Signature is the job's grades so far. The store keeps it in its own
+	// compact form, not in the job record.
+	Signature signature.Signature `json:"-"`
 
 	dirty bool // samples since the last evaluation
 }
@@ -101,6 +106,7 @@ func (t *Tracker) closeWindows(j *JobState, now time.Time) {
 			end = j.Meta.End
 		}
 		w := t.windowOf(j.Meta.ID, idx, start, end, j.Open[idx])
+		j.Signature.Append(w.Grades)
 		delete(j.Open, idx)
 		j.Closed = idx + 1
 		j.LastWindow = &w
@@ -111,11 +117,35 @@ func (t *Tracker) closeWindows(j *JobState, now time.Time) {
 
 func (t *Tracker) windowOf(job string, idx int, start, end time.Time, ow *OpenWindow) model.Window {
 	w := model.Window{Job: job, Index: idx, Start: start, End: end, Nodes: len(ow.Nodes)}
-	w.Rates = meanRate(slices.Collect(maps.Values(ow.Nodes)))
-	for i, r := range w.Rates {
-		w.Levels[i] = t.opts.Cuts.Classify(metric.ID(i), r)
-	}
+	nodes := slices.Collect(maps.Values(ow.Nodes))
+	w.Rates = meanRate(nodes)
+	w.Levels, w.Grades = t.coding.code(w.Rates)
+	w.BusiestShare, w.NodeSpread = balance(nodes)
 	return w
+}
+
+// balance returns the busiest node's share of the data bytes and the
+// coefficient of variation of the nodes' data byte rates (see
+// model.Window).
+func balance(nodes []*Accum) (busiest, spread float64) {
+	var sum, sumSq, top float64
+	n := 0
+	for _, a := range nodes {
+		if a.Seconds <= 0 {
+			continue
+		}
+		n++
+		r := float64(a.Values[metric.ReadBytes]+a.Values[metric.WriteBytes]) / a.Seconds
+		sum += r
+		sumSq += r * r
+		top = max(top, r)
+	}
+	if n == 0 || sum == 0 {
+		return 0, 0
+	}
+	mean := sum / float64(n)
+	variance := max(sumSq/float64(n)-mean*mean, 0)
+	return top / sum, math.Sqrt(variance) / mean
 }
 
 // meanRate is the mean over nodes of each node's rate (sum of its deltas

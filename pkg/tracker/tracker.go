@@ -49,7 +49,8 @@ type Options struct {
 	// Grace is how long past a window's end (in event time) samples are
 	// still taken for it before it closes; zero means 15 seconds.
 	Grace time.Duration
-	// Cuts are the cut points; the zero value means level.DefaultCuts().
+	// Cuts are the seed cut points, in force until SetCoding replaces
+	// them; the zero value means level.DefaultCuts().
 	Cuts level.Cuts
 	// RaiseAfter is how many consecutive live evaluations above a critical
 	// cut raise a flag; zero means 2.
@@ -125,6 +126,7 @@ type Counters struct {
 // Tracker holds every tracked job and node; see the package doc.
 type Tracker struct {
 	opts      Options
+	coding    Coding
 	jobs      map[string]*JobState
 	nodes     map[string]*SeqSet
 	watermark time.Time
@@ -141,14 +143,23 @@ func New(opts Options) (*Tracker, error) {
 	if err := opts.Validate(); err != nil {
 		return nil, fmt.Errorf("tracker options: %w", err)
 	}
+	opts = opts.withDefaults()
 	return &Tracker{
-		opts:       opts.withDefaults(),
+		opts:       opts,
+		coding:     SeedCoding(opts.Cuts),
 		jobs:       make(map[string]*JobState),
 		nodes:      make(map[string]*SeqSet),
 		dirtyJobs:  make(map[string]struct{}),
 		dirtyNodes: make(map[string]struct{}),
 	}, nil
 }
+
+// SetCoding replaces the cut points and grade cuts that windows closing
+// from now on, and live evaluations, are coded against.
+func (t *Tracker) SetCoding(c Coding) { t.coding = c }
+
+// Coding returns the coding in force.
+func (t *Tracker) Coding() Coding { return t.coding }
 
 // Options returns the options in force, defaults filled in.
 func (t *Tracker) Options() Options { return t.opts }

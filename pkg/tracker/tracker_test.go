@@ -258,3 +258,67 @@ func TestRestoreResumesExactly(t *testing.T) {
 	sb, _ := b.Job("3")
 	assert.Equal(t, sa, sb)
 }
+
+// TestOscillationRaisesAtMostOneFlag feeds a creates rate that crosses the
+// critical cut (1000/s by default) back and forth: twice above, once
+// below, for many rounds. With RaiseAfter 2 and ClearAfter 3 one flag is
+// raised and never cleared while the oscillation lasts.
+func TestOscillationRaisesAtMostOneFlag(t *testing.T) {
+	tr := newTracker(t, tracker.Options{Window: time.Hour, Live: 10 * time.Second, Grace: time.Second})
+	startJob(t, tr, "81234", "bw001")
+	raised, cleared := 0, 0
+	for i := range 60 {
+		creates := 12000 // 1200/s over 10 s: above
+		if i%3 == 2 {
+			creates = 8000 // 800/s: below
+		}
+		from := time.Duration(i) * 10 * time.Second
+		require.NoError(t, tr.Sample(sample("bw001", uint64(i+1), from, from+10*time.Second, []string{"81234"}, vals(metric.Creates, creates))))
+		tr.Tick()
+		for _, e := range tr.Drain() {
+			switch e.Kind {
+			case tracker.FlagRaised:
+				raised++
+			case tracker.FlagCleared:
+				cleared++
+			}
+		}
+	}
+	assert.Equal(t, 1, raised)
+	assert.Equal(t, 0, cleared)
+}
+
+// TestWindowsAreCodedAgainstTheCodingInForce checks levels and grades of a
+// closed window on hand-picked cuts, and that the signature grows with it.
+func TestWindowsAreCodedAgainstTheCodingInForce(t *testing.T) {
+	tr := newTracker(t, tracker.Options{Window: time.Minute, Live: 10 * time.Second, Grace: time.Second})
+	c := tr.Coding()
+	c.Levels[metric.Creates] = level.Cut{Elevated: 50, Critical: 100}
+	c.Grades[metric.Creates] = [5]float64{2, 5, 10, 50, 100}
+	tr.SetCoding(c)
+	startJob(t, tr, "81234", "bw001", "bw002")
+	// bw001 20 creates/s and bw002 100 creates/s: mean 60/s, above the
+	// elevated cut 50: level elevated, grade 5. Bytes: bw001 3 MB/s,
+	// bw002 1 MB/s: busiest share 3/4; CV = sd(3,1)/mean(3,1) = 1/2.
+	for i := range 6 {
+		from := time.Duration(i) * 10 * time.Second
+		require.NoError(t, tr.Sample(sample("bw001", uint64(i+1), from, from+10*time.Second, []string{"81234"}, vals(metric.Creates, 200, metric.WriteBytes, 30_000_000))))
+		require.NoError(t, tr.Sample(sample("bw002", uint64(i+1), from, from+10*time.Second, []string{"81234"}, vals(metric.Creates, 1000, metric.WriteBytes, 10_000_000))))
+	}
+	require.NoError(t, tr.Sample(sample("bw001", 7, 60*time.Second, 65*time.Second, []string{"81234"}, metric.Values{})))
+	var w *tracker.Event
+	for _, e := range tr.Drain() {
+		if e.Kind == tracker.WindowClosed {
+			w = &e
+		}
+	}
+	require.NotNil(t, w)
+	assert.Equal(t, level.Elevated, w.Window.Levels[metric.Creates])
+	assert.EqualValues(t, 5, w.Window.Grades[metric.Creates])
+	assert.EqualValues(t, 0, w.Window.Grades[metric.Syncs], "idle")
+	assert.InDelta(t, 0.75, w.Window.BusiestShare, 1e-12)
+	assert.InDelta(t, 0.5, w.Window.NodeSpread, 1e-12)
+	s, ok := tr.Job("81234")
+	require.True(t, ok)
+	assert.Equal(t, "5", s.Signature["creates"])
+}
