@@ -66,4 +66,3 @@ func persist(t *testing.T, s *store.Store, tr *tracker.Tracker) {
 	b.Jobs, b.GoneJobs = tr.DirtyJobs()
 	require.NoError(t, s.Apply(&b))
 }
-
