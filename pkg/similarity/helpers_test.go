@@ -1,0 +1,79 @@
+package similarity_test
+
+import (
+	"math/rand/v2"
+	"testing"
+
+	"github.com/stretchr/testify/require"
+
+	"sluice/pkg/grade"
+	"sluice/pkg/metric"
+	"sluice/pkg/similarity"
+)
+
+// randGrade draws a grade below top+1.
+func randGrade(r *rand.Rand, top int) grade.Grade { return grade.Grade(r.IntN(top + 1)) }
+
+// randMetrics draws k distinct metric indexes in random order.
+func randMetrics(r *rand.Rand, k int) []int {
+	return r.Perm(int(metric.Count))[:k]
+}
+
+// randWindows draws n windows of width grades below top+1.
+func randWindows(r *rand.Rand, n, width, top int) [][]grade.Grade {
+	out := make([][]grade.Grade, n)
+	for i := range out {
+		out[i] = make([]grade.Grade, width)
+		for t := range out[i] {
+			out[i][t] = randGrade(r, top)
+		}
+	}
+	return out
+}
+
+// randPattern draws a pattern of m windows over k metrics.
+func randPattern(t testing.TB, r *rand.Rand, m, k, top int) *similarity.Pattern {
+	t.Helper()
+	p, err := similarity.NewPattern(randMetrics(r, k), randWindows(r, m, k, top))
+	require.NoError(t, err)
+	return p
+}
+
+// randText draws n full job windows.
+func randText(r *rand.Rand, n, top int) [][]grade.Grade {
+	return randWindows(r, n, int(metric.Count), top)
+}
+
+// mustPattern builds a pattern from per-window digit strings, e.g.
+// mustPattern(t, []int{0, 1}, "01", "66") is two windows over metrics 0, 1.
+func mustPattern(t testing.TB, metrics []int, windows ...string) *similarity.Pattern {
+	t.Helper()
+	ws := make([][]grade.Grade, len(windows))
+	for i, s := range windows {
+		g, err := grade.Parse(s)
+		require.NoError(t, err)
+		ws[i] = g
+	}
+	p, err := similarity.NewPattern(metrics, ws)
+	require.NoError(t, err)
+	return p
+}
+
+// jobWindow returns a full window with the given grades at the given
+// metrics and 0 elsewhere.
+func jobWindow(metrics []int, gs ...grade.Grade) []grade.Grade {
+	w := make([]grade.Grade, metric.Count)
+	for t, mi := range metrics {
+		w[mi] = gs[t]
+	}
+	return w
+}
+
+// column returns metric mi's grades over a text.
+func column(text [][]grade.Grade, mi int) []grade.Grade {
+	out := make([]grade.Grade, len(text))
+	for j, w := range text {
+		out[j] = w[mi]
+	}
+	return out
+}

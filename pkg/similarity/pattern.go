@@ -1,0 +1,131 @@
+package similarity
+
+import (
+	"errors"
+	"fmt"
+
+	"sluice/pkg/grade"
+	"sluice/pkg/metric"
+)
+
+// ErrPattern is wrapped by every error NewPattern returns.
+var ErrPattern = errors.New("similarity: invalid pattern")
+
+// Pattern is an immutable example signature: m windows over k metrics.
+// Build it once with [NewPattern] and share it between all jobs; matchers
+// keep their per-job state apart ([NewSellers], [NewShape], [Pattern.KS]).
+type Pattern struct {
+	metrics []int
+	grades  []grade.Grade // m·k, window after window, metrics in pattern order
+	hist    []Histogram   // per pattern metric, over the m windows
+	m, k    int
+}
+
+// NewPattern builds a pattern from its metric indexes (distinct, each below
+// metric.Count) and its windows, oldest first; windows[i][t] is the grade of
+// metric metrics[t] in window i. It copies its arguments.
+func NewPattern(metrics []int, windows [][]grade.Grade) (*Pattern, error) {
+	if err := checkMetrics(metrics); err != nil {
+		return nil, err
+	}
+	if len(windows) == 0 {
+		return nil, fmt.Errorf("%w: no windows", ErrPattern)
+	}
+	p := &Pattern{
+		metrics: append([]int(nil), metrics...),
+		grades:  make([]grade.Grade, 0, len(windows)*len(metrics)),
+		hist:    make([]Histogram, len(metrics)),
+		m:       len(windows),
+		k:       len(metrics),
+	}
+	for i, w := range windows {
+		if err := p.addWindow(i, w); err != nil {
+			return nil, err
+		}
+	}
+	return p, nil
+}
+
+// checkMetrics validates a pattern's metric indexes.
+func checkMetrics(metrics []int) error {
+	if len(metrics) == 0 {
+		return fmt.Errorf("%w: no metrics", ErrPattern)
+	}
+	var seen [metric.Count]bool
+	for _, mi := range metrics {
+		if mi < 0 || mi >= int(metric.Count) {
+			return fmt.Errorf("%w: metric index %d, want 0..%d", ErrPattern, mi, metric.Count-1)
+		}
+		if seen[mi] {
+			return fmt.Errorf("%w: metric index %d given twice", ErrPattern, mi)
+		}
+		seen[mi] = true
+	}
+	return nil
+}
+
+// addWindow appends window i, checking its width and grades.
+func (p *Pattern) addWindow(i int, w []grade.Grade) error {
+	if len(w) != p.k {
+		return fmt.Errorf("%w: window %d has %d grades, want one per metric (%d)", ErrPattern, i, len(w), p.k)
+	}
+	for t, g := range w {
+		if g >= grade.Count {
+			return fmt.Errorf("%w: window %d metric %d: %v is not a grade", ErrPattern, i, p.metrics[t], g)
+		}
+		p.hist[t][g]++
+	}
+	p.grades = append(p.grades, w...)
+	return nil
+}
+
+// Len returns m, the number of windows.
+func (p *Pattern) Len() int { return p.m }
+
+// Metrics returns a copy of the pattern's metric indexes, in window order.
+func (p *Pattern) Metrics() []int { return append([]int(nil), p.metrics...) }
+
+// pick copies the pattern's metrics of a full job window into dst and
+// returns the k grades.
+func (p *Pattern) pick(window []grade.Grade, dst *[metric.Count]grade.Grade) []grade.Grade {
+	for t, mi := range p.metrics {
+		dst[t] = window[mi]
+	}
+	return dst[:p.k]
+}
+
+// sub returns Σ_t |pattern[i][t] − g[t]|, the substitution cost of pattern
+// window i against g in units of 1/(6k) window.
+func (p *Pattern) sub(i int, g []grade.Grade) int {
+	row := p.grades[i*p.k : (i+1)*p.k]
+	g = g[:len(row)]
+	d := 0
+	for t, a := range row {
+		d += absDiff(a, g[t])
+	}
+	return d
+}
+
+// absDiff returns |a − b|, without a branch: grades are random enough
+// for a branch to be mispredicted half the time.
+func absDiff(a, b grade.Grade) int {
+	v := int(a) - int(b)
+	sign := v >> 63
+	return (v ^ sign) - sign
+}
+
+// Match is an occurrence of a pattern in a job's windows, counted from 0 at
+// the first window pushed since the matcher was made or Reset.
+type Match struct {
+	// Cost is the matcher's dissimilarity: the edit cost in windows for
+	// Sellers, the Euclidean distance in grades for Shape.
+	Cost float64
+	// Score is in [0, 1], 1 for an exact occurrence; see the package doc.
+	Score float64
+	// Start is the index of the occurrence's first window ("since when");
+	// Start == End for an empty Sellers occurrence.
+	Start int
+	// End is one past the index of its last window: the number of windows
+	// pushed when it was seen.
+	End int
+}
