@@ -2,20 +2,22 @@
 GO       ?= go
 BIN      ?= $(shell $(GO) env GOPATH)/bin/sluice
 FUZZTIME ?= 5s
+PROMTOOL ?= promtool
 PKGS     := ./...
 
 PREFIX   ?= /usr/local
 
-.PHONY: build install test unit fuzz lint demo bench help
+.PHONY: build install test unit fuzz lint rules demo bench help
 
 help:
 	@echo "make demo   run the whole system on simulated nodes (about 75 s)"
-	@echo "make test   lint, unit and integration tests with -race, short fuzz runs"
+	@echo "make test   lint, rule tests, unit and integration tests with -race, short fuzz runs"
 	@echo "make build  build agent and aggregator into $(BIN)"
 	@echo "make install  install them as $(PREFIX)/bin/sluice-agent and sluice-aggregator"
 	@echo "make bench  run the benchmarks quoted in the README"
 	@echo "make fuzz   run every fuzz target for FUZZTIME (default $(FUZZTIME))"
 	@echo "make lint   gofmt check, go vet, go mod tidy check"
+	@echo "make rules  check the Prometheus config and alert rules, run their promtool tests"
 
 build:
 	@mkdir -p $(BIN)
@@ -29,7 +31,7 @@ install: build
 demo: build
 	$(BIN)/aggregator demo --agent.bin $(BIN)/agent
 
-test: lint fuzz unit
+test: lint rules fuzz unit
 
 unit:
 	$(GO) test -race -count=1 $(PKGS)
@@ -43,6 +45,16 @@ lint:
 	  if ! cmp -s go.mod /tmp/sluice-go.mod.bak || ! cmp -s go.sum /tmp/sluice-go.sum.bak; then \
 	    echo "go mod tidy changed go.mod/go.sum; run it and commit the result"; \
 	    cp /tmp/sluice-go.mod.bak go.mod; cp /tmp/sluice-go.sum.bak go.sum; exit 1; fi
+
+# The Prometheus example config and alert rules in deploy/prometheus, and the
+# rules' unit tests. promtool comes with the Debian package prometheus
+# (.ci/run installs it); without it this fails rather than skip.
+rules:
+	@command -v $(PROMTOOL) >/dev/null || { \
+	  echo "$(PROMTOOL) not found: install the Debian package prometheus (apt-get install prometheus), which provides it" >&2; exit 1; }
+	$(PROMTOOL) check config deploy/prometheus/prometheus.yml
+	$(PROMTOOL) check rules deploy/prometheus/sluice.rules.yml
+	$(PROMTOOL) test rules deploy/prometheus/tests/*.test.yml
 
 # Each fuzz target runs alone (go test -fuzz takes one target at a time). A
 # run that finds a failing input fails at once (the input is written under
