@@ -5,6 +5,7 @@
 //
 //	aggregator run    serve (embedded NATS broker unless --nats.url is given)
 //	aggregator jobs   print running jobs, their levels and flags
+//	aggregator baseline import|show|export   seed, inspect or dump the baseline
 //	aggregator demo   run the whole system on simulated nodes
 package main
 
@@ -32,6 +33,8 @@ const usage = `usage: aggregator <command> [flags]
 commands:
   run    ingest samples, track jobs, serve /metrics and the API
   jobs   print the running jobs of a running aggregator
+  baseline import|show|export
+         seed, inspect or dump the learned cut points
   demo   run aggregator, agents and simulated nodes on this machine
 
 Run "aggregator <command> -h" for the flags of a command.
@@ -58,6 +61,8 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) error {
 		return jobs(ctx, args[1:], stdout)
 	case "demo":
 		return demo(ctx, args[1:], stdout, stderr)
+	case "baseline":
+		return baselineCmd(ctx, args[1:], stdout, stderr)
 	case "-h", "--help", "help":
 		fmt.Fprint(stderr, usage)
 		return nil

@@ -29,6 +29,7 @@ import (
 
 	"github.com/nats-io/nats.go"
 
+	"sluice/pkg/baseline"
 	"sluice/pkg/bus"
 	"sluice/pkg/export"
 	"sluice/pkg/model"
@@ -52,8 +53,15 @@ type Options struct {
 	// Listen is the HTTP address; empty means 127.0.0.1:9713. Use
 	// "127.0.0.1:0" for a free port.
 	Listen string
-	// Tracker configures windows, cut points and hysteresis.
+	// Tracker configures windows, seed cut points and hysteresis.
 	Tracker tracker.Options
+	// Baseline configures the learned cut points: horizon, quantiles and
+	// the windows a metric needs before its learned cuts apply.
+	Baseline baseline.Options
+	// RecomputeEvery is how often the cut points are learned again from
+	// the baseline; zero means 10 minutes. They are also learned at
+	// start-up and after an import.
+	RecomputeEvery time.Duration
 	// TickEvery is how often windows are closed and live windows
 	// evaluated; zero means 5 seconds.
 	TickEvery time.Duration
@@ -77,6 +85,7 @@ func (o Options) withDefaults() Options {
 	o.Listen = cmp.Or(o.Listen, "127.0.0.1:9713")
 	o.TickEvery = cmp.Or(o.TickEvery, 5*time.Second)
 	o.FlushEvery = cmp.Or(o.FlushEvery, time.Second)
+	o.RecomputeEvery = cmp.Or(o.RecomputeEvery, 10*time.Minute)
 	o.MaxJobSeries = cmp.Or(o.MaxJobSeries, 2000)
 	if o.Logger == nil {
 		o.Logger = slog.New(slog.DiscardHandler)
@@ -95,6 +104,7 @@ type Service struct {
 
 	mu     sync.Mutex
 	tr     *tracker.Tracker
+	learn  *learner
 	ingest export.Ingest
 	// pending and unreported hold what the last failed flush could not
 	// write; guarded by flushMu.
@@ -124,11 +134,16 @@ func New(opts Options) (*Service, error) {
 	if err != nil {
 		return nil, fmt.Errorf("aggregator: %w", err)
 	}
+	learn, err := newLearner(opts.Baseline, tr.Options().Cuts)
+	if err != nil {
+		return nil, err
+	}
 	return &Service{
 		opts:   opts,
 		subj:   subj,
 		log:    opts.Logger,
 		tr:     tr,
+		learn:  learn,
 		ingest: export.NewIngest(),
 		agents: map[string]model.Agent{},
 		ready:  make(chan struct{}),
@@ -201,13 +216,27 @@ func (s *Service) restore() error {
 	if err != nil {
 		return fmt.Errorf("aggregator: %w", err)
 	}
+	days, err := s.st.Days()
+	if err != nil {
+		return fmt.Errorf("aggregator: %w", err)
+	}
 	s.mu.Lock()
 	defer s.mu.Unlock()
 	if err := s.tr.Restore(state.Jobs, state.Nodes, state.Watermark); err != nil {
 		return fmt.Errorf("aggregator: restore from %s: %w", s.opts.StorePath, err)
 	}
-	s.log.Info("state restored", "jobs", len(state.Jobs), "nodes", len(state.Nodes), "watermark", state.Watermark)
+	if err := s.learn.load(days); err != nil {
+		return err
+	}
+	s.recomputeLocked()
+	s.log.Info("state restored", "jobs", len(state.Jobs), "nodes", len(state.Nodes), "watermark", state.Watermark, "baseline_days", len(days))
 	return nil
+}
+
+// recomputeLocked learns the cut points again and hands them to the
+// tracker; the caller holds mu.
+func (s *Service) recomputeLocked() {
+	s.tr.SetCoding(s.learn.recompute(s.opts.Now()))
 }
 
 func (s *Service) connect(ctx context.Context) (*nats.Conn, func(), error) {
@@ -281,8 +310,10 @@ func (s *Service) subscribe(nc *nats.Conn) ([]*nats.Subscription, error) {
 func (s *Service) loop(ctx context.Context) {
 	tick := time.NewTicker(s.opts.TickEvery)
 	flush := time.NewTicker(s.opts.FlushEvery)
+	learn := time.NewTicker(s.opts.RecomputeEvery)
 	defer tick.Stop()
 	defer flush.Stop()
+	defer learn.Stop()
 	for {
 		select {
 		case <-ctx.Done():
@@ -293,6 +324,10 @@ func (s *Service) loop(ctx context.Context) {
 			s.mu.Unlock()
 		case <-flush.C:
 			s.flush()
+		case <-learn.C:
+			s.mu.Lock()
+			s.recomputeLocked()
+			s.mu.Unlock()
 		}
 	}
 }

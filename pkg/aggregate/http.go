@@ -40,7 +40,8 @@ func (s *Service) Snapshot() export.Snapshot {
 		Agents:       s.agentsLocked(),
 		Ingest:       s.ingest.Clone(),
 		Jobs:         running,
-		Cuts:         s.tr.Options().Cuts,
+		Cuts:         s.tr.Coding().Levels,
+		Baseline:     s.learn.exported(),
 		Watermark:    s.tr.Watermark(),
 		Now:          s.opts.Now(),
 		Nodes:        s.tr.Nodes(),
@@ -109,6 +110,14 @@ func (s *Service) handler() http.Handler {
 		slices.SortFunc(agents, func(a, b model.Agent) int { return strings.Compare(a.Node, b.Node) })
 		writeJSON(w, map[string]any{"agents": agents})
 	})
+	mux.HandleFunc("GET /api/v1/baseline", func(w http.ResponseWriter, _ *http.Request) {
+		s.mu.Lock()
+		rep := s.learn.report()
+		s.mu.Unlock()
+		writeJSON(w, rep)
+	})
+	mux.HandleFunc("GET /api/v1/baseline/export", s.handleExport)
+	mux.HandleFunc("POST /api/v1/baseline/import", s.handleImport)
 	mux.HandleFunc("GET /api/v1/flags", func(w http.ResponseWriter, _ *http.Request) {
 		fs, err := s.st.Flags()
 		if err != nil {

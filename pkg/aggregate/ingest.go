@@ -124,10 +124,12 @@ func (s *Service) flush() {
 		switch {
 		case e.Window != nil:
 			b.Windows = append(b.Windows, *e.Window)
+			s.learn.window(e.Window)
 		case e.Flag != nil:
 			b.Flags = append(b.Flags, *e.Flag)
 		}
 	}
+	b.Days = s.learn.drain(b.Days)
 	for _, e := range events {
 		sum, _ := s.tr.Job(e.Job)
 		s.unreported = append(s.unreported, reported{e, sum})

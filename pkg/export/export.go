@@ -62,11 +62,25 @@ type Snapshot struct {
 	Ingest       Ingest
 	Jobs         []model.Summary // running jobs
 	Cuts         level.Cuts
+	Baseline     Baseline
 	Watermark    time.Time // latest interval end seen
 	Now          time.Time
 	Nodes        int // nodes heard from
 	MaxJobSeries int
 	Agents       []model.Agent // latest heartbeat per node
+}
+
+// Baseline is what the scrape says about the learned baseline.
+type Baseline struct {
+	// Sources says, per metric, whether its cut points in force are
+	// "learned" or "seed".
+	Sources [metric.Count]string
+	// Windows and Idle count the non-idle and idle windows inside the
+	// horizon, per metric.
+	Windows, Idle [metric.Count]uint64
+	Days          int       // days inside the horizon
+	Newest        time.Time // start (UTC midnight) of the newest day; zero when none
+	Rejected      uint64    // window values refused (NaN, negative)
 }
 
 // Collector is a prometheus.Collector over snapshots.
@@ -90,8 +104,13 @@ var (
 	descLag       = prometheus.NewDesc(ns+"_ingest_lag_seconds", "Wall-clock time minus the latest interval end seen in any sample.", nil, nil)
 	descNodes     = prometheus.NewDesc(ns+"_nodes_known", "Nodes that have sent at least one sample.", nil, nil)
 	descRunning   = prometheus.NewDesc(ns+"_jobs_running", "Running jobs, by their highest live-window level.", []string{"level"}, nil)
-	descCutBytes  = prometheus.NewDesc(ns+"_cut_point_bytes_per_second", "Per-node cut point in force for a byte metric.", []string{"metric", "level"}, nil)
-	descCutOps    = prometheus.NewDesc(ns+"_cut_point_operations_per_second", "Per-node cut point in force for an operation metric.", []string{"metric", "level"}, nil)
+	descCutBytes  = prometheus.NewDesc(ns+"_cut_point_bytes_per_second", "Per-node cut point in force for a byte metric; source is learned (baseline) or seed (configured).", []string{"metric", "level", "source"}, nil)
+	descCutOps    = prometheus.NewDesc(ns+"_cut_point_operations_per_second", "Per-node cut point in force for an operation metric; source is learned (baseline) or seed (configured).", []string{"metric", "level", "source"}, nil)
+	descBaseWin   = prometheus.NewDesc(ns+"_baseline_windows", "Non-idle job-windows inside the baseline horizon, per metric.", []string{"metric"}, nil)
+	descBaseIdle  = prometheus.NewDesc(ns+"_baseline_idle_windows", "Idle job-windows inside the baseline horizon, per metric (left out of the quantiles).", []string{"metric"}, nil)
+	descBaseDays  = prometheus.NewDesc(ns+"_baseline_day_sketches", "Days inside the baseline horizon that hold windows (one sketch set per day).", nil, nil)
+	descBaseAge   = prometheus.NewDesc(ns+"_baseline_newest_day_age_seconds", "Time since the start (UTC midnight) of the newest baseline day.", nil, nil)
+	descBaseBad   = prometheus.NewDesc(ns+"_baseline_rejected_values_total", "Window values the baseline refused (NaN or negative).", nil, nil)
 	descJobBytes  = prometheus.NewDesc(ns+"_job_live_bytes_per_second", "A job's live-window rate of a byte metric, mean per node.", []string{"job", "metric"}, nil)
 	descJobOps    = prometheus.NewDesc(ns+"_job_live_operations_per_second", "A job's live-window rate of an operation metric, mean per node.", []string{"job", "metric"}, nil)
 	descJobLevel  = prometheus.NewDesc(ns+"_job_level", "A job's live-window level per metric: 0 normal, 1 elevated, 2 critical.", []string{"job", "metric"}, nil)
@@ -112,7 +131,7 @@ var (
 	descSrcInst      = prometheus.NewDesc(ns+"_agent_source_instances", "Instances of a source found at its last read on the node.", []string{"node", "source"}, nil)
 	descSrcBad       = prometheus.NewDesc(ns+"_agent_source_malformed_lines_total", "Counter lines a source skipped as malformed on the node since its agent started.", []string{"node", "source"}, nil)
 
-	allDescs = []*prometheus.Desc{descAccepted, descRejected, descDupes, descSlow, descStoreErr, descLag, descNodes, descRunning, descCutBytes, descCutOps, descJobBytes, descJobOps, descJobLevel, descJobNodes, descFlag, descFlagSince, descDropped,
+	allDescs = []*prometheus.Desc{descAccepted, descRejected, descDupes, descSlow, descStoreErr, descLag, descNodes, descRunning, descCutBytes, descCutOps, descBaseWin, descBaseIdle, descBaseDays, descBaseAge, descBaseBad, descJobBytes, descJobOps, descJobLevel, descJobNodes, descFlag, descFlagSince, descDropped,
 		descAgentSeen, descAgentCPU, descAgentShare, descAgentFleet, descAgentRSS, descAgentQueued, descAgentDropped, descSrcRead, descSrcUp, descSrcInst, descSrcBad}
 )
 
@@ -150,7 +169,8 @@ func (c *Collector) Collect(ch chan<- prometheus.Metric) {
 		gauge(descLag, s.Now.Sub(s.Watermark).Seconds())
 	}
 	gauge(descNodes, float64(s.Nodes))
-	c.collectCuts(s.Cuts, gauge)
+	c.collectCuts(s.Cuts, s.Baseline.Sources, gauge)
+	collectBaseline(s, counter, gauge)
 	c.collectJobs(s, gauge)
 	collectAgents(s.Agents, ch, counter, gauge)
 }
@@ -200,15 +220,29 @@ func splitKey(key string) (kind, reason string) {
 	return key, "other"
 }
 
-func (c *Collector) collectCuts(cuts level.Cuts, gauge func(*prometheus.Desc, float64, ...string)) {
+func (c *Collector) collectCuts(cuts level.Cuts, sources [metric.Count]string, gauge func(*prometheus.Desc, float64, ...string)) {
 	for _, id := range metric.All() {
 		d := descCutOps
 		if id.IsBytes() {
 			d = descCutBytes
 		}
-		gauge(d, cuts[id].Elevated, id.String(), level.Elevated.String())
-		gauge(d, cuts[id].Critical, id.String(), level.Critical.String())
+		src := cmp.Or(sources[id], "seed")
+		gauge(d, cuts[id].Elevated, id.String(), level.Elevated.String(), src)
+		gauge(d, cuts[id].Critical, id.String(), level.Critical.String(), src)
 	}
+}
+
+func collectBaseline(s Snapshot, counter func(*prometheus.Desc, uint64, ...string), gauge func(*prometheus.Desc, float64, ...string)) {
+	b := s.Baseline
+	for _, id := range metric.All() {
+		gauge(descBaseWin, float64(b.Windows[id]), id.String())
+		gauge(descBaseIdle, float64(b.Idle[id]), id.String())
+	}
+	gauge(descBaseDays, float64(b.Days))
+	if !b.Newest.IsZero() {
+		gauge(descBaseAge, s.Now.Sub(b.Newest).Seconds())
+	}
+	counter(descBaseBad, b.Rejected)
 }
 
 func (c *Collector) collectJobs(s Snapshot, gauge func(*prometheus.Desc, float64, ...string)) {

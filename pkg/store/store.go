@@ -15,6 +15,7 @@
 //	flags    flag id -> model.Flag
 //	nodes    node -> tracker.SeqSet
 //	signatures job id -> signature.Signature in its binary form
+//	baseline origin, "/", YYYY-MM-DD -> baseline.Day in its binary form
 //
 // # Caveats
 //
@@ -28,11 +29,13 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"strings"
 	"time"
 
 	bolt "go.etcd.io/bbolt"
 	bolterr "go.etcd.io/bbolt/errors"
 
+	"sluice/pkg/baseline"
 	"sluice/pkg/model"
 	"sluice/pkg/signature"
 	"sluice/pkg/tracker"
@@ -48,7 +51,8 @@ var (
 	bucketFlags   = []byte("flags")
 	bucketNodes   = []byte("nodes")
 	bucketSigs    = []byte("signatures")
-	allBuckets    = [][]byte{bucketMeta, bucketJobs, bucketWindows, bucketFlags, bucketNodes, bucketSigs}
+	bucketDays    = []byte("baseline")
+	allBuckets    = [][]byte{bucketMeta, bucketJobs, bucketWindows, bucketFlags, bucketNodes, bucketSigs, bucketDays}
 )
 
 // ErrLocked means another process holds the file.
@@ -131,11 +135,13 @@ type Batch struct {
 	Flags     []model.Flag
 	Nodes     map[string]tracker.SeqSet
 	Watermark time.Time
+	// Days are baseline days to write (a nil Day deletes the key).
+	Days map[baseline.Key]*baseline.Day
 }
 
 // Empty reports whether the batch would write nothing.
 func (b *Batch) Empty() bool {
-	return len(b.Jobs) == 0 && len(b.GoneJobs) == 0 && len(b.Windows) == 0 && len(b.Flags) == 0 && len(b.Nodes) == 0 && b.Watermark.IsZero()
+	return len(b.Jobs) == 0 && len(b.GoneJobs) == 0 && len(b.Windows) == 0 && len(b.Flags) == 0 && len(b.Nodes) == 0 && b.Watermark.IsZero() && len(b.Days) == 0
 }
 
 // Apply writes a batch in one transaction.
@@ -167,6 +173,9 @@ func (s *Store) Apply(b *Batch) error {
 				return err
 			}
 		}
+		if err := putDays(tx, b.Days); err != nil {
+			return err
+		}
 		if !b.Watermark.IsZero() {
 			return tx.Bucket(bucketMeta).Put([]byte("watermark"), []byte(b.Watermark.UTC().Format(time.RFC3339Nano)))
 		}
@@ -176,6 +185,52 @@ func (s *Store) Apply(b *Batch) error {
 		return fmt.Errorf("store %s: apply batch: %w", s.path, err)
 	}
 	return nil
+}
+
+func dayKey(k baseline.Key) []byte { return []byte(string(k.Origin) + "/" + k.Day.String()) }
+
+func putDays(tx *bolt.Tx, days map[baseline.Key]*baseline.Day) error {
+	bk := tx.Bucket(bucketDays)
+	for k, d := range days {
+		if d == nil {
+			if err := bk.Delete(dayKey(k)); err != nil {
+				return err
+			}
+			continue
+		}
+		data, err := d.MarshalBinary()
+		if err != nil {
+			return fmt.Errorf("encode baseline day %s: %w", dayKey(k), err)
+		}
+		if err := bk.Put(dayKey(k), data); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// Days loads every stored baseline day.
+func (s *Store) Days() (map[baseline.Key]*baseline.Day, error) {
+	out := map[baseline.Key]*baseline.Day{}
+	err := s.db.View(func(tx *bolt.Tx) error {
+		return tx.Bucket(bucketDays).ForEach(func(k, v []byte) error {
+			origin, day, ok := strings.Cut(string(k), "/")
+			dk, err := baseline.ParseDayKey(day)
+			if !ok || err != nil {
+				return fmt.Errorf("baseline key %q: want origin/YYYY-MM-DD", k)
+			}
+			d := baseline.NewDay()
+			if err := d.UnmarshalBinary(v); err != nil {
+				return fmt.Errorf("baseline day %q: %w", k, err)
+			}
+			out[baseline.Key{Origin: baseline.Origin(origin), Day: dk}] = d
+			return nil
+		})
+	})
+	if err != nil {
+		return nil, fmt.Errorf("store %s: %w", s.path, err)
+	}
+	return out, nil
 }
 
 // putJob writes a job's record and, apart, its signature. Signatures of

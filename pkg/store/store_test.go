@@ -9,6 +9,7 @@ import (
 	"github.com/stretchr/testify/require"
 	bolt "go.etcd.io/bbolt"
 
+	"sluice/pkg/baseline"
 	"sluice/pkg/internal/storetest"
 	"sluice/pkg/level"
 	"sluice/pkg/metric"
@@ -96,4 +97,30 @@ func TestNewerSchemaRefused(t *testing.T) {
 	require.NoError(t, db.Close())
 	_, err = store.Open(path, store.Options{})
 	assert.ErrorIs(t, err, store.ErrSchema)
+}
+
+// TestBaselineDaysRoundTrip writes two origins' days and a deletion, and
+// reads back the same quantiles.
+func TestBaselineDaysRoundTrip(t *testing.T) {
+	s := storetest.MustOpen(t)
+	d := baseline.NewDay()
+	for i := 1; i <= 1000; i++ {
+		require.NoError(t, d.Add(metric.Creates, float64(i)))
+	}
+	day := baseline.DayOf(t0)
+	live, imp := baseline.Key{Origin: baseline.Live, Day: day}, baseline.Key{Origin: baseline.Import, Day: day - 1}
+	require.NoError(t, s.Apply(&store.Batch{Days: map[baseline.Key]*baseline.Day{live: d, imp: d}}))
+	got, err := s.Days()
+	require.NoError(t, err)
+	require.Len(t, got, 2)
+	want, _ := d.Quantile(metric.Creates, 0.99)
+	q, ok := got[imp].Quantile(metric.Creates, 0.99)
+	require.True(t, ok)
+	assert.Equal(t, want, q)
+
+	require.NoError(t, s.Apply(&store.Batch{Days: map[baseline.Key]*baseline.Day{imp: nil}}))
+	got, err = s.Days()
+	require.NoError(t, err)
+	assert.Len(t, got, 1)
+	assert.Contains(t, got, live)
 }

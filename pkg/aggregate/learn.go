@@ -1,0 +1,181 @@
+package aggregate
+
+import (
+	"fmt"
+	"time"
+
+	"sluice/pkg/baseline"
+	"sluice/pkg/export"
+	"sluice/pkg/grade"
+	"sluice/pkg/level"
+	"sluice/pkg/metric"
+	"sluice/pkg/model"
+	"sluice/pkg/tracker"
+)
+
+// learner is the service's side of the baseline: it adds every closed
+// window to the live day, remembers which days changed for the next store
+// write, and turns the learned thresholds into the tracker's coding. The
+// service lock guards it.
+type learner struct {
+	b     *baseline.Baseline
+	seed  level.Cuts
+	dirty map[baseline.Key]bool
+
+	th         baseline.Thresholds
+	sources    baseline.Sources
+	coding     tracker.Coding
+	recomputed time.Time
+}
+
+func newLearner(opts baseline.Options, seed level.Cuts) (*learner, error) {
+	b, err := baseline.New(&opts)
+	if err != nil {
+		return nil, fmt.Errorf("aggregator: %w", err)
+	}
+	return &learner{b: b, seed: seed, dirty: map[baseline.Key]bool{}, coding: tracker.SeedCoding(seed)}, nil
+}
+
+// load puts the stored days back.
+func (l *learner) load(days map[baseline.Key]*baseline.Day) error {
+	for k, d := range days {
+		if err := l.b.Put(k, d); err != nil {
+			return fmt.Errorf("aggregator: baseline day %s/%s: %w", k.Origin, k.Day, err)
+		}
+	}
+	return nil
+}
+
+// window adds one closed window's per-node rates to the live day it
+// closed in. The population is one value per job-window and metric (not
+// one per node), so that a wide job weighs as much as a narrow one and the
+// cut points speak of the same quantity the levels are applied to.
+func (l *learner) window(w *model.Window) {
+	day := baseline.DayOf(w.End)
+	for i, r := range w.Rates {
+		_ = l.b.Add(day, metric.ID(i), r) // a refusal (NaN, negative) is counted by the baseline
+	}
+	l.dirty[baseline.Key{Origin: baseline.Live, Day: day}] = true
+}
+
+// imported replaces the import origin of each day given.
+func (l *learner) imported(days map[baseline.DayKey]*baseline.Day) {
+	for day, d := range days {
+		l.b.ReplaceImported(day, d)
+		l.dirty[baseline.Key{Origin: baseline.Import, Day: day}] = true
+	}
+}
+
+// recompute drops days past the horizon, merges the rest and returns the
+// coding they give: learned cuts for metrics with enough windows, seed cuts
+// for the others.
+func (l *learner) recompute(now time.Time) tracker.Coding {
+	for _, k := range l.b.Prune(now) {
+		l.dirty[k] = true // Get now returns nil: deleted at the next write
+	}
+	l.th = l.b.Cuts(now)
+	var c tracker.Coding
+	c.Levels, l.sources = l.th.Apply(l.seed)
+	seed := tracker.SeedCoding(l.seed)
+	for i, m := range l.th.Metrics {
+		c.Grades[i] = seed.Grades[i]
+		if l.sources[i] == baseline.SourceLearned {
+			c.Grades[i] = m.Grade
+		}
+	}
+	l.coding, l.recomputed = c, now
+	return c
+}
+
+// drain returns copies of the days changed since the last call (nil for a
+// deleted one), for the store batch.
+func (l *learner) drain(into map[baseline.Key]*baseline.Day) map[baseline.Key]*baseline.Day {
+	if len(l.dirty) == 0 {
+		return into
+	}
+	if into == nil {
+		into = map[baseline.Key]*baseline.Day{}
+	}
+	for k := range l.dirty {
+		var d *baseline.Day
+		if cur := l.b.Get(k); cur != nil {
+			d = cur.Clone()
+		}
+		into[k] = d
+	}
+	clear(l.dirty)
+	return into
+}
+
+// Baseline is what /api/v1/baseline reports and "aggregator baseline show"
+// prints.
+type Baseline struct {
+	Recomputed  time.Time        `json:"recomputed"`
+	HorizonDays int              `json:"horizon_days"`
+	MinWindows  uint64           `json:"min_windows"`
+	Quantiles   [5]float64       `json:"grade_quantiles"`
+	Days        []BaselineDay    `json:"days"`
+	Metrics     []BaselineMetric `json:"metrics"`
+	Rejected    uint64           `json:"rejected_values"`
+	Newest      baseline.DayKey  `json:"newest_day,omitzero"`
+}
+
+// BaselineDay is one stored day and where it came from.
+type BaselineDay struct {
+	Day     baseline.DayKey   `json:"day"`
+	Origins []baseline.Origin `json:"origins"`
+}
+
+// BaselineMetric is one metric's cuts in force and the counts behind them.
+type BaselineMetric struct {
+	Metric   string     `json:"metric"`
+	Unit     string     `json:"unit"`
+	Bytes    bool       `json:"-"`
+	Source   string     `json:"source"` // "learned" or "seed"
+	Elevated float64    `json:"elevated"`
+	Critical float64    `json:"critical"`
+	Grades   grade.Cuts `json:"grade_cuts"`
+	Windows  uint64     `json:"windows"`
+	Idle     uint64     `json:"idle_windows"`
+}
+
+// report describes the baseline as of the last recompute.
+func (l *learner) report() Baseline {
+	o := l.b.Options()
+	r := Baseline{
+		Recomputed: l.recomputed, HorizonDays: o.Days, MinWindows: o.MinWindows,
+		Quantiles: grade.Quantiles(o.ElevatedQuantile, o.CriticalQuantile), Rejected: l.b.Rejected(),
+	}
+	r.Newest, _ = l.b.Newest()
+	for _, k := range l.b.Keys() {
+		if n := len(r.Days); n > 0 && r.Days[n-1].Day == k.Day {
+			r.Days[n-1].Origins = append(r.Days[n-1].Origins, k.Origin)
+			continue
+		}
+		r.Days = append(r.Days, BaselineDay{Day: k.Day, Origins: []baseline.Origin{k.Origin}})
+	}
+	for i, m := range l.th.Metrics {
+		id := metric.ID(i)
+		r.Metrics = append(r.Metrics, BaselineMetric{
+			Metric: id.String(), Unit: id.Unit(), Bytes: id.IsBytes(), Source: l.sources[i].String(),
+			Elevated: l.coding.Levels[i].Elevated, Critical: l.coding.Levels[i].Critical,
+			Grades: l.coding.Grades[i], Windows: m.Windows, Idle: m.Idle,
+		})
+	}
+	return r
+}
+
+// exported is the baseline part of a scrape.
+func (l *learner) exported() export.Baseline {
+	var e export.Baseline
+	for i, m := range l.th.Metrics {
+		e.Sources[i] = l.sources[i].String()
+		e.Windows[i], e.Idle[i] = m.Windows, m.Idle
+	}
+	e.Days = len(l.th.Days)
+	if d, ok := l.b.Newest(); ok {
+		e.Newest = d.Time()
+	}
+	e.Rejected = l.b.Rejected()
+	return e
+}
