@@ -96,6 +96,9 @@ func (j *JobState) addWindow(idx int, node string, secs float64, v metric.Values
 // closeWindows closes, in index order, the open windows whose end plus
 // grace is not after now; a zero now closes all of them (job finished).
 func (t *Tracker) closeWindows(j *JobState, now time.Time) {
+	if !now.IsZero() && !t.anyClosable(j, now) {
+		return // the common case, on every sample: checked without allocating
+	}
 	for _, idx := range slices.Sorted(maps.Keys(j.Open)) {
 		start := j.Meta.Start.Add(time.Duration(idx) * t.opts.Window)
 		end := start.Add(t.opts.Window)
@@ -115,37 +118,68 @@ func (t *Tracker) closeWindows(j *JobState, now time.Time) {
 	}
 }
 
-func (t *Tracker) windowOf(job string, idx int, start, end time.Time, ow *OpenWindow) model.Window {
-	w := model.Window{Job: job, Index: idx, Start: start, End: end, Nodes: len(ow.Nodes)}
-	nodes := slices.Collect(maps.Values(ow.Nodes))
-	w.Rates = meanRate(nodes)
-	w.Levels, w.Grades = t.coding.code(w.Rates)
-	w.BusiestShare, w.NodeSpread = balance(nodes)
-	return w
+// anyClosable reports whether the job's earliest open window may close at
+// now.
+func (t *Tracker) anyClosable(j *JobState, now time.Time) bool {
+	first := -1
+	for idx := range j.Open {
+		if first < 0 || idx < first {
+			first = idx
+		}
+	}
+	if first < 0 {
+		return false
+	}
+	end := j.Meta.Start.Add(time.Duration(first+1) * t.opts.Window)
+	return !end.Add(t.opts.Grace).After(now)
 }
 
-// balance returns the busiest node's share of the data bytes and the
-// coefficient of variation of the nodes' data byte rates (see
-// model.Window).
-func balance(nodes []*Accum) (busiest, spread float64) {
-	var sum, sumSq, top float64
-	n := 0
-	for _, a := range nodes {
+func (t *Tracker) windowOf(job string, idx int, start, end time.Time, ow *OpenWindow) model.Window {
+	w := model.Window{Job: job, Index: idx, Start: start, End: end, Nodes: len(ow.Nodes)}
+	var sum metric.Rates
+	var bal balance
+	for _, a := range ow.Nodes { // one pass: a wide job has thousands of nodes
 		if a.Seconds <= 0 {
 			continue
 		}
-		n++
-		r := float64(a.Values[metric.ReadBytes]+a.Values[metric.WriteBytes]) / a.Seconds
-		sum += r
-		sumSq += r * r
-		top = max(top, r)
+		inv := 1 / a.Seconds // one division per node, not one per metric
+		for i, x := range a.Values {
+			sum[i] += float64(x) * inv
+		}
+		bal.add(float64(a.Values[metric.ReadBytes]+a.Values[metric.WriteBytes]) * inv)
 	}
-	if n == 0 || sum == 0 {
+	if bal.n > 0 {
+		for i := range sum {
+			sum[i] /= float64(bal.n)
+		}
+	}
+	w.Rates = sum
+	w.Levels, w.Grades = t.coding.code(w.Rates)
+	w.BusiestShare, w.NodeSpread = bal.result()
+	return w
+}
+
+// balance gathers the nodes' data byte rates for the busiest node's share
+// and the coefficient of variation (see model.Window).
+type balance struct {
+	n               int
+	sum, sumSq, top float64
+}
+
+func (b *balance) add(r float64) {
+	b.n++
+	b.sum += r
+	b.sumSq += r * r
+	b.top = max(b.top, r)
+}
+
+func (b *balance) result() (busiest, spread float64) {
+	if b.n == 0 || b.sum == 0 {
 		return 0, 0
 	}
-	mean := sum / float64(n)
-	variance := max(sumSq/float64(n)-mean*mean, 0)
-	return top / sum, math.Sqrt(variance) / mean
+	mean := b.sum / float64(b.n)
+	variance := max(b.sumSq/float64(b.n)-mean*mean, 0)
+	return b.top / b.sum, math.Sqrt(variance) / mean
 }
 
 // meanRate is the mean over nodes of each node's rate (sum of its deltas
