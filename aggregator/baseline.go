@@ -50,13 +50,10 @@ func baselineImport(ctx context.Context, args []string, stdout, stderr io.Writer
 	fs := flag.NewFlagSet("aggregator baseline import", flag.ContinueOnError)
 	url := fs.String("url", "http://127.0.0.1:9713", "base URL of the running aggregator")
 	quiet := fs.Bool("quiet", false, "no progress bar")
-	if err := parse(fs, args); err != nil {
-		return err
+	path, err := parseWithFile(fs, args)
+	if err != nil {
+		return fmt.Errorf("baseline import: %w", err)
 	}
-	if fs.NArg() != 1 {
-		return errors.New("baseline import: give exactly one FILE")
-	}
-	path := fs.Arg(0)
 	f, err := os.Open(path)
 	if err != nil {
 		return fmt.Errorf("baseline import: %w", err)
@@ -199,6 +196,21 @@ func baselineExport(ctx context.Context, args []string, stdout io.Writer) error 
 		return fmt.Errorf("baseline export: %w", err)
 	}
 	return nil
+}
+
+// parseWithFile parses flags given before or after one FILE argument.
+func parseWithFile(fs *flag.FlagSet, args []string) (string, error) {
+	if err := fs.Parse(args); err != nil {
+		return "", err
+	}
+	if fs.NArg() == 0 {
+		return "", errors.New("give exactly one FILE")
+	}
+	file := fs.Arg(0)
+	if err := parse(fs, fs.Args()[1:]); err != nil {
+		return "", err
+	}
+	return file, nil
 }
 
 // send does req against the aggregator at base and returns the response

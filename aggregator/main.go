@@ -23,6 +23,7 @@ import (
 	"time"
 
 	"sluice/pkg/aggregate"
+	"sluice/pkg/baseline"
 	"sluice/pkg/level"
 	"sluice/pkg/options"
 	"sluice/pkg/tracker"
@@ -77,6 +78,10 @@ type serveFlags struct {
 	storePath, listen, cutsFile, logLvl  string
 	window, live, grace, tick            time.Duration
 	raiseAfter, clearAfter, maxJobSeries int
+	baseDays                             int
+	baseMin                              uint64
+	baseElevated, baseCritical           float64
+	baseEvery                            time.Duration
 }
 
 func (f *serveFlags) register(fs *flag.FlagSet) {
@@ -95,6 +100,11 @@ func (f *serveFlags) register(fs *flag.FlagSet) {
 	fs.IntVar(&f.raiseAfter, "flag.raise-after", 2, "consecutive live evaluations above a critical cut that raise a flag")
 	fs.IntVar(&f.clearAfter, "flag.clear-after", 3, "consecutive live evaluations below the cut that clear it")
 	fs.IntVar(&f.maxJobSeries, "metrics.max-job-series", 2000, "most jobs given per-job series on /metrics (most severe first)")
+	fs.IntVar(&f.baseDays, "baseline.days", 30, "days of job-windows the cut points are learned from")
+	fs.Uint64Var(&f.baseMin, "baseline.min-windows", 1000, "non-idle windows a metric needs before its learned cut points replace the seed ones")
+	fs.Float64Var(&f.baseElevated, "baseline.elevated-quantile", 0.99, "quantile of the centre's windows above which a window is elevated")
+	fs.Float64Var(&f.baseCritical, "baseline.critical-quantile", 0.999, "quantile of the centre's windows above which a window is critical")
+	fs.DurationVar(&f.baseEvery, "baseline.recompute-every", 10*time.Minute, "how often the cut points are learned again (also at start-up and after an import)")
 }
 
 func (f *serveFlags) options(log *slog.Logger) (aggregate.Options, error) {
@@ -108,7 +118,11 @@ func (f *serveFlags) options(log *slog.Logger) (aggregate.Options, error) {
 	return aggregate.Options{
 		NATSURL: f.natsURL, EmbeddedListen: f.embedded, Prefix: f.prefix, Cluster: f.cluster,
 		StorePath: f.storePath, Listen: f.listen, TickEvery: f.tick, MaxJobSeries: f.maxJobSeries,
-		Logger: log,
+		Logger: log, RecomputeEvery: f.baseEvery,
+		Baseline: baseline.Options{
+			Days: f.baseDays, MinWindows: f.baseMin,
+			ElevatedQuantile: f.baseElevated, CriticalQuantile: f.baseCritical,
+		},
 		Tracker: tracker.Options{
 			Window: f.window, Live: f.live, Grace: f.grace, Cuts: cuts,
 			RaiseAfter: f.raiseAfter, ClearAfter: f.clearAfter,

@@ -1,8 +1,13 @@
 package aggregate_test
 
 import (
+	"bytes"
 	"context"
 	"fmt"
+	"io"
+	"math"
+	"math/rand/v2"
+	"net/http"
 	"path/filepath"
 	"testing"
 	"time"
@@ -71,4 +76,39 @@ func BenchmarkIngestThroughBroker(b *testing.B) {
 		time.Sleep(time.Millisecond)
 	}
 	b.ReportMetric(float64(b.N)/time.Since(start).Seconds(), "samples/s")
+}
+
+// BenchmarkImport posts a 1,000,000-row window-value file to a running
+// aggregator and reports rows per second, from the first byte sent to the
+// answer (parse, sketches, recompute and the store write).
+func BenchmarkImport(b *testing.B) {
+	var body bytes.Buffer
+	body.WriteString("day,metric,rate,count\n")
+	r := rand.New(rand.NewPCG(1, 2))
+	day := time.Now().UTC()
+	const rows = 1_000_000
+	for i := range rows {
+		fmt.Fprintf(&body, "%s,%s,%.6g,1\n", day.AddDate(0, 0, -(i%30)).Format(time.DateOnly), metric.ID(i%int(metric.Count)), math.Exp(4+2*r.NormFloat64()))
+	}
+	srv := natstest.Start(b)
+	svc, err := aggregate.New(aggregate.Options{
+		NATSURL: srv.URL(), StorePath: filepath.Join(b.TempDir(), "a.db"), Listen: "127.0.0.1:0",
+		TickEvery: time.Hour, FlushEvery: time.Hour, RecomputeEvery: time.Hour,
+	})
+	require.NoError(b, err)
+	ctx, cancel := context.WithCancel(context.Background())
+	done := make(chan error, 1)
+	go func() { done <- svc.Run(ctx) }()
+	<-svc.Ready()
+	defer func() { cancel(); <-done }()
+	url := "http://" + svc.HTTPAddr() + "/api/v1/baseline/import"
+	b.ResetTimer()
+	for b.Loop() {
+		resp, err := http.Post(url, "text/csv", bytes.NewReader(body.Bytes()))
+		require.NoError(b, err)
+		_, _ = io.Copy(io.Discard, resp.Body)
+		resp.Body.Close()
+		require.Equal(b, http.StatusOK, resp.StatusCode)
+	}
+	b.ReportMetric(float64(rows*b.N)/b.Elapsed().Seconds(), "rows/s")
 }

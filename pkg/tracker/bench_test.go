@@ -30,6 +30,7 @@ func BenchmarkWindowClose1000Nodes(b *testing.B) {
 			a.Values[i] = uint64((n + 1) * (i + 1) * 1000)
 		}
 		ow.Nodes[fmt.Sprintf("bw%04d", n)] = a
+		ow.list = append(ow.list, a)
 	}
 	j := &JobState{Meta: model.JobMeta{ID: "81234"}}
 	start := time.Date(2026, 12, 1, 14, 0, 0, 0, time.UTC)

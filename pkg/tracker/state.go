@@ -1,6 +1,7 @@
 package tracker
 
 import (
+	"iter"
 	"maps"
 	"math"
 	"slices"
@@ -56,6 +57,18 @@ type Accum struct {
 // OpenWindow accumulates a window's samples per node.
 type OpenWindow struct {
 	Nodes map[string]*Accum `json:"nodes"`
+	// list holds the same accumulators in arrival order, so that closing
+	// a window of thousands of nodes walks a slice, not a map. It is not
+	// stored; a restored window is walked by its map.
+	list []*Accum
+}
+
+// accums returns the window's accumulators.
+func (w *OpenWindow) accums() iter.Seq[*Accum] {
+	if len(w.list) == len(w.Nodes) {
+		return slices.Values(w.list)
+	}
+	return maps.Values(w.Nodes)
 }
 
 // Hysteresis is one metric's raise/clear state.
@@ -88,6 +101,7 @@ func (j *JobState) addWindow(idx int, node string, secs float64, v metric.Values
 	if a == nil {
 		a = &Accum{}
 		w.Nodes[node] = a
+		w.list = append(w.list, a)
 	}
 	a.Seconds += secs
 	a.Values.Add(v)
@@ -138,7 +152,7 @@ func (t *Tracker) windowOf(job string, idx int, start, end time.Time, ow *OpenWi
 	w := model.Window{Job: job, Index: idx, Start: start, End: end, Nodes: len(ow.Nodes)}
 	var sum metric.Rates
 	var bal balance
-	for _, a := range ow.Nodes { // one pass: a wide job has thousands of nodes
+	for a := range ow.accums() { // one pass: a wide job has thousands of nodes
 		if a.Seconds <= 0 {
 			continue
 		}
