@@ -62,20 +62,54 @@ type Window struct {
 }
 
 // Flag is a finding about a running job: why, since when, how strong.
+//
+// A critical-I/O flag has Reason "critical:<metric>" and Metric, Level,
+// Value, Peak and Cut set. A pattern flag has Reason "pattern:<name>" and
+// Pattern, Title, Score, Severity, Advice and Drivers set; its Metric is
+// the first driver's.
 type Flag struct {
 	ID     string      `json:"id"`
 	Job    string      `json:"job"`
-	Reason string      `json:"reason"` // e.g. "critical:creates"
+	Reason string      `json:"reason"` // e.g. "critical:creates" or "pattern:metadata_storm"
 	Metric metric.ID   `json:"metric"`
 	Level  level.Level `json:"level"`
-	Value  float64     `json:"value"` // per-node rate when raised (latest while active)
-	Peak   float64     `json:"peak"`  // highest per-node rate while active
-	Cut    float64     `json:"cut"`   // the cut point crossed
-	Nodes  int         `json:"nodes"` // nodes reporting when raised
-	Since  time.Time   `json:"since"` // first evaluation above the cut
-	Raised time.Time   `json:"raised"`
+	// Pattern is the matched pattern's name; empty on a critical-I/O flag.
+	Pattern string `json:"pattern,omitempty"`
+	// Title is the pattern's short title, e.g. "Metadata storm".
+	Title string `json:"title,omitempty"`
+	// Score is the match score, 0..1 (latest while active); 1 for a
+	// critical-I/O flag.
+	Score float64 `json:"score"`
+	// Severity is "info", "warning" or "critical" (a critical-I/O flag is
+	// "warning").
+	Severity string `json:"severity"`
+	// Advice is the pattern's advice for on-call staff.
+	Advice string `json:"advice,omitempty"`
+	// Drivers are the metrics behind the match, with their values against
+	// the cut points in force when it was raised.
+	Drivers []Driver `json:"drivers,omitempty"`
+	// Summary is a short fixed text written when the flag is raised, e.g.
+	// "Metadata storm (score 0.91) on 64 nodes".
+	Summary string    `json:"summary"`
+	Value   float64   `json:"value"` // per-node rate when raised (latest while active)
+	Peak    float64   `json:"peak"`  // highest per-node rate while active
+	Cut     float64   `json:"cut"`   // the cut point crossed
+	Nodes   int       `json:"nodes"` // nodes reporting when raised
+	Since   time.Time `json:"since"` // first evaluation above the cut
+	Raised  time.Time `json:"raised"`
 	// Cleared is zero while the flag is active.
 	Cleared time.Time `json:"cleared,omitzero"`
+}
+
+// Driver is one metric behind a pattern flag: its per-node rate, level and
+// grade in the window that raised it, and the cut points in force.
+type Driver struct {
+	Metric   metric.ID   `json:"metric"`
+	Rate     float64     `json:"rate"`
+	Level    level.Level `json:"level"`
+	Grade    uint8       `json:"grade"`
+	Elevated float64     `json:"elevated_cut"`
+	Critical float64     `json:"critical_cut"`
 }
 
 // Active reports whether the flag has not been cleared.

@@ -88,6 +88,8 @@ func (t *Tracker) step(j *JobState, id metric.ID, rate float64) {
 				Metric: id, Level: level.Critical,
 				Value: rate, Peak: rate, Cut: cut,
 				Nodes: j.LiveNodes, Since: h.Since, Raised: now,
+				Score: 1, Severity: "warning",
+				Summary: fmt.Sprintf("%s above the critical cut on %d nodes", id, j.LiveNodes),
 			}
 			t.emit(Event{Kind: FlagRaised, Job: j.Meta.ID, Flag: cloneFlag(h.Flag)})
 		}
