@@ -90,13 +90,16 @@ type Flag struct {
 	Drivers []Driver `json:"drivers,omitempty"`
 	// Summary is a short fixed text written when the flag is raised, e.g.
 	// "Metadata storm (score 0.91) on 64 nodes".
-	Summary string    `json:"summary"`
-	Value   float64   `json:"value"` // per-node rate when raised (latest while active)
-	Peak    float64   `json:"peak"`  // highest per-node rate while active
-	Cut     float64   `json:"cut"`   // the cut point crossed
-	Nodes   int       `json:"nodes"` // nodes reporting when raised
-	Since   time.Time `json:"since"` // first evaluation above the cut
-	Raised  time.Time `json:"raised"`
+	Summary string `json:"summary"`
+	// Silenced is true while a silence covers the flag: it is kept and
+	// listed, but not exported to Prometheus.
+	Silenced bool      `json:"silenced,omitempty"`
+	Value    float64   `json:"value"` // per-node rate when raised (latest while active)
+	Peak     float64   `json:"peak"`  // highest per-node rate while active
+	Cut      float64   `json:"cut"`   // the cut point crossed
+	Nodes    int       `json:"nodes"` // nodes reporting when raised
+	Since    time.Time `json:"since"` // first evaluation above the cut
+	Raised   time.Time `json:"raised"`
 	// Cleared is zero while the flag is active.
 	Cleared time.Time `json:"cleared,omitzero"`
 }
@@ -130,6 +133,9 @@ type Summary struct {
 	Windows     int               `json:"windows"` // closed windows
 	LastWindow  *Window           `json:"last_window,omitempty"`
 	ActiveFlags []Flag            `json:"flags"`
+	// PatternScores is each pattern's latest score for the job, for the
+	// patterns that matched it lately.
+	PatternScores map[string]float64 `json:"pattern_scores,omitempty"`
 }
 
 // Agent is what the latest heartbeats of one node's agent say.

@@ -82,8 +82,8 @@
 //	mean_transfer_size  (read_bytes + write_bytes) / (read_ops + write_ops)  bytes
 //	meta_to_data_ratio  (opens + closes + creates + removes + stat_ops
 //	                     + meta_updates) / max(1, read_ops + write_ops)      ratio
-//	busiest_node_share  busiest node's share of the job's bytes + ops        0..1
-//	node_spread         coefficient of variation of per-node bytes + ops     ratio
+//	busiest_node_share  busiest node's share of the job's data bytes          0..1
+//	node_spread         coefficient of variation of per-node data bytes      ratio
 //	data_bytes          read_bytes + write_bytes                             bytes/s per node
 //	sync_per_write      syncs / max(1, write_ops)                            ratio
 //

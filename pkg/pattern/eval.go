@@ -21,12 +21,11 @@ type WindowView struct {
 	Rates metric.Rates
 	// Nodes is the number of nodes the job ran on in the window.
 	Nodes int
-	// BusiestShare is the busiest node's share of the job's total bytes
-	// plus operations in the window, 0..1 (bytes and operations are
-	// added as plain numbers, so bytes dominate when there are any).
+	// BusiestShare is the busiest node's share of the job's data bytes
+	// (read plus write) in the window, 0..1 (model.Window.BusiestShare).
 	BusiestShare float64
 	// NodeSpread is the coefficient of variation (standard deviation over
-	// mean) of the per-node totals of bytes plus operations.
+	// mean) of the per-node data byte rates (model.Window.NodeSpread).
 	NodeSpread float64
 }
 
@@ -277,6 +276,10 @@ func (s *RuleState) Matched() bool {
 	k, _ := s.size()
 	return s.Count() >= k
 }
+
+// Span is how far back the oldest window that held lies among the last N:
+// 1 when only the newest held, 0 when none did.
+func (s *RuleState) Span() int { return bits.Len64(s.bits) }
 
 // Reset forgets every window.
 func (s *RuleState) Reset() { s.bits = 0 }

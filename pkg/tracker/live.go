@@ -3,6 +3,7 @@ package tracker
 import (
 	"cmp"
 	"fmt"
+	"maps"
 	"slices"
 	"time"
 
@@ -63,6 +64,7 @@ func (t *Tracker) evaluate(j *JobState) {
 	for i, r := range j.LiveRates {
 		t.step(j, metric.ID(i), r)
 	}
+	t.matchLive(j, liveView(j, nodes, live))
 	t.dirtyJobs[j.Meta.ID] = struct{}{}
 }
 
@@ -171,6 +173,18 @@ func summarize(j *JobState) model.Summary {
 			s.ActiveFlags = append(s.ActiveFlags, *h.Flag)
 		}
 	}
+	for _, name := range slices.Sorted(maps.Keys(j.Patterns)) {
+		h := j.Patterns[name]
+		if h.Flag != nil {
+			s.ActiveFlags = append(s.ActiveFlags, *h.Flag)
+		}
+		if h.Score > 0 {
+			if s.PatternScores == nil {
+				s.PatternScores = map[string]float64{}
+			}
+			s.PatternScores[name] = h.Score
+		}
+	}
 	return s
 }
 
@@ -254,5 +268,16 @@ func (j *JobState) clone() JobState {
 			c.Hyst[i].Flag = cloneFlag(h.Flag)
 		}
 	}
+	if j.Patterns != nil {
+		c.Patterns = make(map[string]*PatternHyst, len(j.Patterns))
+		for name, h := range j.Patterns {
+			ch := *h
+			if h.Flag != nil {
+				ch.Flag = cloneFlag(h.Flag)
+			}
+			c.Patterns[name] = &ch
+		}
+	}
+	c.match = nil // the copy is for the store; the matcher stays with the job
 	return c
 }

@@ -8,6 +8,7 @@ import (
 	"time"
 
 	"sluice/pkg/level"
+	"sluice/pkg/matcher"
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
 	"sluice/pkg/signature"
@@ -37,6 +38,11 @@ type JobState struct {
 	// Signature is the job's grades so far. The store keeps it in its own
 	// compact form, not in the job record.
 	Signature signature.Signature `json:"-"`
+	// Patterns holds each pattern's hysteresis while it matches or
+	// flags, by pattern name.
+	Patterns map[string]*PatternHyst `json:"patterns,omitempty"`
+
+	match *matcher.Job // rebuilt from the windows after a restart (Replay)
 
 	dirty bool // samples since the last evaluation
 }
@@ -124,6 +130,7 @@ func (t *Tracker) closeWindows(j *JobState, now time.Time) {
 		}
 		w := t.windowOf(j.Meta.ID, idx, start, end, j.Open[idx])
 		j.Signature.Append(w.Grades)
+		t.matchWindow(j, &w)
 		delete(j.Open, idx)
 		j.Closed = idx + 1
 		j.LastWindow = &w

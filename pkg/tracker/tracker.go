@@ -34,6 +34,7 @@ import (
 	"time"
 
 	"sluice/pkg/level"
+	"sluice/pkg/matcher"
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
 	"sluice/pkg/wire"
@@ -69,6 +70,9 @@ type Options struct {
 	Silent time.Duration
 	// KeepEnded is how long an ended job stays listed; zero means 1 hour.
 	KeepEnded time.Duration
+	// Patterns is the pattern library every job is matched against as
+	// its windows close and on its live window; nil matches nothing.
+	Patterns *matcher.Library
 }
 
 func (o Options) withDefaults() Options {
@@ -345,6 +349,7 @@ func (t *Tracker) finish(j *JobState) {
 			j.Hyst[i] = Hysteresis{}
 		}
 	}
+	t.clearPatterns(j)
 	j.Finished = true
 	j.Live = map[string][]Slice{}
 	t.dirtyJobs[j.Meta.ID] = struct{}{}
