@@ -22,12 +22,20 @@ import (
 
 // startAggregator runs a service with an embedded broker on free ports.
 func startAggregator(t *testing.T) string {
+	return "http://" + startService(t, func(*aggregate.Options) {}).HTTPAddr()
+}
+
+// startService runs a service with an embedded broker on free ports,
+// after edit has changed its options.
+func startService(t *testing.T, edit func(*aggregate.Options)) *aggregate.Service {
 	t.Helper()
-	svc, err := aggregate.New(aggregate.Options{
+	opts := aggregate.Options{
 		EmbeddedListen: "127.0.0.1:0", Listen: "127.0.0.1:0",
 		StorePath: filepath.Join(t.TempDir(), "a.db"),
 		TickEvery: time.Hour, FlushEvery: time.Hour, RecomputeEvery: time.Hour,
-	})
+	}
+	edit(&opts)
+	svc, err := aggregate.New(opts)
 	require.NoError(t, err)
 	ctx, cancel := context.WithCancel(context.Background())
 	done := make(chan error, 1)
@@ -38,7 +46,7 @@ func startAggregator(t *testing.T) string {
 		t.Fatalf("aggregator did not start: %v", err)
 	}
 	t.Cleanup(func() { cancel(); require.NoError(t, <-done) })
-	return "http://" + svc.HTTPAddr()
+	return svc
 }
 
 // writeHistory writes rows rows of window values over ten days ending

@@ -36,6 +36,12 @@ commands:
   jobs   print the running jobs of a running aggregator
   baseline import|show|export
          seed, inspect or dump the learned cut points
+  patterns list|show|check|learn
+         the problem patterns in force; validate a directory; learn from a job
+  flags [ack|silence|unsilence]
+         active and recent flags; acknowledge or silence them
+  explain JOB
+         a job's recent windows beside each pattern it matches
   demo   run aggregator, agents and simulated nodes on this machine
 
 Run "aggregator <command> -h" for the flags of a command.
@@ -64,6 +70,12 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) error {
 		return demo(ctx, args[1:], stdout, stderr)
 	case "baseline":
 		return baselineCmd(ctx, args[1:], stdout, stderr)
+	case "patterns":
+		return patternsCmd(ctx, args[1:], stdout, stderr)
+	case "flags":
+		return flagsCmd(ctx, args[1:], stdout, stderr)
+	case "explain":
+		return explain(ctx, args[1:], stdout)
 	case "-h", "--help", "help":
 		fmt.Fprint(stderr, usage)
 		return nil
@@ -82,6 +94,8 @@ type serveFlags struct {
 	baseMin                              uint64
 	baseElevated, baseCritical           float64
 	baseEvery                            time.Duration
+	patternDir                           string
+	noBuiltin                            bool
 }
 
 func (f *serveFlags) register(fs *flag.FlagSet) {
@@ -104,6 +118,8 @@ func (f *serveFlags) register(fs *flag.FlagSet) {
 	fs.Uint64Var(&f.baseMin, "baseline.min-windows", 1000, "non-idle windows a metric needs before its learned cut points replace the seed ones")
 	fs.Float64Var(&f.baseElevated, "baseline.elevated-quantile", 0.99, "quantile of the centre's windows above which a window is elevated")
 	fs.Float64Var(&f.baseCritical, "baseline.critical-quantile", 0.999, "quantile of the centre's windows above which a window is critical")
+	fs.StringVar(&f.patternDir, "patterns.dir", "", "directory of site pattern files (*.yaml), laid over the built-in library")
+	fs.BoolVar(&f.noBuiltin, "patterns.no-builtin", false, "match only the site's patterns, not the built-in library")
 	fs.DurationVar(&f.baseEvery, "baseline.recompute-every", 10*time.Minute, "how often the cut points are learned again (also at start-up and after an import)")
 }
 
@@ -115,6 +131,10 @@ func (f *serveFlags) options(log *slog.Logger) (aggregate.Options, error) {
 			return aggregate.Options{}, err
 		}
 	}
+	lib, err := loadLibrary(f.patternDir, !f.noBuiltin)
+	if err != nil {
+		return aggregate.Options{}, err
+	}
 	return aggregate.Options{
 		NATSURL: f.natsURL, EmbeddedListen: f.embedded, Prefix: f.prefix, Cluster: f.cluster,
 		StorePath: f.storePath, Listen: f.listen, TickEvery: f.tick, MaxJobSeries: f.maxJobSeries,
@@ -125,7 +145,7 @@ func (f *serveFlags) options(log *slog.Logger) (aggregate.Options, error) {
 		},
 		Tracker: tracker.Options{
 			Window: f.window, Live: f.live, Grace: f.grace, Cuts: cuts,
-			RaiseAfter: f.raiseAfter, ClearAfter: f.clearAfter,
+			RaiseAfter: f.raiseAfter, ClearAfter: f.clearAfter, Patterns: lib,
 		},
 	}, nil
 }

@@ -111,6 +111,7 @@ type Service struct {
 	pending    store.Batch
 	unreported []reported
 	agents     map[string]model.Agent // latest heartbeat per node
+	att        attention
 
 	flushMu  sync.Mutex // serialises flushes; taken before mu
 	st       *store.Store
@@ -171,6 +172,9 @@ func (s *Service) Run(ctx context.Context) error {
 	if err := s.restore(); err != nil {
 		return err
 	}
+	if err := s.loadAttention(); err != nil {
+		return err
+	}
 	nc, stopBroker, err := s.connect(ctx)
 	if err != nil {
 		return err
@@ -228,8 +232,30 @@ func (s *Service) restore() error {
 	if err := s.learn.load(days); err != nil {
 		return err
 	}
+	if err := s.replayLocked(state.Jobs); err != nil {
+		return err
+	}
 	s.recomputeLocked()
 	s.log.Info("state restored", "jobs", len(state.Jobs), "nodes", len(state.Nodes), "watermark", state.Watermark, "baseline_days", len(days))
+	return nil
+}
+
+// replayLocked rebuilds the pattern matchers of the restored running jobs
+// from their stored windows; the caller holds mu.
+func (s *Service) replayLocked(jobs []tracker.JobState) error {
+	if s.opts.Tracker.Patterns == nil {
+		return nil
+	}
+	for _, j := range jobs {
+		if j.Finished {
+			continue
+		}
+		ws, err := s.st.Windows(j.Meta.ID)
+		if err != nil {
+			return fmt.Errorf("aggregator: %w", err)
+		}
+		s.tr.Replay(j.Meta.ID, ws)
+	}
 	return nil
 }
 

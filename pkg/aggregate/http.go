@@ -36,6 +36,7 @@ func (s *Service) Snapshot() export.Snapshot {
 			running = append(running, j)
 		}
 	}
+	s.att.markJobs(running, s.opts.Now())
 	return export.Snapshot{
 		Agents:       s.agentsLocked(),
 		Ingest:       s.ingest.Clone(),
@@ -81,6 +82,7 @@ func (s *Service) handler() http.Handler {
 	mux.HandleFunc("GET /api/v1/jobs", func(w http.ResponseWriter, r *http.Request) {
 		s.mu.Lock()
 		jobs := s.tr.Summaries()
+		s.att.markJobs(jobs, s.opts.Now())
 		s.mu.Unlock()
 		if r.URL.Query().Get("state") == "running" {
 			jobs = slices.DeleteFunc(jobs, func(j model.Summary) bool { return j.State != "running" })
@@ -91,6 +93,7 @@ func (s *Service) handler() http.Handler {
 		id := r.PathValue("id")
 		s.mu.Lock()
 		sum, ok := s.tr.Job(id)
+		s.att.mark(sum.ActiveFlags, s.opts.Now())
 		s.mu.Unlock()
 		if !ok {
 			http.Error(w, "no such job: "+id, http.StatusNotFound)
@@ -118,8 +121,13 @@ func (s *Service) handler() http.Handler {
 	})
 	mux.HandleFunc("GET /api/v1/baseline/export", s.handleExport)
 	mux.HandleFunc("POST /api/v1/baseline/import", s.handleImport)
+	mux.HandleFunc("GET /api/v1/patterns", s.handlePatterns)
+	mux.HandleFunc("POST /api/v1/silences", s.handleSilence)
+	mux.HandleFunc("GET /api/v1/silences", s.handleSilences)
+	mux.HandleFunc("DELETE /api/v1/silences/{id}", s.handleUnsilence)
+	mux.HandleFunc("POST /api/v1/flags/{id}/ack", s.handleAck)
 	mux.HandleFunc("GET /api/v1/flags", func(w http.ResponseWriter, _ *http.Request) {
-		fs, err := s.st.Flags()
+		fs, err := s.flagList()
 		if err != nil {
 			http.Error(w, err.Error(), http.StatusInternalServerError)
 			return

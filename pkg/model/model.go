@@ -93,13 +93,15 @@ type Flag struct {
 	Summary string `json:"summary"`
 	// Silenced is true while a silence covers the flag: it is kept and
 	// listed, but not exported to Prometheus.
-	Silenced bool      `json:"silenced,omitempty"`
-	Value    float64   `json:"value"` // per-node rate when raised (latest while active)
-	Peak     float64   `json:"peak"`  // highest per-node rate while active
-	Cut      float64   `json:"cut"`   // the cut point crossed
-	Nodes    int       `json:"nodes"` // nodes reporting when raised
-	Since    time.Time `json:"since"` // first evaluation above the cut
-	Raised   time.Time `json:"raised"`
+	Silenced bool `json:"silenced,omitempty"`
+	// Ack is set once someone has acknowledged the flag.
+	Ack    *Ack      `json:"ack,omitempty"`
+	Value  float64   `json:"value"` // per-node rate when raised (latest while active)
+	Peak   float64   `json:"peak"`  // highest per-node rate while active
+	Cut    float64   `json:"cut"`   // the cut point crossed
+	Nodes  int       `json:"nodes"` // nodes reporting when raised
+	Since  time.Time `json:"since"` // first evaluation above the cut
+	Raised time.Time `json:"raised"`
 	// Cleared is zero while the flag is active.
 	Cleared time.Time `json:"cleared,omitzero"`
 }

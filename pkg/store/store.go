@@ -16,6 +16,8 @@
 //	nodes    node -> tracker.SeqSet
 //	signatures job id -> signature.Signature in its binary form
 //	baseline origin, "/", YYYY-MM-DD -> baseline.Day in its binary form
+//	silences silence id -> model.Silence
+//	acks     flag id -> model.Ack
 //
 // # Caveats
 //
@@ -52,7 +54,9 @@ var (
 	bucketNodes   = []byte("nodes")
 	bucketSigs    = []byte("signatures")
 	bucketDays    = []byte("baseline")
-	allBuckets    = [][]byte{bucketMeta, bucketJobs, bucketWindows, bucketFlags, bucketNodes, bucketSigs, bucketDays}
+	bucketSilence = []byte("silences")
+	bucketAcks    = []byte("acks")
+	allBuckets    = [][]byte{bucketMeta, bucketJobs, bucketWindows, bucketFlags, bucketNodes, bucketSigs, bucketDays, bucketSilence, bucketAcks}
 )
 
 // ErrLocked means another process holds the file.
@@ -394,4 +398,69 @@ func (s *Store) Flags() ([]model.Flag, error) {
 		return nil, fmt.Errorf("store %s: flags: %w", s.path, err)
 	}
 	return fs, nil
+}
+
+// PutSilence stores a silence.
+func (s *Store) PutSilence(sl model.Silence) error {
+	err := s.db.Update(func(tx *bolt.Tx) error { return putJSON(tx.Bucket(bucketSilence), []byte(sl.ID), &sl) })
+	if err != nil {
+		return fmt.Errorf("store %s: silence: %w", s.path, err)
+	}
+	return nil
+}
+
+// DeleteSilence removes a silence; a missing one is not an error.
+func (s *Store) DeleteSilence(id string) error {
+	err := s.db.Update(func(tx *bolt.Tx) error { return tx.Bucket(bucketSilence).Delete([]byte(id)) })
+	if err != nil {
+		return fmt.Errorf("store %s: silence: %w", s.path, err)
+	}
+	return nil
+}
+
+// Silences returns every stored silence, expired ones included.
+func (s *Store) Silences() ([]model.Silence, error) {
+	var out []model.Silence
+	err := s.db.View(func(tx *bolt.Tx) error {
+		return tx.Bucket(bucketSilence).ForEach(func(k, v []byte) error {
+			var sl model.Silence
+			if err := json.Unmarshal(v, &sl); err != nil {
+				return fmt.Errorf("silence %q: %w", k, err)
+			}
+			out = append(out, sl)
+			return nil
+		})
+	})
+	if err != nil {
+		return nil, fmt.Errorf("store %s: %w", s.path, err)
+	}
+	return out, nil
+}
+
+// PutAck stores an acknowledgement.
+func (s *Store) PutAck(a model.Ack) error {
+	err := s.db.Update(func(tx *bolt.Tx) error { return putJSON(tx.Bucket(bucketAcks), []byte(a.Flag), &a) })
+	if err != nil {
+		return fmt.Errorf("store %s: ack: %w", s.path, err)
+	}
+	return nil
+}
+
+// Acks returns every stored acknowledgement, by flag id.
+func (s *Store) Acks() (map[string]model.Ack, error) {
+	out := map[string]model.Ack{}
+	err := s.db.View(func(tx *bolt.Tx) error {
+		return tx.Bucket(bucketAcks).ForEach(func(k, v []byte) error {
+			var a model.Ack
+			if err := json.Unmarshal(v, &a); err != nil {
+				return fmt.Errorf("ack %q: %w", k, err)
+			}
+			out[string(k)] = a
+			return nil
+		})
+	})
+	if err != nil {
+		return nil, fmt.Errorf("store %s: %w", s.path, err)
+	}
+	return out, nil
 }

@@ -1,0 +1,133 @@
+package main
+
+import (
+	"bytes"
+	"context"
+	"fmt"
+	"os"
+	"path/filepath"
+	"testing"
+	"time"
+
+	"net/http"
+
+	"github.com/nats-io/nats.go"
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+
+	"sluice/pkg/aggregate"
+	"sluice/pkg/metric"
+	"sluice/pkg/tracker"
+	"sluice/pkg/wire"
+)
+
+// TestStormFlagsExplainAckSilenceLearn drives a metadata storm (job 81234
+// of the invented centre, 4 nodes creating 2,000 files/s each) through the
+// broker into an aggregator with the built-in patterns, then uses the
+// operator commands on it: flags, explain, ack, silence, patterns learn.
+func TestStormFlagsExplainAckSilenceLearn(t *testing.T) {
+	lib, err := loadLibrary("", true)
+	require.NoError(t, err)
+	svc := startService(t, func(o *aggregate.Options) {
+		o.Tracker = tracker.Options{Window: time.Minute, Live: 20 * time.Second, Grace: time.Second, Patterns: lib}
+	})
+	url := "http://" + svc.HTTPAddr()
+	nc, err := nats.Connect(svc.NATSURL())
+	require.NoError(t, err)
+	defer nc.Close()
+	t0 := time.Now().Add(-10 * time.Minute).Truncate(time.Minute)
+	nodes := []string{"bw007", "bw008", "bw009", "bw010"}
+	for _, n := range nodes {
+		b := wire.AppendJobEvent(nil, &wire.JobEvent{Type: wire.JobStart, Job: "81234", Node: n, Nodes: nodes, User: "dorvane", Name: "quill-index", Time: t0})
+		require.NoError(t, nc.Publish("sluice.default.job."+n, b))
+	}
+	for step := range 24 {
+		from := t0.Add(time.Duration(step) * 10 * time.Second)
+		for _, n := range nodes {
+			var v metric.Values
+			v[metric.Creates], v[metric.StatOps], v[metric.WriteBytes] = 20000, 30000, 100_000
+			b := wire.AppendSample(nil, &wire.Sample{Node: n, Seq: uint64(step + 1), Start: from, End: from.Add(10 * time.Second), Jobs: []string{"81234"}, Values: v})
+			require.NoError(t, nc.Publish("sluice.default.sample."+n, b))
+		}
+		require.NoError(t, nc.Flush())
+		require.Eventually(t, func() bool { return applied(t, url) >= uint64(4*(step+1)) }, 5*time.Second, 5*time.Millisecond)
+		svc.Tick()
+	}
+
+	cli := func(args ...string) string {
+		var out, errb bytes.Buffer
+		require.NoError(t, run(context.Background(), append(args, "--url", url), &out, &errb), errb.String())
+		return out.String()
+	}
+	list := cli("flags")
+	assert.Regexp(t, `(?m)^active\s+81234\s+pattern:metadata_storm\s+critical\s+\d\.\d\d\s`, list)
+	assert.Contains(t, list, "Metadata storm (score 0.67) on 4 nodes")
+
+	ex := cli("explain", "81234")
+	t.Log("\n" + ex)
+	assert.Contains(t, ex, "metadata_storm — Metadata storm (critical")
+	assert.Contains(t, ex, "FLAGGED since")
+	assert.Regexp(t, `any: creates level >= critical\s+\+ crit`, ex)
+	assert.Contains(t, ex, "advice: ")
+
+	id := flagID(t, url, "pattern:metadata_storm")
+	assert.Contains(t, cli("flags", "ack", id, "--by", "keswin", "--why", "calling the user"), "acknowledged by keswin")
+	assert.Regexp(t, `(?m)^active \(ack keswin\)\s+81234\s+pattern:metadata_storm`, cli("flags"))
+
+	assert.Contains(t, scrape(t, url), `reason="pattern:metadata_storm"`)
+	assert.Contains(t, cli("flags", "silence", "--job", "81234", "--pattern", "metadata_storm", "--for", "2h", "--by", "keswin", "--why", "user contacted"), "silence ")
+	assert.Regexp(t, `(?m)^silenced \(ack keswin\)\s+81234\s+pattern:metadata_storm`, cli("flags"))
+	assert.NotContains(t, scrape(t, url), `reason="pattern:metadata_storm"`, "a silenced flag leaves /metrics")
+	assert.Contains(t, scrape(t, url), `reason="critical:creates"`, "the silence covers only the pattern")
+
+	out := filepath.Join(t.TempDir(), "quill_storm.yaml")
+	cli("patterns", "learn", "--job", "81234", "--name", "quill_storm", "--out", out)
+	data, err := os.ReadFile(out)
+	require.NoError(t, err)
+	assert.Contains(t, string(data), "name: quill_storm")
+	assert.Contains(t, string(data), "creates:")
+	var chk bytes.Buffer
+	require.NoError(t, run(context.Background(), []string{"patterns", "check", filepath.Dir(out)}, &chk, &chk))
+	assert.Contains(t, chk.String(), "1 patterns, all valid")
+}
+
+func applied(t *testing.T, url string) uint64 {
+	m := scrape(t, url)
+	var n uint64
+	_, _ = fmt.Sscanf(after(m, `sluice_ingest_messages_total{kind="sample"} `), "%d", &n)
+	return n
+}
+
+func after(s, prefix string) string {
+	i := bytes.Index([]byte(s), []byte(prefix))
+	if i < 0 {
+		return ""
+	}
+	return s[i+len(prefix):]
+}
+
+func scrape(t *testing.T, url string) string {
+	var b bytes.Buffer
+	resp, err := httpGet(url + "/metrics")
+	require.NoError(t, err)
+	defer resp.Body.Close()
+	_, err = b.ReadFrom(resp.Body)
+	require.NoError(t, err)
+	return b.String()
+}
+
+func flagID(t *testing.T, url, reason string) string {
+	var out struct {
+		Flags []struct{ ID, Reason string }
+	}
+	require.NoError(t, call(context.Background(), "GET", url, "/api/v1/flags", nil, &out))
+	for _, f := range out.Flags {
+		if f.Reason == reason {
+			return f.ID
+		}
+	}
+	t.Fatalf("no flag %s", reason)
+	return ""
+}
+
+var httpGet = http.Get
