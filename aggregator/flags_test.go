@@ -72,7 +72,9 @@ func TestStormFlagsExplainAckSilenceLearn(t *testing.T) {
 
 	id := flagID(t, url, "pattern:metadata_storm")
 	assert.Contains(t, cli("flags", "ack", id, "--by", "keswin", "--why", "calling the user"), "acknowledged by keswin")
-	assert.Regexp(t, `(?m)^active \(ack keswin\)\s+81234\s+pattern:metadata_storm`, cli("flags"))
+	acked := cli("flags")
+	t.Log("\n" + acked)
+	assert.Regexp(t, `(?m)^active \(ack keswin\)\s+81234\s+pattern:metadata_storm`, acked)
 
 	assert.Contains(t, scrape(t, url), `reason="pattern:metadata_storm"`)
 	assert.Contains(t, cli("flags", "silence", "--job", "81234", "--pattern", "metadata_storm", "--for", "2h", "--by", "keswin", "--why", "user contacted"), "silence ")
