@@ -7,7 +7,7 @@ PKGS     := ./...
 
 PREFIX   ?= /usr/local
 
-.PHONY: build install test unit fuzz lint rules demo bench help
+.PHONY: build install test unit fuzz lint rules e2e demo bench help
 
 help:
 	@echo "make demo   run the whole system on simulated nodes (about 75 s)"
@@ -18,6 +18,7 @@ help:
 	@echo "make fuzz   run every fuzz target for FUZZTIME (default $(FUZZTIME))"
 	@echo "make lint   gofmt check, go vet, go mod tidy check"
 	@echo "make rules  check the Prometheus config and alert rules, run their promtool tests"
+	@echo "make e2e    the real Prometheus server scrapes an aggregator; the storm's alerts must fire and resolve"
 
 build:
 	@mkdir -p $(BIN)
@@ -31,7 +32,7 @@ install: build
 demo: build
 	$(BIN)/aggregator demo --agent.bin $(BIN)/agent
 
-test: lint rules fuzz unit
+test: lint rules fuzz unit e2e
 
 unit:
 	$(GO) test -race -count=1 $(PKGS)
@@ -39,7 +40,7 @@ unit:
 lint:
 	@out=$$(gofmt -l $$(git ls-files '*.go') $$(git ls-files --others --exclude-standard '*.go')); \
 	  if [ -n "$$out" ]; then echo "gofmt would change:"; echo "$$out"; exit 1; fi
-	$(GO) vet $(PKGS)
+	$(GO) vet -tags e2e $(PKGS)
 	@cp go.mod /tmp/sluice-go.mod.bak; cp go.sum /tmp/sluice-go.sum.bak; \
 	  $(GO) mod tidy; \
 	  if ! cmp -s go.mod /tmp/sluice-go.mod.bak || ! cmp -s go.sum /tmp/sluice-go.sum.bak; then \
@@ -55,6 +56,14 @@ rules:
 	$(PROMTOOL) check config deploy/prometheus/prometheus.yml
 	$(PROMTOOL) check rules deploy/prometheus/sluice.rules.yml
 	$(PROMTOOL) test rules deploy/prometheus/tests/*.test.yml
+	$(PROMTOOL) check metrics < testdata/export/fixed.golden
+
+# The real Prometheus server (Debian package prometheus) scrapes an
+# aggregator fed through real agents, with the project's alert rules.
+e2e:
+	@command -v prometheus >/dev/null || { \
+	  echo "prometheus not found: install the Debian package prometheus (apt-get install prometheus)" >&2; exit 1; }
+	$(GO) test -tags e2e -count=1 -run TestAlertsFireInPrometheus ./pkg/aggregate
 
 # Each fuzz target runs alone (go test -fuzz takes one target at a time). A
 # run that finds a failing input fails at once (the input is written under

@@ -100,10 +100,14 @@ func (d *demoRun) run(ctx context.Context, listen string, stderr io.Writer) erro
 	if err != nil {
 		return err
 	}
+	lib, err := loadLibrary("", true)
+	if err != nil {
+		return err
+	}
 	svc, err := aggregate.New(aggregate.Options{
 		EmbeddedListen: "127.0.0.1:0", Listen: listen, Cluster: "brackwater",
 		StorePath: filepath.Join(d.dir, "aggregator.db"), TickEvery: time.Second,
-		Tracker: tracker.Options{Window: 30 * time.Second, Live: 10 * time.Second, Grace: 3 * time.Second, RaiseAfter: 3, ClearAfter: 3},
+		Tracker: tracker.Options{Window: 30 * time.Second, Live: 10 * time.Second, Grace: 3 * time.Second, RaiseAfter: 3, ClearAfter: 3, Patterns: lib},
 		OnEvent: d.report,
 	})
 	if err != nil {
@@ -190,7 +194,7 @@ func (d *demoRun) simulate(ctx context.Context, s *sim.Sim, sc sim.Scenario) {
 		if err := s.Step(now); err != nil {
 			d.printf("simulator: %v", err)
 		}
-		if !shown && off > 32*time.Second {
+		if !shown && off > 40*time.Second {
 			shown = true
 			d.showMetrics(ctx)
 		}
@@ -216,14 +220,32 @@ func (d *demoRun) hooks(ctx context.Context, j sim.Job, what string) {
 	d.printf("job %s %s (%s, %d nodes): hooks ran", j.ID, map[string]string{"start": "started", "end": "ended"}[what], j.Name, len(j.Nodes))
 }
 
+// firstSentence is advice up to its first full stop, on one line.
+func firstSentence(s string) string {
+	s = strings.Join(strings.Fields(s), " ")
+	if i := strings.Index(s, ". "); i > 0 {
+		return s[:i+1]
+	}
+	return s
+}
+
 // report prints flags as they are raised and cleared.
 func (d *demoRun) report(e tracker.Event, j model.Summary) {
 	switch e.Kind {
 	case tracker.FlagRaised:
 		f := e.Flag
+		if f.Pattern != "" {
+			d.printf("FLAG   job %s (%s, user %s, %d nodes) looks like %s (score %.2f, %s) since %s; advice: %s",
+				j.ID, j.Name, j.User, f.Nodes, strings.ToLower(f.Title), f.Score, f.Severity, f.Since.Format("15:04:05"), firstSentence(f.Advice))
+			return
+		}
 		d.printf("FLAG   job %s (%s, user %s, %d nodes): %s %s per node > critical cut %s, since %s",
 			j.ID, j.Name, j.User, f.Nodes, f.Metric, human(f.Value, f.Metric.IsBytes()), human(f.Cut, f.Metric.IsBytes()), f.Since.Format("15:04:05"))
 	case tracker.FlagCleared:
+		if e.Flag.Pattern != "" {
+			d.printf("clear  job %s: %s", j.ID, e.Flag.Reason)
+			return
+		}
 		d.printf("clear  job %s: %s (peak %s per node)", j.ID, e.Flag.Reason, human(e.Flag.Peak, e.Flag.Metric.IsBytes()))
 	case tracker.WindowClosed:
 		w := e.Window

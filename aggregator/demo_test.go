@@ -17,18 +17,19 @@ import (
 // must flag the metadata storm job on creates.
 func TestDemoFlagsTheMetadataStorm(t *testing.T) {
 	if testing.Short() {
-		t.Skip("runs the 35 s demo")
+		t.Skip("runs the 45 s demo")
 	}
 	bin := filepath.Join(t.TempDir(), "agent")
 	out, err := exec.Command("go", "build", "-o", bin, "sluice/agent").CombinedOutput()
 	require.NoError(t, err, "build the agent: %s", out)
 
 	var stdout, stderr bytes.Buffer
-	err = run(context.Background(), []string{"demo", "--agent.bin", bin, "--duration", "35s", "--web.listen", "127.0.0.1:0"}, &stdout, &stderr)
+	err = run(context.Background(), []string{"demo", "--agent.bin", bin, "--duration", "45s", "--web.listen", "127.0.0.1:0"}, &stdout, &stderr)
 	require.NoError(t, err, "stderr: %s", stderr.String())
 	text := stdout.String()
 	assert.Regexp(t, regexp.MustCompile(`FLAG\s+job 81234 \(quill-index, user dorvane, 4 nodes\): creates [0-9.]+k/s per node > critical cut 1k/s, since \d\d:\d\d:\d\d`), text)
-	assert.Contains(t, text, `sluice_job_flag_active{job="81234",name="quill-index",reason="critical:creates",severity="critical",user="dorvane"} 1`)
+	assert.Regexp(t, `sluice_job_flag_active\{job_id="81234",name="quill-index",pattern="",reason="critical:creates",severity="warning",summary="creates above the critical cut on \d nodes",user="dorvane"\} 1`, text)
+	assert.Regexp(t, `sluice_job_flag_active\{job_id="81234",name="quill-index",pattern="metadata_storm",reason="pattern:metadata_storm",severity="critical",`, text)
 	assert.NotContains(t, text, "FLAG   job 81230", "the healthy streaming job is not flagged")
 	assert.NotContains(t, text, "FLAG   job 81231", "the quiet job is not flagged")
 }

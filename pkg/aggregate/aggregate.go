@@ -25,6 +25,7 @@ import (
 	"net"
 	"net/http"
 	"sync"
+	"sync/atomic"
 	"time"
 
 	"github.com/nats-io/nats.go"
@@ -68,7 +69,8 @@ type Options struct {
 	// FlushEvery is how often changes are written to the store; zero
 	// means 1 second.
 	FlushEvery time.Duration
-	// MaxJobSeries caps the jobs given per-job series on /metrics; zero
+	// MaxJobSeries caps the per-job series on /metrics (jobs are taken most
+	// severe first while their series fit); zero
 	// means 2000.
 	MaxJobSeries int
 	// Logger receives the service's logs; nil discards them.
@@ -86,7 +88,7 @@ func (o Options) withDefaults() Options {
 	o.TickEvery = cmp.Or(o.TickEvery, 5*time.Second)
 	o.FlushEvery = cmp.Or(o.FlushEvery, time.Second)
 	o.RecomputeEvery = cmp.Or(o.RecomputeEvery, 10*time.Minute)
-	o.MaxJobSeries = cmp.Or(o.MaxJobSeries, 2000)
+	o.MaxJobSeries = cmp.Or(o.MaxJobSeries, 5000)
 	if o.Logger == nil {
 		o.Logger = slog.New(slog.DiscardHandler)
 	}
@@ -112,6 +114,7 @@ type Service struct {
 	unreported []reported
 	agents     map[string]model.Agent // latest heartbeat per node
 	att        attention
+	conn       atomic.Pointer[nats.Conn] // the broker connection, for /metrics
 
 	flushMu  sync.Mutex // serialises flushes; taken before mu
 	st       *store.Store
@@ -151,6 +154,12 @@ func New(opts Options) (*Service, error) {
 	}, nil
 }
 
+// brokerConnected reports whether the service is connected to its broker.
+func (s *Service) brokerConnected() bool {
+	nc := s.conn.Load()
+	return nc != nil && nc.IsConnected()
+}
+
 // Ready is closed once the service is subscribed and serving HTTP.
 func (s *Service) Ready() <-chan struct{} { return s.ready }
 
@@ -181,6 +190,7 @@ func (s *Service) Run(ctx context.Context) error {
 	}
 	defer stopBroker()
 	defer nc.Close()
+	s.conn.Store(nc)
 	subs, err := s.subscribe(nc)
 	if err != nil {
 		return err

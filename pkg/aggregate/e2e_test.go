@@ -20,6 +20,7 @@ import (
 	"sluice/pkg/aggregate"
 	"sluice/pkg/internal/natstest"
 	"sluice/pkg/jobstate"
+	"sluice/pkg/matcher"
 	"sluice/pkg/metric"
 	smodel "sluice/pkg/model"
 	"sluice/pkg/nodeagent"
@@ -71,11 +72,15 @@ type rig struct {
 	stop   func()
 	sent   [][]byte // every sample message on the bus, recorded
 	sentMu sync.Mutex
+	lib    *matcher.Library // patterns the service matches; nil for none
 }
 
-func newRig(t *testing.T) *rig {
+func newRig(t *testing.T) *rig { return newRigWith(t, nil) }
+
+// newRigWith is newRig with a pattern library in the service.
+func newRigWith(t *testing.T, lib *matcher.Library) *rig {
 	srv := natstest.Start(t)
-	r := &rig{t: t, url: srv.URL(), dir: t.TempDir(), clk: &clock{t: t0}}
+	r := &rig{t: t, url: srv.URL(), dir: t.TempDir(), clk: &clock{t: t0}, lib: lib}
 	var err error
 	r.sim, err = sim.New(scenario(), filepath.Join(r.dir, "nodes"), t0)
 	require.NoError(t, err)
@@ -111,7 +116,7 @@ func (r *rig) startService() {
 	svc, err := aggregate.New(aggregate.Options{
 		NATSURL: r.url, StorePath: filepath.Join(r.dir, "aggregator.db"), Listen: "127.0.0.1:0",
 		TickEvery: time.Hour, FlushEvery: time.Hour, // the test steps the service itself
-		Tracker: tracker.Options{Window: time.Minute, Live: 30 * time.Second, Grace: step, RaiseAfter: 1},
+		Tracker: tracker.Options{Window: time.Minute, Live: 30 * time.Second, Grace: step, RaiseAfter: 1, Patterns: r.lib},
 		Now:     r.clk.now,
 	})
 	require.NoError(r.t, err)
@@ -236,7 +241,7 @@ type dto struct {
 }
 
 func key(l map[string]string) string {
-	return "{job=" + l["job"] + ",metric=" + l["metric"] + ",reason=" + l["reason"] + ",kind=" + l["kind"] + ",reason2=" + "}"
+	return "{job_id=" + l["job_id"] + ",metric=" + l["metric"] + ",reason=" + l["reason"] + ",kind=" + l["kind"] + ",reason2=" + "}"
 }
 
 func TestAgentsToMetricsExact(t *testing.T) {
@@ -274,13 +279,13 @@ func TestAgentsToMetricsExact(t *testing.T) {
 
 	// /metrics shows the same values.
 	m := r.scrape()
-	got := m["sluice_job_live_operations_per_second"+key(map[string]string{"job": "4101", "metric": "creates"})]
+	got := m["sluice_job_live_operations_per_second"+key(map[string]string{"job_id": "4101", "metric": "creates"})]
 	require.NotNil(t, got, "per-job series for the flagged job")
 	assert.InDelta(t, storm.Live[metric.Creates], got.value, 1e-9)
-	flag := m["sluice_job_flag_active"+key(map[string]string{"job": "4101", "reason": "critical:creates"})]
+	flag := m["sluice_job_flag_active"+key(map[string]string{"job_id": "4101", "reason": "critical:creates"})]
 	require.NotNil(t, flag)
-	assert.Equal(t, "critical", flag.labels["severity"])
-	assert.Nil(t, m["sluice_job_live_bytes_per_second"+key(map[string]string{"job": "4102", "metric": "write_bytes"})],
+	assert.Equal(t, "warning", flag.labels["severity"], "critical I/O alone is a warning; patterns say more")
+	assert.Nil(t, m["sluice_job_live_bytes_per_second"+key(map[string]string{"job_id": "4102", "metric": "write_bytes"})],
 		"a normal, unflagged job has no per-job series")
 }
 

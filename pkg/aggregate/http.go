@@ -38,15 +38,16 @@ func (s *Service) Snapshot() export.Snapshot {
 	}
 	s.att.markJobs(running, s.opts.Now())
 	return export.Snapshot{
-		Agents:       s.agentsLocked(),
-		Ingest:       s.ingest.Clone(),
-		Jobs:         running,
-		Cuts:         s.tr.Coding().Levels,
-		Baseline:     s.learn.exported(),
-		Watermark:    s.tr.Watermark(),
-		Now:          s.opts.Now(),
-		Nodes:        s.tr.Nodes(),
-		MaxJobSeries: s.opts.MaxJobSeries,
+		Agents:          s.agentsLocked(),
+		Ingest:          s.ingest.Clone(),
+		Jobs:            running,
+		Cuts:            s.tr.Coding().Levels,
+		Baseline:        s.learn.exported(),
+		Watermark:       s.tr.Watermark(),
+		Now:             s.opts.Now(),
+		Nodes:           s.tr.Nodes(),
+		MaxJobSeries:    s.opts.MaxJobSeries,
+		BrokerConnected: s.brokerConnected(),
 	}
 }
 

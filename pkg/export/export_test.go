@@ -2,14 +2,20 @@ package export_test
 
 import (
 	"bytes"
+	"cmp"
 	"flag"
 	"fmt"
+	"math/rand/v2"
+	"net/http/httptest"
 	"os"
 	"path/filepath"
+	"slices"
+	"strings"
 	"testing"
 	"time"
 
 	"github.com/prometheus/client_golang/prometheus"
+	"github.com/prometheus/client_golang/prometheus/promhttp"
 	"github.com/prometheus/client_golang/prometheus/testutil"
 	"github.com/prometheus/common/expfmt"
 	"github.com/stretchr/testify/assert"
@@ -25,18 +31,34 @@ var update = flag.Bool("update", false, "rewrite the golden files")
 
 var t0 = time.Date(2026, 3, 2, 14, 5, 0, 0, time.UTC)
 
-// fixed is a snapshot of a small scenario: a flagged metadata storm, a
-// healthy streaming job and an idle one.
+// fixed is a snapshot of a small scenario: a metadata storm with a
+// critical-I/O flag and a critical pattern flag, a healthy streaming job
+// whose pattern flag is silenced, a normal job whose only flag is silenced
+// (no per-job series at all) and an idle one.
 func fixed() export.Snapshot {
 	storm := model.Summary{JobMeta: model.JobMeta{ID: "81234", User: "dorvane", Name: "quill-index", Start: t0.Add(-10 * time.Minute)}, State: "running", NodesSeen: 64}
 	storm.Live[metric.Creates] = 2500
 	storm.Live[metric.StatOps] = 15000
 	storm.LiveLevels[metric.Creates] = level.Critical
 	storm.LiveLevels[metric.StatOps] = level.Critical
-	storm.ActiveFlags = []model.Flag{{ID: "81234/critical:creates/1", Job: "81234", Reason: "critical:creates", Metric: metric.Creates, Level: level.Critical, Value: 2500, Cut: 1000, Since: t0}}
+	storm.ActiveFlags = []model.Flag{
+		{ID: "81234/critical:creates/1", Job: "81234", Reason: "critical:creates", Metric: metric.Creates, Level: level.Critical,
+			Score: 1, Severity: "warning", Summary: "creates 2.5k/s per node > critical cut 1k/s", Value: 2500, Cut: 1000, Since: t0},
+		{ID: "81234/pattern:metadata_storm/1", Job: "81234", Reason: "pattern:metadata_storm", Metric: metric.Creates, Level: level.Critical,
+			Pattern: "metadata_storm", Title: "Metadata storm", Score: 0.91, Severity: "critical",
+			Summary: "Metadata storm (score 0.91) on 64 nodes", Since: t0.Add(-3 * time.Minute)},
+	}
+	storm.PatternScores = map[string]float64{"metadata_storm": 0.91, "stat_polling": 0.5, "small_write_flood": 0.12}
 	stream := model.Summary{JobMeta: model.JobMeta{ID: "81230", User: "ambrel", Name: "tidepool-assim"}, State: "running", NodesSeen: 4}
 	stream.Live[metric.WriteBytes] = 1.5e9
 	stream.LiveLevels[metric.WriteBytes] = level.Elevated
+	stream.ActiveFlags = []model.Flag{{ID: "81230/pattern:heavy_streaming/1", Job: "81230", Reason: "pattern:heavy_streaming", Metric: metric.WriteBytes,
+		Pattern: "heavy_streaming", Title: "Heavy streaming", Score: 0.77, Severity: "info", Summary: "Heavy streaming (score 0.77) on 4 nodes",
+		Since: t0.Add(-5 * time.Minute), Silenced: true}}
+	stream.PatternScores = map[string]float64{"heavy_streaming": 0.77}
+	hushed := model.Summary{JobMeta: model.JobMeta{ID: "81235", User: "lyset", Name: "fernwave-post"}, State: "running", NodesSeen: 2}
+	hushed.ActiveFlags = []model.Flag{{ID: "81235/pattern:small_write_flood/1", Job: "81235", Reason: "pattern:small_write_flood",
+		Pattern: "small_write_flood", Score: 0.64, Severity: "warning", Summary: "Small-write flood (score 0.64) on 2 nodes", Since: t0, Silenced: true}}
 	idle := model.Summary{JobMeta: model.JobMeta{ID: "81231", User: "keswin"}, State: "running", NodesSeen: 2}
 	in := export.NewIngest()
 	in.Accepted["sample"] = 1200
@@ -51,9 +73,62 @@ func fixed() export.Snapshot {
 			Sources: []model.AgentSource{{Name: "lustre", Instances: 1, MicrosPerRead: 19, OK: false, Malformed: 3}}},
 	}
 	return export.Snapshot{
-		Ingest: in, Jobs: []model.Summary{idle, stream, storm}, Cuts: level.DefaultCuts(),
-		Watermark: t0, Now: t0.Add(2 * time.Second), Nodes: 70, MaxJobSeries: 10, Agents: agents,
+		Ingest: in, Jobs: []model.Summary{idle, stream, hushed, storm}, Cuts: level.DefaultCuts(),
+		Watermark: t0, Now: t0.Add(2 * time.Second), Nodes: 70, MaxJobSeries: 100, Agents: agents,
+		BrokerConnected: true,
 	}
+}
+
+// series is one scraped series: its family name, labels and value.
+type series struct {
+	name   string
+	labels map[string]string
+	value  float64
+}
+
+// gather scrapes a collector over s once, through a pedantic registry.
+func gather(t testing.TB, s export.Snapshot) []series {
+	t.Helper()
+	reg := prometheus.NewPedanticRegistry()
+	require.NoError(t, reg.Register(export.NewCollector(func() export.Snapshot { return s })))
+	fams, err := reg.Gather()
+	require.NoError(t, err)
+	var out []series
+	for _, f := range fams {
+		for _, m := range f.GetMetric() {
+			l := map[string]string{}
+			for _, p := range m.GetLabel() {
+				l[p.GetName()] = p.GetValue()
+			}
+			out = append(out, series{f.GetName(), l, m.GetGauge().GetValue() + m.GetCounter().GetValue()})
+		}
+	}
+	return out
+}
+
+// jobIDs returns the distinct job_id values over all series.
+func jobIDs(all []series) map[string]bool {
+	ids := map[string]bool{}
+	for _, s := range all {
+		if id, ok := s.labels["job_id"]; ok {
+			ids[id] = true
+		}
+	}
+	return ids
+}
+
+// value returns the value of the one series named name, failing if there
+// is not exactly one.
+func value(t testing.TB, all []series, name string) float64 {
+	t.Helper()
+	var got []float64
+	for _, s := range all {
+		if s.name == name {
+			got = append(got, s.value)
+		}
+	}
+	require.Len(t, got, 1, name)
+	return got[0]
 }
 
 func TestGoldenExposition(t *testing.T) {
@@ -84,46 +159,299 @@ func TestMetricNamesFollowConventions(t *testing.T) {
 	assert.Empty(t, problems)
 }
 
-func TestPerJobSeriesOnlyForNotableJobsAndCapped(t *testing.T) {
+func TestNoJobLabel(t *testing.T) {
+	// Prometheus's target label is job; a per-job label of that name would
+	// be ingested as exported_job, and the alert rules match job_id.
+	for _, s := range gather(t, fixed()) {
+		assert.NotContains(t, s.labels, "job", s.name)
+	}
+}
+
+func TestFlagSeries(t *testing.T) {
+	all := (gather(t, fixed()))
+	var active, scores []series
+	for _, s := range all {
+		switch s.name {
+		case "sluice_job_flag_active":
+			active = append(active, s)
+		case "sluice_job_flag_score":
+			scores = append(scores, s)
+		}
+	}
+	assert.ElementsMatch(t, []series{
+		{"sluice_job_flag_active", map[string]string{"job_id": "81234", "reason": "critical:creates", "pattern": "", "severity": "warning",
+			"summary": "creates 2.5k/s per node > critical cut 1k/s", "user": "dorvane", "name": "quill-index"}, 1},
+		{"sluice_job_flag_active", map[string]string{"job_id": "81234", "reason": "pattern:metadata_storm", "pattern": "metadata_storm", "severity": "critical",
+			"summary": "Metadata storm (score 0.91) on 64 nodes", "user": "dorvane", "name": "quill-index"}, 1},
+	}, active, "severity comes from the flag, not its level; silenced flags are left out")
+	assert.ElementsMatch(t, []series{
+		{"sluice_job_flag_score", map[string]string{"job_id": "81234", "reason": "critical:creates"}, 1},
+		{"sluice_job_flag_score", map[string]string{"job_id": "81234", "reason": "pattern:metadata_storm"}, 0.91},
+	}, scores)
+	assert.NotContains(t, jobIDs(all), "81235", "a normal job whose only flag is silenced gets no series")
+}
+
+func TestBadBytesInLabelsDoNotPanic(t *testing.T) {
 	s := fixed()
-	count := func(s export.Snapshot) (jobs map[string]bool, capped float64) {
-		reg := prometheus.NewRegistry()
-		reg.MustRegister(export.NewCollector(func() export.Snapshot { return s }))
-		fams, err := reg.Gather()
-		require.NoError(t, err)
-		jobs = map[string]bool{}
-		for _, f := range fams {
+	s.Jobs[3].Name = "quill-\xffindex" // storm
+	s.Jobs[3].ActiveFlags[0].Summary = "creates \xfe"
+	s.Agents[0].Node = "bw\xff01"
+	reg := prometheus.NewPedanticRegistry()
+	require.NoError(t, reg.Register(export.NewCollector(func() export.Snapshot { return s })))
+	fams, err := reg.Gather()
+	require.Error(t, err, "the bad node name is reported")
+	var flags []string
+	for _, f := range fams {
+		if f.GetName() == "sluice_job_flag_active" {
 			for _, m := range f.GetMetric() {
 				for _, l := range m.GetLabel() {
-					if l.GetName() == "job" {
-						jobs[l.GetValue()] = true
+					if l.GetName() == "name" || l.GetName() == "summary" {
+						flags = append(flags, l.GetValue())
 					}
-				}
-				if f.GetName() == "sluice_job_series_capped" {
-					capped = m.GetGauge().GetValue()
 				}
 			}
 		}
-		return jobs, capped
+		if f.GetName() == "sluice_nodes_known" {
+			assert.Len(t, f.GetMetric(), 1, "the rest of the scrape goes on")
+		}
 	}
-	jobs, capped := count(s)
-	assert.Equal(t, map[string]bool{"81234": true, "81230": true}, jobs, "the idle job gets no series")
-	assert.Zero(t, capped)
+	assert.ElementsMatch(t, []string{"quill-\uFFFDindex", "creates \uFFFD", "quill-\uFFFDindex", "Metadata storm (score 0.91) on 64 nodes"}, flags)
+}
 
-	s.MaxJobSeries = 1
-	jobs, capped = count(s)
+func TestPatternScoresFromHalfUp(t *testing.T) {
+	got := map[string]float64{}
+	for _, s := range gather(t, fixed()) {
+		if s.name == "sluice_job_pattern_score" {
+			got[s.labels["job_id"]+"/"+s.labels["pattern"]] = s.value
+		}
+	}
+	assert.Equal(t, map[string]float64{
+		"81234/metadata_storm": 0.91, "81234/stat_polling": 0.5, // 0.12 for small_write_flood is left out
+		"81230/heavy_streaming": 0.77, // a silence covers the flag, not the score
+	}, got)
+}
+
+func TestBrokerConnected(t *testing.T) {
+	s := fixed()
+	assert.Equal(t, 1.0, value(t, (gather(t, s)), "sluice_broker_connected"))
+	s.BrokerConnected = false
+	assert.Equal(t, 0.0, value(t, (gather(t, s)), "sluice_broker_connected"))
+}
+
+func TestPerJobSeriesOnlyForNotableJobsAndCapped(t *testing.T) {
+	s := fixed()
+	count := func(s export.Snapshot) (jobs map[string]bool, dropped float64) {
+		all := (gather(t, s))
+		return jobIDs(all), value(t, all, "sluice_job_series_dropped")
+	}
+	jobs, dropped := count(s)
+	assert.Equal(t, map[string]bool{"81234": true, "81230": true}, jobs, "the idle job and the silenced normal one get no series")
+	assert.Zero(t, dropped)
+
+	big := s
+	big.MaxJobSeries = 1 << 30
+	s.MaxJobSeries = seriesByJob(gather(t, big))["81234"]
+	jobs, dropped = count(s)
 	assert.Equal(t, map[string]bool{"81234": true}, jobs, "the flagged job goes first")
-	assert.Equal(t, 1.0, capped)
+	assert.Equal(t, 1.0, dropped)
+	s.MaxJobSeries--
+	jobs, dropped = count(s)
+	assert.Empty(t, jobs, "one series short: the flagged job does not fit, and nothing after it is taken")
+	assert.Equal(t, 2.0, dropped)
 
-	// Many notable jobs: the series count stays within the cap.
-	s = fixed()
-	s.MaxJobSeries = 100
-	for i := range 5000 {
-		j := model.Summary{JobMeta: model.JobMeta{ID: fmt.Sprint(90000 + i)}, State: "running"}
-		j.LiveLevels[metric.Opens] = level.Elevated
-		s.Jobs = append(s.Jobs, j)
+	s.MaxJobSeries = 0
+	jobs, dropped = count(s)
+	assert.Empty(t, jobs, "a zero cap gives no per-job series")
+	assert.Equal(t, 2.0, dropped)
+}
+
+func TestJobsLeaveWhenNormalOrEnded(t *testing.T) {
+	s := fixed()
+	s.Jobs = s.Jobs[:2] // idle 81231 and elevated 81230 (its flag silenced)
+	present := func() bool { return jobIDs((gather(t, s)))["81230"] }
+	require.True(t, present())
+
+	s.Jobs[1].LiveLevels = level.Levels{}
+	assert.False(t, present(), "back to normal: gone at the next scrape")
+
+	s.Jobs[1].LiveLevels[metric.WriteBytes] = level.Critical
+	require.True(t, present())
+	s.Jobs[1].State = "ended"
+	assert.False(t, present(), "an ended entry is skipped")
+	s.Jobs = s.Jobs[:1]
+	assert.False(t, present(), "a job that left the snapshot is gone")
+}
+
+func TestCapOrder(t *testing.T) {
+	// Most severe first: flag severity critical > warning > info > highest
+	// level critical > elevated; equal ranks by job id. The snapshot lists
+	// them scrambled; a flag's own level and a silenced flag do not count.
+	job := func(id string, l level.Level, severities ...string) model.Summary {
+		j := model.Summary{JobMeta: model.JobMeta{ID: id}, State: "running"}
+		j.LiveLevels[metric.Opens] = l
+		for _, sev := range severities {
+			j.ActiveFlags = append(j.ActiveFlags, model.Flag{Reason: "pattern:" + sev, Pattern: sev, Severity: sev, Level: level.Critical})
+		}
+		return j
 	}
-	jobs, capped = count(s)
-	assert.Len(t, jobs, 100)
-	assert.Equal(t, float64(5002-100), capped)
+	silenced := job("a-silenced", level.Elevated, "critical")
+	silenced.ActiveFlags[0].Silenced = true
+	cleared := job("a-cleared", level.Elevated, "critical")
+	cleared.ActiveFlags[0].Cleared = t0
+	want := []string{"j-crit-flag", "k-crit-flag", "h-warn-flag", "b-info-flag", "z-unknown-flag", "a-crit-level", "a-cleared", "a-elevated", "a-silenced", "c-elevated"}
+	jobs := []model.Summary{
+		job("c-elevated", level.Elevated), job("b-info-flag", level.Normal, "info"), job("a-crit-level", level.Critical),
+		job("k-crit-flag", level.Normal, "info", "critical"), silenced, job("h-warn-flag", level.Critical, "warning"),
+		job("a-elevated", level.Elevated), job("z-unknown-flag", level.Normal, "bogus"), cleared, job("j-crit-flag", level.Elevated, "critical"),
+		job("a-normal", level.Normal),
+	}
+	per := seriesByJob(gather(t, export.Snapshot{Jobs: jobs, MaxJobSeries: 1 << 30}))
+	for n := 0; n <= len(want); n++ {
+		budget := 0
+		for _, id := range want[:n] {
+			budget += per[id]
+		}
+		s := export.Snapshot{Jobs: jobs, MaxJobSeries: budget}
+		all := (gather(t, s))
+		wantIDs := map[string]bool{}
+		for _, id := range want[:n] {
+			wantIDs[id] = true
+		}
+		assert.Equal(t, wantIDs, jobIDs(all), "cap %d", n)
+		assert.Equal(t, float64(len(want)-n), value(t, all, "sluice_job_series_dropped"), "cap %d", n)
+	}
+}
+
+// manyJobs returns n running jobs in scrambled order: per 100, 60 normal
+// (every tenth with a silenced flag), 37 elevated, 1 critical in level and
+// 2 flagged (a pattern flag of severity critical, warning and info in
+// turn, beside a critical-I/O flag). Each notable job has all
+// twelve rates and two pattern scores, one of them under the floor.
+func manyJobs(n int) []model.Summary {
+	jobs := make([]model.Summary, n)
+	severities := []string{"critical", "warning", "info"}
+	for i := range jobs {
+		j := &jobs[i]
+		j.JobMeta = model.JobMeta{ID: fmt.Sprintf("%06d", 100000+i), User: fmt.Sprintf("user%03d", i%500), Name: fmt.Sprintf("app-%d", i%97)}
+		j.State, j.NodesSeen = "running", 1+i%64
+		for _, id := range metric.All() {
+			j.Live[id] = float64(i%1000) * float64(id+1)
+		}
+		switch k := i % 100; {
+		case k < 60:
+			if k%10 == 0 {
+				j.ActiveFlags = []model.Flag{{Reason: "pattern:stat_polling", Pattern: "stat_polling", Severity: "warning", Score: 0.8, Silenced: true}}
+			}
+			continue
+		case k < 97:
+			j.LiveLevels[metric.Opens] = level.Elevated
+		case k == 97:
+			j.LiveLevels[metric.Creates] = level.Critical
+		default:
+			sev := severities[(2*(i/100)+k-98)%3]
+			j.LiveLevels[metric.Creates] = level.Critical
+			j.ActiveFlags = []model.Flag{
+				{Reason: "critical:creates", Severity: "warning", Score: 1, Summary: "creates 2.5k/s per node > critical cut 1k/s", Since: t0},
+				{Reason: "pattern:metadata_storm", Pattern: "metadata_storm", Severity: sev, Score: 0.91, Summary: "Metadata storm (score 0.91) on 64 nodes", Since: t0},
+			}
+		}
+		j.PatternScores = map[string]float64{"metadata_storm": 0.5 + float64(i%50)/100, "open_close_churn": 0.2}
+	}
+	rand.New(rand.NewPCG(1, 2)).Shuffle(len(jobs), func(a, b int) { jobs[a], jobs[b] = jobs[b], jobs[a] })
+	return jobs
+}
+
+// seriesByJob counts the per-job series of each job_id.
+func seriesByJob(all []series) map[string]int {
+	out := map[string]int{}
+	for _, m := range all {
+		if id := m.labels["job_id"]; id != "" {
+			out[id]++
+		}
+	}
+	return out
+}
+
+// TestCardinalityBoundedAt5000Of20000Jobs drives 20,000 running jobs
+// through the collector with the cap at 5,000 per-job series.
+func TestCardinalityBoundedAt5000Of20000Jobs(t *testing.T) {
+	const maxSeries = 5000
+	s := fixed()
+	s.Jobs = manyJobs(20000)
+	for i := range s.Jobs {
+		s.Jobs[i].JobMeta.ID = "m" + s.Jobs[i].ID // apart from the fixed scenario's ids
+	}
+	s.Jobs = append(s.Jobs, fixed().Jobs...)
+	uncapped := gather(t, export.Snapshot{Jobs: s.Jobs, MaxJobSeries: 1 << 30})
+	per := seriesByJob(uncapped)
+	s.MaxJobSeries = maxSeries
+
+	all := gather(t, s)
+	got := seriesByJob(all)
+	total := 0
+	for _, n := range got {
+		total += n
+	}
+	assert.LessOrEqual(t, total, maxSeries, "per-job series within the cap")
+	assert.Greater(t, total, maxSeries-40, "the cap is used: the next job would not fit")
+
+	// Rank by hand: exported flag severity, then highest level, then id;
+	// every job outranking a kept one is kept too.
+	rank := func(j model.Summary) int {
+		r := 0
+		for _, f := range j.ActiveFlags {
+			if f.Active() && !f.Silenced {
+				r = max(r, map[string]int{"critical": 6, "warning": 5}[f.Severity], 4)
+			}
+		}
+		return max(r, int(j.LiveLevels.Max())+1)
+	}
+	var order []model.Summary
+	for _, j := range s.Jobs {
+		if rank(j) > 1 {
+			order = append(order, j)
+		}
+	}
+	slices.SortFunc(order, func(a, b model.Summary) int { return cmp.Or(rank(b)-rank(a), strings.Compare(a.ID, b.ID)) })
+	kept := 0
+	for kept < len(order) && got[order[kept].ID] > 0 {
+		assert.Equal(t, per[order[kept].ID], got[order[kept].ID], "a kept job has all its series")
+		kept++
+	}
+	assert.Len(t, got, kept, "the kept jobs are exactly a prefix of the ranking")
+	assert.Equal(t, float64(len(order)-kept), value(t, all, "sluice_job_series_dropped"))
+	t.Logf("20,000 jobs, %d qualifying: %d kept with %d per-job series, %d dropped; %d series in all", len(order), kept, total, len(order)-kept, len(all))
+}
+
+// BenchmarkScrape5000Jobs measures one full scrape of /metrics through
+// promhttp of 20,000 running jobs (8,000 of them notable) with the cap at
+// 5,000 per-job series, beside the fixed scenario. Text is the plain
+// exposition; gzip is what Prometheus asks for.
+func BenchmarkScrape5000Jobs(b *testing.B) {
+	s := fixed()
+	s.MaxJobSeries = 5000
+	s.Jobs = append(manyJobs(20000), s.Jobs...)
+	reg := prometheus.NewRegistry()
+	reg.MustRegister(export.NewCollector(func() export.Snapshot { return s }))
+	h := promhttp.HandlerFor(reg, promhttp.HandlerOpts{ErrorHandling: promhttp.HTTPErrorOnError})
+	for _, enc := range []string{"text", "gzip"} {
+		b.Run(enc, func(b *testing.B) {
+			req := httptest.NewRequest("GET", "/metrics", nil)
+			if enc == "gzip" {
+				req.Header.Set("Accept-Encoding", "gzip")
+			}
+			var size int
+			b.ReportAllocs()
+			for b.Loop() {
+				rec := httptest.NewRecorder()
+				h.ServeHTTP(rec, req)
+				if rec.Code != 200 {
+					b.Fatalf("status %d: %s", rec.Code, rec.Body)
+				}
+				size = rec.Body.Len()
+			}
+			b.ReportMetric(float64(size), "body-bytes")
+			b.ReportMetric(float64(len(gather(b, s))), "series")
+		})
+	}
 }
