@@ -43,6 +43,7 @@ commands:
   explain JOB
          a job's recent windows beside each pattern it matches
   demo   run aggregator, agents and simulated nodes on this machine
+  eval   measure the pattern library on labelled simulated jobs
 
 Run "aggregator <command> -h" for the flags of a command.
 `
@@ -70,6 +71,8 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) error {
 		return demo(ctx, args[1:], stdout, stderr)
 	case "baseline":
 		return baselineCmd(ctx, args[1:], stdout, stderr)
+	case "eval":
+		return evalCmd(args[1:], stdout)
 	case "patterns":
 		return patternsCmd(ctx, args[1:], stdout, stderr)
 	case "flags":
@@ -113,7 +116,7 @@ func (f *serveFlags) register(fs *flag.FlagSet) {
 	fs.DurationVar(&f.tick, "eval.every", 5*time.Second, "how often live windows are evaluated and windows closed")
 	fs.IntVar(&f.raiseAfter, "flag.raise-after", 2, "consecutive live evaluations above a critical cut that raise a flag")
 	fs.IntVar(&f.clearAfter, "flag.clear-after", 3, "consecutive live evaluations below the cut that clear it")
-	fs.IntVar(&f.maxJobSeries, "metrics.max-job-series", 2000, "most jobs given per-job series on /metrics (most severe first)")
+	fs.IntVar(&f.maxJobSeries, "metrics.max-job-series", 5000, "most per-job series on /metrics; jobs are taken most severe first while their series fit")
 	fs.IntVar(&f.baseDays, "baseline.days", 30, "days of job-windows the cut points are learned from")
 	fs.Uint64Var(&f.baseMin, "baseline.min-windows", 1000, "non-idle windows a metric needs before its learned cut points replace the seed ones")
 	fs.Float64Var(&f.baseElevated, "baseline.elevated-quantile", 0.99, "quantile of the centre's windows above which a window is elevated")
