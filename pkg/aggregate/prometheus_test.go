@@ -52,6 +52,7 @@ func TestAlertsFireInPrometheus(t *testing.T) {
 	}
 	require.Eventually(t, func() bool { r.advance(1); return firing("SluicePatternCritical") && firing("SluiceCriticalIO") },
 		90*time.Second, time.Second, "the storm's alerts did not fire in Prometheus")
+	checkMetrics(t, "http://"+r.svc.HTTPAddr()+"/metrics")
 
 	for _, node := range []string{"bw001", "bw002"} {
 		require.NoError(t, nodeagent.JobEnd(context.Background(), nodeagent.HookConfig{
@@ -67,6 +68,19 @@ func TestAlertsFireInPrometheus(t *testing.T) {
 		}
 		return true
 	}, 90*time.Second, time.Second, "the storm's alerts did not resolve after the job ended")
+}
+
+// checkMetrics runs promtool's metric lint on a live scrape.
+func checkMetrics(t *testing.T, url string) {
+	promtool, err := exec.LookPath("promtool")
+	require.NoError(t, err, "install the Debian package prometheus")
+	resp, err := http.Get(url)
+	require.NoError(t, err)
+	defer resp.Body.Close()
+	cmd := exec.Command(promtool, "check", "metrics")
+	cmd.Stdin = resp.Body
+	out, err := cmd.CombinedOutput()
+	require.NoError(t, err, "promtool check metrics on a live scrape:\n%s", out)
 }
 
 type alert struct {
