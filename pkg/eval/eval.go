@@ -1,0 +1,535 @@
+// Package eval measures the quality of a pattern library on labelled
+// scenarios (sim.Labelled): how many injected problems each pattern finds
+// (recall), how many of its flags are right (precision), how many benign
+// jobs it flags, and how long after the onset it raises its flag.
+//
+// # Basics
+//
+// [Run] first learns the cut points as the aggregator does: it generates
+// the centre's ordinary jobs (sim.Ordinary), adds each closed window's
+// per-node rate per metric to a baseline.Baseline and builds the tracker
+// coding from its cuts exactly as pkg/aggregate's learner does (learned
+// metrics take the learned cuts and grade cuts, the others the seed
+// coding). It then generates the labelled jobs, scaled by those cuts, and
+// replays them interleaved, as agents would send them: one wire.Sample per
+// node per minute, start and end events, Tick after every minute. Every
+// pattern flag raised is recorded against the job's label.
+//
+// Per pattern P (Row): recall is the share of jobs labelled P that got a
+// P flag raised at or after the onset; precision the share of jobs flagged
+// with P that are labelled P; false flags are P flags on benign jobs per
+// 1,000 benign jobs, where a benign job is one labelled "" or, for every
+// pattern but heavy_streaming, heavy_streaming (healthy streaming is a
+// positive for heavy_streaming only); the delay is the first such flag's
+// Raised time minus the onset, in windows. The overall figure is the share
+// of benign jobs (label "" or heavy_streaming) flagged by any pattern but
+// heavy_streaming.
+//
+// # Caveats
+//
+// The baseline is learned from ordinary jobs only, a centre whose windows
+// hold no problems; at a real centre the few problem windows push the top
+// cuts up a little. The scenarios are a model (see sim/labelled.go), so
+// the figures say how the library does on that model, not at a site.
+package eval
+
+import (
+	"cmp"
+	"fmt"
+	"math"
+	"slices"
+	"time"
+
+	"sluice/pkg/baseline"
+	"sluice/pkg/level"
+	"sluice/pkg/matcher"
+	"sluice/pkg/metric"
+	"sluice/pkg/pattern"
+	"sluice/pkg/sim"
+	"sluice/pkg/tracker"
+	"sluice/pkg/wire"
+)
+
+// The targets every built-in pattern is held to.
+const (
+	RecallTarget        = 0.95
+	PrecisionTarget     = 0.95
+	MedianDelayTarget   = 2.0  // windows
+	BenignFlaggedTarget = 0.01 // share of benign jobs flagged by a problem pattern
+)
+
+// Options configures Run. The zero value of each field means its default.
+type Options struct {
+	// Jobs is the number of labelled jobs; zero means 1000.
+	Jobs int
+	// Seed makes the scenarios; zero means 1.
+	Seed uint64
+	// BaselineJobs is the number of ordinary jobs the cut points are
+	// learned from; zero means 6000 (some 130,000 job-windows, a month at
+	// a small centre).
+	BaselineJobs int
+	// Patterns is the library; nil means the built-ins.
+	Patterns []*pattern.Pattern
+	// Window, Live and Step are the window, live window and sample
+	// interval; zero means 10 minutes, 1 minute and 1 minute.
+	Window, Live, Step time.Duration
+	// Start is when the first job starts; zero means 2026-03-02 00:00 UTC.
+	Start time.Time
+}
+
+func (o Options) withDefaults() Options {
+	o.Jobs = cmp.Or(o.Jobs, 1000)
+	o.Seed = cmp.Or(o.Seed, 1)
+	o.BaselineJobs = cmp.Or(o.BaselineJobs, 6000)
+	o.Window = cmp.Or(o.Window, 10*time.Minute)
+	o.Live = cmp.Or(o.Live, time.Minute)
+	o.Step = cmp.Or(o.Step, time.Minute)
+	if o.Start.IsZero() {
+		o.Start = time.Date(2026, 3, 2, 0, 0, 0, 0, time.UTC)
+	}
+	return o
+}
+
+// Row is one pattern's figures.
+type Row struct {
+	Pattern string
+	// Builtin is set when the pattern is a built-in (its Source starts
+	// with "builtin/"): the targets apply to it.
+	Builtin bool
+	// Positives are the jobs labelled with the pattern; Found those of
+	// them flagged with it at or after the onset.
+	Positives, Found int
+	// Flagged are the jobs flagged with the pattern; Correct those of
+	// them labelled with it.
+	Flagged, Correct int
+	// Benign is the number of benign jobs for this pattern, FalseFlags
+	// those of them it flagged.
+	Benign, FalseFlags int
+	// Delays are the detection delays in windows, one per found job,
+	// ascending.
+	Delays []float64
+	// Others counts the pattern's flags on jobs labelled with another
+	// problem, by label.
+	Others map[string]int
+}
+
+// Recall is Found/Positives, NaN without positives.
+func (r Row) Recall() float64 { return ratio(r.Found, r.Positives) }
+
+// Precision is Correct/Flagged, NaN when nothing was flagged.
+func (r Row) Precision() float64 { return ratio(r.Correct, r.Flagged) }
+
+// FalsePer1000 is the false flags per 1,000 benign jobs.
+func (r Row) FalsePer1000() float64 { return 1000 * ratio(r.FalseFlags, r.Benign) }
+
+// MedianDelay and P90Delay are quantiles of Delays (nearest rank), NaN
+// when nothing was found.
+func (r Row) MedianDelay() float64 { return quantile(r.Delays, 0.5) }
+
+// P90Delay is the 90th percentile of Delays.
+func (r Row) P90Delay() float64 { return quantile(r.Delays, 0.9) }
+
+// Misses lists the targets the row misses; a pattern without labelled
+// positives is held only to precision, since every flag it raises lands
+// on a job injected with something else or nothing.
+func (r Row) Misses() []string {
+	var m []string
+	if r.Positives > 0 {
+		if !(r.Recall() >= RecallTarget) {
+			m = append(m, fmt.Sprintf("recall %.3f < %.2f", r.Recall(), RecallTarget))
+		}
+		if !(r.MedianDelay() <= MedianDelayTarget) {
+			m = append(m, fmt.Sprintf("median delay %.2f > %.1f windows", r.MedianDelay(), MedianDelayTarget))
+		}
+	}
+	if r.Flagged > 0 && !(r.Precision() >= PrecisionTarget) {
+		m = append(m, fmt.Sprintf("precision %.3f < %.2f", r.Precision(), PrecisionTarget))
+	}
+	if r.Positives > 0 && r.Flagged == 0 {
+		m = append(m, "never flagged")
+	}
+	return m
+}
+
+// Result is one evaluation.
+type Result struct {
+	Options Options
+	// Jobs counts the labelled jobs by class.
+	Jobs map[string]int
+	// Rows holds one row per pattern, in library order.
+	Rows []Row
+	// Benign is the number of benign jobs (label "" or heavy_streaming);
+	// BenignFlagged those flagged by any pattern but heavy_streaming.
+	Benign, BenignFlagged int
+	// FlaggedByClass counts the benign jobs flagged, by class.
+	FlaggedByClass map[string]int
+	// Coding is the coding the jobs were evaluated against; Learned says
+	// which metrics' cuts were learned (the others are seeds).
+	Coding  tracker.Coding
+	Learned [metric.Count]bool
+	// BaselineWindows is the number of job-windows the baseline holds.
+	BaselineWindows int
+	// Samples is the number of samples replayed.
+	Samples int
+	// Outcomes lists every job whose flags disagree with its label: a
+	// missed positive, a flag on another job, or a flag before the
+	// onset; in job order.
+	Outcomes []Outcome
+}
+
+// Outcome is one job's label and flags.
+type Outcome struct {
+	Job                   string
+	Class, Label, Variant string
+	Nodes, Windows        int
+	// Onset and Until bound the injected behaviour (offsets from the
+	// job's start); Intensity is its strength (see sim.LabelledJob).
+	Onset, Until time.Duration
+	Intensity    float64
+	// Flags holds each pattern that flagged the job and when its first
+	// flag was raised, as an offset from the job's start.
+	Flags map[string]time.Duration
+}
+
+// BenignFlaggedShare is BenignFlagged/Benign.
+func (r *Result) BenignFlaggedShare() float64 { return ratio(r.BenignFlagged, r.Benign) }
+
+// Row returns the named pattern's row.
+func (r *Result) Row(name string) (Row, bool) {
+	for _, row := range r.Rows {
+		if row.Pattern == name {
+			return row, true
+		}
+	}
+	return Row{}, false
+}
+
+// Run evaluates the library on the labelled scenarios.
+func Run(o Options) (*Result, error) {
+	o = o.withDefaults()
+	ps := o.Patterns
+	if ps == nil {
+		var err error
+		if ps, err = pattern.Builtin(); err != nil {
+			return nil, err
+		}
+	}
+	lib, err := matcher.Compile(ps)
+	if err != nil {
+		return nil, fmt.Errorf("eval: %w", err)
+	}
+	res := &Result{Options: o, Jobs: map[string]int{}, FlaggedByClass: map[string]int{}}
+	coding, learned, windows, err := learn(o)
+	if err != nil {
+		return nil, err
+	}
+	res.Coding, res.Learned, res.BaselineWindows = coding, learned, windows
+
+	jobs := sim.Labelled(sim.LabelledOptions{
+		Jobs: o.Jobs, Seed: o.Seed, Step: o.Step, Window: o.Window,
+		Reference: sim.Reference{Cuts: coding.Levels, Grades: coding.Grades},
+	})
+	tr, err := tracker.New(tracker.Options{Window: o.Window, Live: o.Live, Patterns: lib, KeepEnded: o.Window})
+	if err != nil {
+		return nil, fmt.Errorf("eval: %w", err)
+	}
+	tr.SetCoding(coding)
+	starts := jobStarts(jobs, o)
+	flags, samples, err := replay(tr, jobs, starts, o)
+	if err != nil {
+		return nil, err
+	}
+	res.Samples = samples
+	score(res, ps, jobs, starts, flags, o)
+	return res, nil
+}
+
+// learn builds the coding from the ordinary jobs' windows, as
+// pkg/aggregate's learner does.
+func learn(o Options) (tracker.Coding, [metric.Count]bool, int, error) {
+	b, err := baseline.New(nil)
+	if err != nil {
+		return tracker.Coding{}, [metric.Count]bool{}, 0, fmt.Errorf("eval: %w", err)
+	}
+	day := baseline.DayOf(o.Start)
+	windows := 0
+	for _, j := range sim.Ordinary(sim.LabelledOptions{Jobs: o.BaselineJobs, Seed: o.Seed ^ 0x5eed, Step: o.Step, Window: o.Window}) {
+		for _, rates := range windowRates(&j) {
+			for i, r := range rates {
+				_ = b.Add(day, metric.ID(i), r) // a refusal is counted by the baseline
+			}
+			windows++
+		}
+	}
+	th := b.Cuts(o.Start)
+	seed := level.DefaultCuts()
+	var c tracker.Coding
+	var src baseline.Sources
+	c.Levels, src = th.Apply(seed)
+	seedCoding := tracker.SeedCoding(seed)
+	var learned [metric.Count]bool
+	for i, m := range th.Metrics {
+		c.Grades[i] = seedCoding.Grades[i]
+		if src[i] == baseline.SourceLearned {
+			c.Grades[i] = m.Grade
+			learned[i] = true
+		}
+	}
+	return c, learned, windows, nil
+}
+
+// windowRates returns a job's window values as the tracker computes them:
+// per window, the mean over nodes of each node's rate (sum of its deltas
+// over the seconds its samples cover).
+func windowRates(j *sim.LabelledJob) []metric.Rates {
+	out := make([]metric.Rates, 0, j.Windows())
+	perWindow := int(j.Window() / j.Step())
+	sum := make([]metric.Values, j.Nodes)
+	n := 0
+	flush := func() {
+		if n == 0 {
+			return
+		}
+		secs := float64(n) * j.Step().Seconds()
+		var r metric.Rates
+		for _, v := range sum {
+			for i, x := range v {
+				r[i] += float64(x) / secs
+			}
+		}
+		for i := range r {
+			r[i] /= float64(len(sum))
+		}
+		out = append(out, r)
+		clear(sum)
+		n = 0
+	}
+	s := j.Stream()
+	for {
+		vals, ok := s.Next()
+		if !ok {
+			break
+		}
+		for k := range vals {
+			sum[k].Add(vals[k])
+		}
+		if n++; n == perWindow {
+			flush()
+		}
+	}
+	flush()
+	return out
+}
+
+// flagRecord is one pattern flag raised on a job.
+type flagRecord struct {
+	job, pattern string
+	raised       time.Time
+}
+
+// replay feeds the jobs through the tracker, interleaved: job k starts a
+// few minutes after job k-1, so that dozens run at once. It returns every
+// pattern flag raised and the number of samples sent.
+func replay(tr *tracker.Tracker, jobs []sim.LabelledJob, starts []time.Time, o Options) ([]flagRecord, int, error) {
+	type running struct {
+		j      *sim.LabelledJob
+		s      *sim.Stream
+		start  time.Time
+		step   int
+		seq    []uint64
+		idList []string
+	}
+	var (
+		flags   []flagRecord
+		active  []*running
+		next    int
+		samples int
+		now     = o.Start
+		sample  wire.Sample
+	)
+	collect := func() {
+		for _, e := range tr.Drain() {
+			if e.Kind == tracker.FlagRaised && e.Flag != nil && e.Flag.Pattern != "" {
+				flags = append(flags, flagRecord{job: e.Job, pattern: e.Flag.Pattern, raised: e.Flag.Raised})
+			}
+		}
+	}
+	for next < len(jobs) || len(active) > 0 {
+		for next < len(jobs) && !starts[next].After(now) {
+			j := &jobs[next]
+			r := &running{j: j, s: j.Stream(), start: starts[next], seq: make([]uint64, j.Nodes), idList: []string{j.ID}}
+			err := tr.JobEvent(&wire.JobEvent{Type: wire.JobStart, Job: j.ID, Node: j.NodeNames[0], Time: r.start,
+				User: j.User, Account: j.Account, Name: j.Name, Nodes: j.NodeNames})
+			if err != nil {
+				return nil, 0, fmt.Errorf("eval: job %s start: %w", j.ID, err)
+			}
+			active = append(active, r)
+			next++
+		}
+		end := now.Add(o.Step)
+		keep := active[:0]
+		for _, r := range active {
+			vals, ok := r.s.Next()
+			if !ok {
+				continue
+			}
+			for k, v := range vals {
+				r.seq[k]++
+				sample = wire.Sample{Node: r.j.NodeNames[k], Seq: r.seq[k], Start: now, End: end, Jobs: r.idList, Values: v}
+				if err := tr.Sample(&sample); err != nil {
+					return nil, 0, fmt.Errorf("eval: job %s: %w", r.j.ID, err)
+				}
+				samples++
+			}
+			r.step++
+			if r.step == r.j.Steps() {
+				err := tr.JobEvent(&wire.JobEvent{Type: wire.JobEnd, Job: r.j.ID, Node: r.j.NodeNames[0], Time: end})
+				if err != nil {
+					return nil, 0, fmt.Errorf("eval: job %s end: %w", r.j.ID, err)
+				}
+				continue
+			}
+			keep = append(keep, r)
+		}
+		active = keep
+		tr.Tick()
+		collect()
+		now = end
+	}
+	// A node outside every job moves the watermark on so that the last
+	// jobs' windows close and the jobs end.
+	for i := range 3 {
+		sample = wire.Sample{Node: "bw-idle", Seq: uint64(i + 1), Start: now, End: now.Add(o.Step)}
+		if err := tr.Sample(&sample); err != nil {
+			return nil, 0, fmt.Errorf("eval: %w", err)
+		}
+		now = now.Add(o.Step)
+		tr.Tick()
+		collect()
+	}
+	return flags, samples, nil
+}
+
+// score turns the flags into the rows.
+func score(res *Result, ps []*pattern.Pattern, jobs []sim.LabelledJob, starts []time.Time, flags []flagRecord, o Options) {
+	byID := make(map[string]int, len(jobs))
+	for i := range jobs {
+		byID[jobs[i].ID] = i
+		res.Jobs[jobs[i].Class]++
+	}
+	firstAny := map[int]map[string]time.Time{}
+	// first[p][job]: the first flag of p on job at or after the onset;
+	// any[p][job]: flagged at all.
+	first := map[string]map[int]time.Time{}
+	anyFlag := map[string]map[int]bool{}
+	for _, f := range flags {
+		i, ok := byID[f.job]
+		if !ok {
+			continue
+		}
+		if anyFlag[f.pattern] == nil {
+			anyFlag[f.pattern], first[f.pattern] = map[int]bool{}, map[int]time.Time{}
+		}
+		anyFlag[f.pattern][i] = true
+		if firstAny[i] == nil {
+			firstAny[i] = map[string]time.Time{}
+		}
+		if t, ok := firstAny[i][f.pattern]; !ok || f.raised.Before(t) {
+			firstAny[i][f.pattern] = f.raised
+		}
+		onset := starts[i].Add(jobs[i].Onset)
+		if f.raised.Before(onset) {
+			continue
+		}
+		if t, ok := first[f.pattern][i]; !ok || f.raised.Before(t) {
+			first[f.pattern][i] = f.raised
+		}
+	}
+	for _, p := range ps {
+		row := Row{Pattern: p.Name, Builtin: len(p.Source) >= 8 && p.Source[:8] == "builtin/", Others: map[string]int{}}
+		for i := range jobs {
+			j := &jobs[i]
+			flagged := anyFlag[p.Name][i]
+			benign := j.Label == "" || (j.Label == sim.LabelHeavyStreaming && p.Name != sim.LabelHeavyStreaming)
+			switch {
+			case j.Label == p.Name:
+				row.Positives++
+				if t, ok := first[p.Name][i]; ok {
+					row.Found++
+					row.Delays = append(row.Delays, t.Sub(starts[i].Add(j.Onset)).Seconds()/o.Window.Seconds())
+				}
+			case benign:
+				row.Benign++
+				if flagged {
+					row.FalseFlags++
+				}
+			case flagged:
+				row.Others[j.Label]++
+			}
+			if flagged {
+				row.Flagged++
+				if j.Label == p.Name {
+					row.Correct++
+				}
+			}
+		}
+		slices.Sort(row.Delays)
+		res.Rows = append(res.Rows, row)
+	}
+	for i := range jobs {
+		j := &jobs[i]
+		fl := firstAny[i]
+		_, found := first[j.Label][i]
+		odd := j.Label != "" && !found
+		for p, t := range fl {
+			odd = odd || p != j.Label || t.Before(starts[i].Add(j.Onset))
+		}
+		if odd {
+			out := Outcome{Job: j.ID, Class: j.Class, Label: j.Label, Variant: j.Variant, Nodes: j.Nodes, Windows: j.Windows(),
+				Onset: j.Onset, Until: j.Until, Intensity: j.Intensity, Flags: map[string]time.Duration{}}
+			for p, t := range fl {
+				out.Flags[p] = t.Sub(starts[i])
+			}
+			res.Outcomes = append(res.Outcomes, out)
+		}
+		if j.Label != "" && j.Label != sim.LabelHeavyStreaming {
+			continue
+		}
+		res.Benign++
+		for p, m := range anyFlag {
+			if p != sim.LabelHeavyStreaming && m[i] {
+				res.BenignFlagged++
+				res.FlaggedByClass[j.Class]++
+				break
+			}
+		}
+	}
+}
+
+// jobStarts spaces the jobs' starts 1 to 11 minutes apart (about one job
+// every 6 minutes: some 30 to 40 run at once).
+func jobStarts(jobs []sim.LabelledJob, o Options) []time.Time {
+	starts := make([]time.Time, len(jobs))
+	t := o.Start
+	for i := range jobs {
+		starts[i] = t
+		t = t.Add(time.Duration(1+(i*7919)%11) * o.Step)
+	}
+	return starts
+}
+
+func ratio(a, b int) float64 {
+	if b == 0 {
+		return math.NaN()
+	}
+	return float64(a) / float64(b)
+}
+
+// quantile returns the nearest-rank q-quantile of sorted xs, NaN if empty.
+func quantile(xs []float64, q float64) float64 {
+	if len(xs) == 0 {
+		return math.NaN()
+	}
+	k := int(math.Ceil(q*float64(len(xs)))) - 1
+	return xs[min(max(k, 0), len(xs)-1)]
+}

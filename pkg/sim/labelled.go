@@ -1,0 +1,802 @@
+package sim
+
+// Labelled scenarios: a deterministic population of jobs at the invented
+// Brackwater Research Computing Centre, each labelled with the problem
+// pattern injected into it (or none), for measuring how well the pattern
+// library tells problems from ordinary work. Package eval runs them through
+// the tracker; this file only makes the numbers.
+//
+// The population is drawn from classes. Every job, whatever its class,
+// starts from an ordinary job's background I/O (see drawBase); a class
+// then overlays or replaces part of it for a span of the job's life:
+//
+//   - ordinary (label ""): the centre's everyday mix, every width, with
+//     log-normal rates per metric, correlated through a job-wide activity
+//     factor, ops consistent with each job's transfer sizes, window-to-
+//     window, node-to-node and minute-to-minute variation, and periodic
+//     checkpoints. The baseline the cut points are learned from is made of
+//     these jobs only (Ordinary).
+//   - burst (label ""): an ordinary job with one short burst (2 to 9
+//     minutes) of file creates (unpacking an input archive: creates,
+//     opens, closes, small writes, setattrs) or of syncs (a checkpoint
+//     flushing each file), at 1.5 to 8 times the critical cut; half of
+//     them at job start (staging), half at a random minute later on.
+//   - noisy_start (label ""): an ordinary job whose first 3 to 15 minutes
+//     are noisy: every rank imports its libraries and reads its input, so
+//     stats run at 0.5 to 5 times and opens at 0.3 to 3 times their
+//     critical cuts, with large input reads.
+//   - streaming (label heavy_streaming): healthy heavy streaming, read,
+//     write or both (reads at the rate, writes at 20% to 100% of it) at
+//     1.5 to 8 times the critical byte cut (capped at 6 GB/s per node) in
+//     transfers of 1 to 16 MiB (a third of them exactly 1 MiB, the usual
+//     RPC size) from a random onset; its metadata stays the ordinary
+//     background. It is a positive for
+//     heavy_streaming and a hard negative for every problem pattern.
+//   - one class per problem pattern (label = its name), injected from a
+//     random onset (any minute, not only window starts) for at least an
+//     hour (80 minutes for stat polling) or until the job ends, at a
+//     random intensity of 1.5 to 8 times what the pattern needs:
+//     metadata_storm (a create, unlink or stat storm, with the opens,
+//     stats and small writes each brings), small_write_flood (the job's
+//     writes become 64 B to 16 KiB calls), open_close_churn (an open,
+//     small read, close loop), fsync_storm (a sync after about every
+//     write of 512 B to 32 KiB), imbalanced_io (4 or more nodes; one node
+//     does 87% or more of the job's data bytes, the per-node mean above
+//     the p90 cut; the node capped at 5 GB/s), stat_polling (the job
+//     waits: its other I/O falls to a trickle, at most 50 kB/s of data
+//     per node, and every node stats at 1.5 to 8 times the p90 cut, kept
+//     below the critical one).
+//
+// "What the pattern needs" is read from the cut points in force
+// (Reference), which the caller learns from Ordinary jobs first, as the
+// aggregator learns them from the centre's own windows.
+
+import (
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"slices"
+	"time"
+
+	"sluice/pkg/grade"
+	"sluice/pkg/level"
+	"sluice/pkg/metric"
+)
+
+// The classes of labelled jobs besides the problem patterns, whose class is
+// the pattern's name.
+const (
+	ClassOrdinary   = "ordinary"
+	ClassBurst      = "burst"
+	ClassNoisyStart = "noisy_start"
+	ClassStreaming  = "streaming"
+)
+
+// The labels: the built-in pattern each class injects.
+const (
+	LabelMetadataStorm   = "metadata_storm"
+	LabelSmallWriteFlood = "small_write_flood"
+	LabelOpenCloseChurn  = "open_close_churn"
+	LabelFsyncStorm      = "fsync_storm"
+	LabelImbalancedIO    = "imbalanced_io"
+	LabelStatPolling     = "stat_polling"
+	LabelHeavyStreaming  = "heavy_streaming"
+)
+
+// Reference is what an injection is scaled by: the cut points and grade
+// cuts in force. Grades[m][2] is the p90 cut of metric m.
+type Reference struct {
+	Cuts   level.Cuts
+	Grades [metric.Count]grade.Cuts
+}
+
+// critical returns metric id's critical cut.
+func (r *Reference) critical(id metric.ID) float64 { return r.Cuts[id].Critical }
+
+// p90 returns metric id's p90 grade cut (grade 3 up to it, 4 above).
+func (r *Reference) p90(id metric.ID) float64 { return r.Grades[id][2] }
+
+// LabelledOptions configures Labelled and Ordinary.
+type LabelledOptions struct {
+	// Jobs is the number of jobs; zero means 1000.
+	Jobs int
+	// Seed makes the population; the same seed gives the same jobs.
+	Seed uint64
+	// Step is the sample interval; zero means 1 minute.
+	Step time.Duration
+	// Window is the window length the lengths are counted in; zero means
+	// 10 minutes.
+	Window time.Duration
+	// Reference scales the injections (Labelled only).
+	Reference Reference
+}
+
+func (o LabelledOptions) withDefaults() LabelledOptions {
+	if o.Jobs == 0 {
+		o.Jobs = 1000
+	}
+	if o.Step == 0 {
+		o.Step = time.Minute
+	}
+	if o.Window == 0 {
+		o.Window = 10 * time.Minute
+	}
+	return o
+}
+
+// LabelledJob is one generated job: who and what it is, its label, and
+// everything needed to replay its samples (Stream).
+type LabelledJob struct {
+	ID, User, Account, Name string
+	// Class is the generator class (see the file comment).
+	Class string
+	// Label is the pattern injected, "" for a benign job.
+	Label string
+	// Variant says which form of the class was drawn ("create", "sync",
+	// "read", ...), empty where a class has one form.
+	Variant string
+	// Nodes is the job's width; NodeNames lists them.
+	Nodes     int
+	NodeNames []string
+	// Length is the job's run time, a whole number of steps.
+	Length time.Duration
+	// Onset and Until bound the injected behaviour, as offsets from the
+	// job's start (zero for an ordinary job). OnsetWindow is the window
+	// Onset falls in.
+	Onset, Until time.Duration
+	OnsetWindow  int
+	// Intensity is the injection's strength as a multiple of what its
+	// pattern needs (the critical cut, or the p90 cut for imbalanced_io
+	// and stat_polling); for a burst or a noisy start, of the critical
+	// cut of its main metric.
+	Intensity float64
+
+	step, window time.Duration
+	seed         [2]uint64
+	base         profile
+	inj          injection
+}
+
+// Windows is the number of windows the job spans (the last may be
+// partial).
+func (j *LabelledJob) Windows() int { return int((j.Length + j.window - 1) / j.window) }
+
+// Steps is the number of sample intervals.
+func (j *LabelledJob) Steps() int { return int(j.Length / j.step) }
+
+// Step is the sample interval.
+func (j *LabelledJob) Step() time.Duration { return j.step }
+
+// Window is the window length the job was drawn for.
+func (j *LabelledJob) Window() time.Duration { return j.window }
+
+// Metric groups: metrics that vary together (ops with their bytes).
+const (
+	gRead = iota
+	gWrite
+	gOpen
+	gCreate
+	gStat
+	gMeta
+	gSync
+	gOther
+	groups
+)
+
+// profile is an ordinary job's background per node per second, before the
+// window, node and minute factors.
+type profile struct {
+	rates     metric.Rates
+	winFactor [][groups]float64 // per window
+	nodeFac   [][groups]float64 // per node
+	ckpt      checkpoint
+}
+
+// checkpoint is a periodic burst of large writes.
+type checkpoint struct {
+	every, offset, minutes int // in windows, minutes into the window, minutes long
+	rate, size             float64
+}
+
+// injection is what a class adds or replaces from Onset to Until.
+type injection struct {
+	add     metric.Rates // added per node per second
+	replace metric.Set   // metrics whose background is replaced by add
+	scale   float64      // background scale while active (stat polling); 0 means 1
+	dataCap float64      // with scale: the most data bytes/s left per node
+	// node0 is added to the first node only, replacing its data
+	// background (imbalanced_io); others' data becomes othersShare of it
+	// spread evenly.
+	node0       metric.Rates
+	othersShare float64
+	nodeSigma   float64 // per-node spread of the injection
+}
+
+// classMix is the share of each class, in percent.
+var classMix = []struct {
+	class string
+	pct   int
+}{
+	{ClassOrdinary, 30}, {ClassBurst, 12}, {ClassNoisyStart, 9}, {ClassStreaming, 7},
+	{LabelMetadataStorm, 7}, {LabelSmallWriteFlood, 7}, {LabelOpenCloseChurn, 7},
+	{LabelFsyncStorm, 7}, {LabelImbalancedIO, 7}, {LabelStatPolling, 7},
+}
+
+// Labelled returns o.Jobs jobs drawn from every class in the shares of
+// classMix (rounded so that the counts add up), in a shuffled order.
+func Labelled(o LabelledOptions) []LabelledJob {
+	o = o.withDefaults()
+	rng := rand.New(rand.NewPCG(o.Seed, 0x6c6162656c6c6564)) // "labelled"
+	classes := make([]string, 0, o.Jobs)
+	for i, c := range classMix {
+		n := o.Jobs * c.pct / 100
+		if i == 0 { // ordinary takes the rounding remainder
+			rest := o.Jobs
+			for _, d := range classMix {
+				rest -= o.Jobs * d.pct / 100
+			}
+			n += rest
+		}
+		for range n {
+			classes = append(classes, c.class)
+		}
+	}
+	rng.Shuffle(len(classes), func(a, b int) { classes[a], classes[b] = classes[b], classes[a] })
+	g := newGen(o, rng)
+	out := make([]LabelledJob, len(classes))
+	for i, c := range classes {
+		out[i] = g.job(i, c)
+	}
+	return out
+}
+
+// Ordinary returns o.Jobs ordinary jobs (label ""), the centre's everyday
+// mix the baseline is learned from; the reference is not used.
+func Ordinary(o LabelledOptions) []LabelledJob {
+	o = o.withDefaults()
+	rng := rand.New(rand.NewPCG(o.Seed, 0x6f7264696e617279)) // "ordinary"
+	g := newGen(o, rng)
+	out := make([]LabelledJob, o.Jobs)
+	for i := range out {
+		out[i] = g.job(i, ClassOrdinary)
+	}
+	return out
+}
+
+type gen struct {
+	o        LabelledOptions
+	rng      *rand.Rand
+	nextNode int
+	idBase   int
+}
+
+func newGen(o LabelledOptions, rng *rand.Rand) *gen {
+	return &gen{o: o, rng: rng, idBase: 90000 + int(o.Seed%1000)*1000}
+}
+
+// Invented Brackwater users, accounts and job name parts.
+var (
+	users    = []string{"ambrel", "keswin", "lyset", "dorvane", "halvick", "moraine", "tessaly", "corwen", "ibbot", "pellam", "renfrew", "sabine", "thorley", "varga", "wynmere", "yarrow", "oskell", "bramley"}
+	accounts = []string{"coastal", "geomech", "spectra", "textmine", "hydro", "genomics", "climate", "plasma", "materials", "astro"}
+	nameA    = []string{"tidepool", "granite", "fernwave", "quill", "saltmarsh", "ember", "kestrel", "bracken", "lodestone", "mirefield", "heron", "slate", "cinder", "gorse", "tarn", "weir", "shingle"}
+	nameB    = []string{"assim", "mesh", "post", "index", "sweep", "train", "relax", "ensemble", "reduce", "spin", "fold", "merge", "scan", "stage", "solve"}
+)
+
+// widths are the job widths in nodes and their weights (percent): most
+// jobs are small, a few are wide, as at most centres.
+var widths = []struct{ nodes, pct int }{
+	{1, 30}, {2, 18}, {3, 3}, {4, 16}, {6, 2}, {8, 12}, {12, 1}, {16, 9}, {32, 6}, {64, 3},
+}
+
+func (g *gen) width(min int) int {
+	for {
+		r := g.rng.IntN(100)
+		for _, w := range widths {
+			if r < w.pct {
+				if w.nodes >= min {
+					return w.nodes
+				}
+				break
+			}
+			r -= w.pct
+		}
+	}
+}
+
+func (g *gen) pick(s []string) string { return s[g.rng.IntN(len(s))] }
+
+// uniform returns a number in [a, b); logUniform one whose logarithm is
+// uniform in [log a, log b).
+func (g *gen) uniform(a, b float64) float64    { return a + (b-a)*g.rng.Float64() }
+func (g *gen) logUniform(a, b float64) float64 { return a * math.Pow(b/a, g.rng.Float64()) }
+
+// logNormal returns median·exp(sigma·z) for the given standard normal z.
+func logNormal(median, sigma, z float64) float64 { return median * math.Exp(sigma*z) }
+
+func (g *gen) job(i int, class string) LabelledJob {
+	o := g.o
+	j := LabelledJob{
+		ID:      fmt.Sprint(g.idBase + i),
+		User:    g.pick(users),
+		Account: g.pick(accounts),
+		Name:    g.pick(nameA) + "-" + g.pick(nameB),
+		Class:   class,
+		step:    o.Step, window: o.Window,
+		seed: [2]uint64{g.rng.Uint64(), g.rng.Uint64()},
+	}
+	minNodes, minWindows, minProblem := 1, 6, 0
+	switch class {
+	case ClassOrdinary, ClassBurst, ClassNoisyStart:
+	case LabelImbalancedIO:
+		minNodes = 4
+		minProblem = 6
+	case LabelStatPolling:
+		minProblem = 8
+	default:
+		minProblem = 6
+	}
+	minWindows = max(minWindows, minProblem+1)
+	j.Nodes = g.width(minNodes)
+	steps := int(o.Window / o.Step)
+	j.Length = time.Duration(g.rng.IntN((36-minWindows)*steps+1)+minWindows*steps) * o.Step
+	j.base = g.drawBase(&j)
+	if class != ClassOrdinary {
+		g.inject(&j, minProblem)
+	}
+	if j.Label == "" && class == ClassStreaming {
+		j.Label = LabelHeavyStreaming
+	}
+	j.OnsetWindow = int(j.Onset / o.Window)
+	j.NodeNames = make([]string, j.Nodes)
+	for k := range j.NodeNames {
+		g.nextNode++
+		j.NodeNames[k] = fmt.Sprintf("bw%05d", g.nextNode)
+	}
+	return j
+}
+
+// drawBase draws an ordinary job's background. Medians and spreads are
+// per node per second; every value is a plausible Lustre client rate, not
+// a measurement. A job-wide activity factor correlates the metrics (a busy
+// job is busy on most of them, correlation 0.5 in log space); transfer
+// sizes are drawn per job (4 KiB to 4 MiB reads, 4 KiB to 8 MiB writes)
+// and ops follow from bytes.
+func (g *gen) drawBase(j *LabelledJob) profile {
+	r := g.rng
+	a := r.NormFloat64()
+	z := func() float64 { return 0.5*a + math.Sqrt(0.75)*r.NormFloat64() }
+	var p profile
+	rt := &p.rates
+	if r.Float64() >= 0.15 {
+		rt[metric.ReadBytes] = logNormal(2e6, 1.8, z())
+		size := math.Exp2(g.uniform(12, 22))
+		rt[metric.ReadOps] = min(rt[metric.ReadBytes]/size, 50000)
+	} else {
+		rt[metric.ReadOps] = logNormal(0.2, 1, z()) // a few tiny reads
+		rt[metric.ReadBytes] = rt[metric.ReadOps] * 512
+	}
+	if r.Float64() >= 0.2 {
+		rt[metric.WriteBytes] = logNormal(1e6, 1.8, z())
+		size := math.Exp2(g.uniform(12, 23))
+		rt[metric.WriteOps] = min(rt[metric.WriteBytes]/size, 30000)
+	}
+	rt[metric.Opens] = logNormal(0.5, 1.4, z())
+	rt[metric.Closes] = rt[metric.Opens] * g.uniform(0.97, 1)
+	if r.Float64() < 0.6 {
+		rt[metric.Creates] = logNormal(0.1, 1.5, z())
+		if r.Float64() < 0.5 {
+			rt[metric.Removes] = rt[metric.Creates] * g.uniform(0.3, 1)
+		}
+	}
+	rt[metric.StatOps] = logNormal(3, 1.3, z())
+	if r.Float64() < 0.5 {
+		rt[metric.MetaUpdates] = logNormal(0.1, 1.4, z())
+	}
+	if r.Float64() < 0.4 {
+		rt[metric.Syncs] = min(logNormal(0.08, 1.5, z()), 0.5*rt[metric.WriteOps])
+	}
+	rt[metric.OtherOps] = logNormal(1, 1.4, z())
+
+	windows := j.Windows()
+	p.winFactor = make([][groups]float64, windows)
+	for w := range p.winFactor {
+		common := r.NormFloat64()
+		for k := range groups {
+			p.winFactor[w][k] = math.Exp(0.25*common + 0.45*r.NormFloat64())
+		}
+	}
+	p.nodeFac = make([][groups]float64, j.Nodes)
+	rank0 := 1.0
+	if j.Nodes > 1 && r.Float64() < 0.3 {
+		rank0 = g.uniform(1.5, 4) // rank 0 a little busier: common, and mild
+	}
+	for n := range p.nodeFac {
+		for k := range groups {
+			p.nodeFac[n][k] = math.Exp(0.25 * r.NormFloat64())
+		}
+		if n == 0 {
+			p.nodeFac[n][gRead] *= rank0
+			p.nodeFac[n][gWrite] *= rank0
+		}
+	}
+	if r.Float64() < 0.3 {
+		p.ckpt = checkpoint{
+			every:   3 + r.IntN(6),
+			offset:  r.IntN(10),
+			minutes: 1 + r.IntN(5),
+			rate:    min(max(rt[metric.WriteBytes], 1e6)*g.logUniform(10, 200), 3e9),
+			size:    math.Exp2(float64(20 + r.IntN(4))),
+		}
+	}
+	return p
+}
+
+// inject sets the class's label, span, intensity and overlay.
+func (g *gen) inject(j *LabelledJob, minProblem int) {
+	r, ref := g.rng, &g.o.Reference
+	W, step := g.o.Window, g.o.Step
+	steps := j.Steps()
+	perWindow := int(W / step)
+	in := &j.inj
+	in.nodeSigma = 0.2
+	I := g.logUniform(1.5, 8)
+	j.Intensity = I
+
+	// span sets the injection from a random minute leaving at least
+	// minProblem windows, lasting to the end or at least minProblem
+	// windows.
+	span := func() {
+		latest := steps - minProblem*perWindow
+		on := r.IntN(latest + 1)
+		until := steps
+		if r.Float64() < 0.35 {
+			until = on + minProblem*perWindow + r.IntN(steps-on-minProblem*perWindow+1)
+		}
+		j.Onset, j.Until = time.Duration(on)*step, time.Duration(until)*step
+	}
+	add := func(id metric.ID, v float64) { in.add[id] += v }
+	replace := func(ids ...metric.ID) {
+		for _, id := range ids {
+			in.replace.Add(id)
+		}
+	}
+
+	switch j.Class {
+	case ClassBurst:
+		d := 2 + r.IntN(8)
+		on := 0
+		if r.Float64() < 0.5 {
+			on = perWindow + r.IntN(max(steps-perWindow-d, 1))
+		}
+		j.Onset, j.Until = time.Duration(on)*step, time.Duration(min(on+d, steps))*step
+		if r.Float64() < 0.5 {
+			j.Variant = "create"
+			c := I * ref.critical(metric.Creates)
+			add(metric.Creates, c)
+			add(metric.Opens, c)
+			add(metric.Closes, c)
+			add(metric.MetaUpdates, c*g.uniform(0.5, 1)) // times and modes set
+			w := c * g.uniform(1, 3)
+			add(metric.WriteOps, w)
+			add(metric.WriteBytes, w*g.logUniform(1<<10, 64<<10))
+		} else {
+			j.Variant = "sync"
+			s := I * ref.critical(metric.Syncs)
+			add(metric.Syncs, s)
+			w := s * g.uniform(1, 4)
+			add(metric.WriteOps, w)
+			add(metric.WriteBytes, w*g.logUniform(64<<10, 4<<20))
+			add(metric.Opens, s)
+			add(metric.Closes, s)
+		}
+	case ClassNoisyStart:
+		j.Variant = "start"
+		d := 3 + r.IntN(13)
+		j.Onset, j.Until = 0, time.Duration(min(d, steps))*step
+		I = g.logUniform(0.5, 5)
+		j.Intensity = I
+		add(metric.StatOps, I*ref.critical(metric.StatOps))
+		o := g.logUniform(0.3, 3) * max(ref.critical(metric.Opens), ref.critical(metric.Closes))
+		add(metric.Opens, o)
+		add(metric.Closes, o)
+		rb := g.logUniform(50e6, 1e9)
+		add(metric.ReadBytes, rb)
+		add(metric.ReadOps, rb/math.Exp2(float64(20+r.IntN(3))))
+	case ClassStreaming:
+		span()
+		j.Variant = []string{"read", "write", "both"}[r.IntN(3)]
+		dir := j.Variant
+		// The main direction (reads for "both") runs at I times its
+		// critical cut, capped at 6 GB/s per node; the other direction of
+		// "both" at 20% to 100% of it.
+		main := metric.ReadBytes
+		if dir == "write" {
+			main = metric.WriteBytes
+		}
+		rate := min(I*ref.critical(main), 6e9)
+		j.Intensity = rate / ref.critical(main)
+		mib := []int{1, 1, 1, 2, 4, 4, 4, 8, 16}[r.IntN(9)]
+		size := float64(mib << 20)
+		j.Variant += fmt.Sprintf(" %dMiB", mib)
+		replace(metric.ReadBytes, metric.ReadOps, metric.WriteBytes, metric.WriteOps)
+		switch dir {
+		case "read":
+			add(metric.ReadBytes, rate)
+			add(metric.ReadOps, rate/size)
+		case "write":
+			add(metric.WriteBytes, rate)
+			add(metric.WriteOps, rate/size)
+		default:
+			w := rate * g.uniform(0.2, 1)
+			add(metric.ReadBytes, rate)
+			add(metric.ReadOps, rate/size)
+			add(metric.WriteBytes, w)
+			add(metric.WriteOps, w/size)
+		}
+	case LabelMetadataStorm:
+		span()
+		j.Label = j.Class
+		switch r.IntN(3) {
+		case 0: // one file per task or step, often removed again
+			j.Variant = "create"
+			c := I * ref.critical(metric.Creates)
+			add(metric.Creates, c)
+			if r.Float64() < 0.6 {
+				add(metric.Removes, c*g.uniform(0.5, 1))
+			}
+			add(metric.Opens, c)
+			add(metric.Closes, c)
+			w := c * g.uniform(1, 3)
+			add(metric.WriteOps, w)
+			add(metric.WriteBytes, w*g.logUniform(256, 8<<10))
+			add(metric.StatOps, c*g.uniform(0.5, 2))
+			add(metric.MetaUpdates, c*g.uniform(0, 0.5))
+		case 1: // removing a huge tree
+			j.Variant = "unlink"
+			u := I * ref.critical(metric.Removes)
+			add(metric.Removes, u)
+			add(metric.StatOps, u*g.uniform(1, 2))
+			o := u * g.uniform(0, 0.02) // directories opened
+			add(metric.Opens, o)
+			add(metric.Closes, o)
+		default: // scanning a huge tree, again and again
+			j.Variant = "stat"
+			s := I * ref.critical(metric.StatOps)
+			add(metric.StatOps, s)
+			o := s * g.uniform(0, 0.02)
+			add(metric.Opens, o)
+			add(metric.Closes, o)
+		}
+	case LabelSmallWriteFlood:
+		span()
+		j.Label = j.Class
+		w := I * ref.critical(metric.WriteOps)
+		replace(metric.WriteBytes, metric.WriteOps)
+		add(metric.WriteOps, w)
+		add(metric.WriteBytes, w*g.logUniform(64, 16<<10))
+	case LabelOpenCloseChurn:
+		span()
+		j.Label = j.Class
+		o := I * max(ref.critical(metric.Opens), ref.critical(metric.Closes))
+		add(metric.Opens, o)
+		add(metric.Closes, o)
+		rd := o * g.uniform(1, 3)
+		add(metric.ReadOps, rd)
+		add(metric.ReadBytes, rd*g.logUniform(512, 16<<10))
+		add(metric.StatOps, o*g.uniform(0, 1))
+	case LabelFsyncStorm:
+		span()
+		j.Label = j.Class
+		s := I * ref.critical(metric.Syncs)
+		replace(metric.WriteBytes, metric.WriteOps, metric.Syncs)
+		add(metric.Syncs, s)
+		w := s * g.uniform(0.8, 1.3)
+		add(metric.WriteOps, w)
+		add(metric.WriteBytes, w*g.logUniform(512, 32<<10))
+	case LabelImbalancedIO:
+		span()
+		j.Label = j.Class
+		id, ops := metric.WriteBytes, metric.WriteOps
+		j.Variant = "write"
+		if r.Float64() < 0.4 {
+			id, ops, j.Variant = metric.ReadBytes, metric.ReadOps, "read"
+		}
+		need := ref.p90(id)
+		// One client moves at most about 5 GB/s: a wide job's intensity
+		// is capped by it, and a job too wide for 1.5 times the need is
+		// made narrower.
+		const clientMax = 5e9
+		for j.Nodes > 4 && 1.5*need*float64(j.Nodes) > clientMax {
+			j.Nodes /= 2
+			j.base.nodeFac = j.base.nodeFac[:j.Nodes]
+		}
+		I = min(I, clientMax/(need*float64(j.Nodes)))
+		j.Intensity = I
+		total := I * need * float64(j.Nodes) // the job's data rate, all on node 0
+		size := math.Exp2(float64(17 + r.IntN(6)))
+		in.node0[id] = total
+		in.node0[ops] = total / size
+		in.othersShare = g.uniform(0, 0.15)
+		replace(metric.ReadBytes, metric.ReadOps, metric.WriteBytes, metric.WriteOps)
+	case LabelStatPolling:
+		span()
+		j.Label = j.Class
+		need := ref.p90(metric.StatOps)
+		I = min(I, 0.6*ref.critical(metric.StatOps)/need)
+		j.Intensity = I
+		// The job waits: its other I/O falls to a trickle, and its data to
+		// a line of log now and then (at most 50 kB/s per node).
+		in.scale = g.uniform(0, 0.02)
+		in.dataCap = 50e3
+		in.nodeSigma = 0.05
+		add(metric.StatOps, I*need)
+		replace(metric.StatOps)
+	}
+}
+
+// Stream replays a job's samples, one step at a time.
+type Stream struct {
+	j     *LabelledJob
+	rng   *rand.Rand
+	i     int
+	out   []metric.Values
+	carry []metric.Rates // per node: fractional counts carried to the next step
+	injF  []float64      // per node: the injection's spread
+}
+
+// Stream returns a fresh replay of the job's samples; two streams of one
+// job give the same values.
+func (j *LabelledJob) Stream() *Stream {
+	s := &Stream{
+		j:     j,
+		rng:   rand.New(rand.NewPCG(j.seed[0], j.seed[1])),
+		out:   make([]metric.Values, j.Nodes),
+		carry: make([]metric.Rates, j.Nodes),
+		injF:  make([]float64, j.Nodes),
+	}
+	for n := range s.injF {
+		s.injF[n] = math.Exp(j.inj.nodeSigma * s.rng.NormFloat64())
+	}
+	return s
+}
+
+// Minute-to-minute noise is log-normal, drawn from tables of its quantiles
+// (exp(σz) at z = Φ⁻¹((k+½)/noiseSize), mean 1 to within 0.2%): exact
+// enough, and much cheaper than an exp per metric group per node per step.
+const (
+	noiseBits = 10
+	noiseSize = 1 << noiseBits
+)
+
+var minuteNoise, injNoise = noiseTable(0.2), noiseTable(0.1)
+
+func noiseTable(sigma float64) *[noiseSize]float64 {
+	var t [noiseSize]float64
+	for k := range t {
+		z := math.Sqrt2 * math.Erfinv(2*(float64(k)+0.5)/noiseSize-1)
+		t[k] = math.Exp(sigma*z - sigma*sigma/2)
+	}
+	return &t
+}
+
+// groupOf is each metric's group.
+var groupOf = [metric.Count]int{
+	metric.ReadBytes: gRead, metric.ReadOps: gRead,
+	metric.WriteBytes: gWrite, metric.WriteOps: gWrite,
+	metric.Opens: gOpen, metric.Closes: gOpen,
+	metric.Creates: gCreate, metric.Removes: gCreate,
+	metric.StatOps: gStat, metric.MetaUpdates: gMeta,
+	metric.Syncs: gSync, metric.OtherOps: gOther,
+}
+
+// Next returns each node's deltas over the next step, in NodeNames order
+// (the slice is reused), and false after the last step.
+func (s *Stream) Next() ([]metric.Values, bool) {
+	j := s.j
+	if s.i >= j.Steps() {
+		return nil, false
+	}
+	i := s.i
+	s.i++
+	secs := j.step.Seconds()
+	t := time.Duration(i) * j.step
+	perWindow := int(j.window / j.step)
+	w := i / perWindow
+	p := &j.base
+	active := j.Class != ClassOrdinary && t >= j.Onset && t < j.Until
+	ck := p.ckpt
+	inCkpt := ck.every > 0 && w%ck.every == ck.every-1 && i%perWindow >= ck.offset && i%perWindow < ck.offset+ck.minutes
+	var others metric.Rates // imbalanced_io: the other nodes' share, per node
+	if active && j.Nodes > 1 {
+		for k, v := range j.inj.node0 {
+			others[k] = v * j.inj.othersShare / float64(j.Nodes-1)
+		}
+	}
+	// Locals, copied in and out once per node: the loop below is the
+	// evaluation's hot path (and the race detector's).
+	var base metric.Rates
+	wf := p.winFactor[w]
+	for id, x := range p.rates {
+		base[id] = x * wf[groupOf[id]]
+	}
+	for n := range s.out {
+		nf := p.nodeFac[n]
+		var noise [groups]float64
+		bits := s.rng.Uint64()
+		for k := range noise {
+			if k == 6 {
+				bits = s.rng.Uint64()
+			}
+			noise[k] = minuteNoise[bits&(noiseSize-1)]
+			bits >>= noiseBits
+		}
+		var r metric.Rates
+		for id := range metric.Count {
+			g := groupOf[id]
+			r[id] = base[id] * nf[g] * noise[g]
+		}
+		if inCkpt {
+			r[metric.WriteBytes] += ck.rate * noise[gWrite]
+			r[metric.WriteOps] += ck.rate / ck.size * noise[gWrite]
+			r[metric.Opens] += 1.0 / 60
+			r[metric.Closes] += 1.0 / 60
+			r[metric.Creates] += 1.0 / 60
+			r[metric.Syncs] += 1.0 / 60
+		}
+		if active {
+			in := &j.inj
+			if in.scale > 0 {
+				for id := range r {
+					r[id] *= in.scale
+				}
+				for _, b := range [][2]metric.ID{{metric.ReadBytes, metric.ReadOps}, {metric.WriteBytes, metric.WriteOps}} {
+					if x := r[b[0]]; x > in.dataCap {
+						r[b[0]], r[b[1]] = in.dataCap, r[b[1]]*in.dataCap/x
+					}
+				}
+			}
+			f := s.injF[n] * injNoise[s.rng.Uint64()&(noiseSize-1)]
+			for id := range metric.Count {
+				if in.replace.Has(id) {
+					r[id] = 0
+				}
+				r[id] += in.add[id] * f
+			}
+			if in.node0 != (metric.Rates{}) {
+				for id := range metric.Count {
+					if n == 0 {
+						r[id] += in.node0[id] * f
+					} else {
+						r[id] += others[id] * f
+					}
+				}
+			}
+		}
+		carry := s.carry[n]
+		var v metric.Values
+		for id := range metric.Count {
+			x := r[id]*secs + carry[id]
+			c := math.Floor(x)
+			carry[id] = x - c
+			v[id] = uint64(c)
+		}
+		s.carry[n], s.out[n] = carry, v
+	}
+	return s.out, true
+}
+
+// Classes lists the generator's classes in their mix order.
+func Classes() []string {
+	out := make([]string, len(classMix))
+	for i, c := range classMix {
+		out[i] = c.class
+	}
+	return out
+}
+
+// Labels lists the labels the generator injects, sorted.
+func Labels() []string {
+	l := []string{LabelMetadataStorm, LabelSmallWriteFlood, LabelOpenCloseChurn, LabelFsyncStorm, LabelImbalancedIO, LabelStatPolling, LabelHeavyStreaming}
+	slices.Sort(l)
+	return l
+}
