@@ -194,7 +194,7 @@ func (d *demoRun) simulate(ctx context.Context, s *sim.Sim, sc sim.Scenario) {
 		if err := s.Step(now); err != nil {
 			d.printf("simulator: %v", err)
 		}
-		if !shown && off > 40*time.Second {
+		if !shown && off > 48*time.Second {
 			shown = true
 			d.showMetrics(ctx)
 		}

@@ -17,14 +17,14 @@ import (
 // must flag the metadata storm job on creates.
 func TestDemoFlagsTheMetadataStorm(t *testing.T) {
 	if testing.Short() {
-		t.Skip("runs the 45 s demo")
+		t.Skip("runs the 52 s demo")
 	}
 	bin := filepath.Join(t.TempDir(), "agent")
 	out, err := exec.Command("go", "build", "-o", bin, "sluice/agent").CombinedOutput()
 	require.NoError(t, err, "build the agent: %s", out)
 
 	var stdout, stderr bytes.Buffer
-	err = run(context.Background(), []string{"demo", "--agent.bin", bin, "--duration", "45s", "--web.listen", "127.0.0.1:0"}, &stdout, &stderr)
+	err = run(context.Background(), []string{"demo", "--agent.bin", bin, "--duration", "52s", "--web.listen", "127.0.0.1:0"}, &stdout, &stderr)
 	require.NoError(t, err, "stderr: %s", stderr.String())
 	text := stdout.String()
 	assert.Regexp(t, regexp.MustCompile(`FLAG\s+job 81234 \(quill-index, user dorvane, 4 nodes\): creates [0-9.]+k/s per node > critical cut 1k/s, since \d\d:\d\d:\d\d`), text)

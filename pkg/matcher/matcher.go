@@ -19,9 +19,10 @@
 //   - a euclidean example compares the last windows with the pattern at
 //     the one offset where they line up; its score is 1 − distance/max.
 //
-// [Job.Live] evaluates rule patterns once more with the live window as a
+// [Job.Live] evaluates rule patterns once more with the open window as a
 // provisional next window, without changing any state: a rule can then
-// match a minute into a window rather than at its end. Example patterns
+// match part-way into a window rather than at its end, but only on bounds
+// that the closed window cannot contradict. Example patterns
 // are scored on closed windows only; grades of part of a window are not
 // comparable with those of whole ones.
 //
@@ -199,10 +200,11 @@ func ruleStart(st *pattern.RuleState, idx int) int {
 	return idx + 1 - st.Span()
 }
 
-// Live scores every rule pattern with the live window as a provisional
-// next window; example patterns keep their latest closed-window score.
-// Nothing is changed.
-func (j *Job) Live(v pattern.WindowView) []Score {
+// Live scores every rule pattern with the open window as a provisional
+// next window, given as two bounds (see pattern.Rule.HoldsBetween);
+// example patterns keep their latest closed-window score. Nothing is
+// changed.
+func (j *Job) Live(low, high pattern.WindowView) []Score {
 	out := make([]Score, len(j.lib.entries))
 	for i, e := range j.lib.entries {
 		if e.p.Rule == nil {
@@ -210,7 +212,7 @@ func (j *Job) Live(v pattern.WindowView) []Score {
 			continue
 		}
 		st := j.rules[i] // a copy: the provisional push is thrown away
-		s := st.Push(e.p.Rule.Holds(v))
+		s := st.Push(e.p.Rule.HoldsBetween(low, high))
 		out[i] = Score{Score: s, Matched: st.Matched(), Start: ruleStart(&st, j.windows)}
 	}
 	return out

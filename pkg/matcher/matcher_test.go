@@ -91,10 +91,10 @@ func TestRuleKOfNAndLive(t *testing.T) {
 	s := job.Window(crit)[0]
 	assert.False(t, s.Matched)
 	assert.InDelta(t, 1.0/3, s.Score, 1e-12)
-	live := job.Live(crit)[0]
+	live := job.Live(crit, crit)[0]
 	assert.True(t, live.Matched, "one closed and the live window: 2 of 3")
 	assert.Equal(t, 0, live.Start)
-	assert.False(t, job.Live(calm)[0].Matched)
+	assert.False(t, job.Live(calm, calm)[0].Matched)
 
 	s = job.Window(calm)[0]
 	assert.False(t, s.Matched, "the live push was provisional")
@@ -139,14 +139,14 @@ func randomView(r *rand.Rand) pattern.WindowView {
 	return v
 }
 
-// library100 is the seven built-ins plus 93 random examples of 6 to 12
+// library100 is the built-ins plus random examples (100 in all) of 6 to 12
 // windows over 3 to 5 metrics, a third each Sellers, KS and Euclidean.
 func library100(t testing.TB) *matcher.Library {
 	ps, err := pattern.Builtin()
 	require.NoError(t, err)
 	r := rand.New(rand.NewPCG(9, 9))
 	methods := []pattern.Method{pattern.Sellers, pattern.KS, pattern.Euclidean}
-	for i := range 93 {
+	for i := range 100 - len(ps) {
 		p := &pattern.Pattern{Name: "p", Severity: pattern.Warning, RaiseAfter: 1, ClearAfter: 2, Threshold: 0.8,
 			Example: &pattern.Example{Method: methods[i%3]}}
 		n := 6 + r.IntN(7)

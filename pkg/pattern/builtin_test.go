@@ -35,7 +35,7 @@ func TestBuiltin(t *testing.T) {
 	}
 	assert.Equal(t, []string{
 		"fsync_storm", "heavy_streaming", "imbalanced_io", "metadata_storm",
-		"open_close_churn", "small_write_flood", "stat_polling",
+		"open_close_churn", "small_write_flood", "stat_polling", "stat_storm",
 	}, names, "sorted by file name")
 }
 
@@ -47,8 +47,9 @@ func TestBuiltinSettings(t *testing.T) {
 		by[p.Name] = p
 	}
 	assert.Equal(t, pattern.Hold{K: 2, N: 3}, by["metadata_storm"].Rule.Hold)
-	assert.Len(t, by["metadata_storm"].Rule.Any, 3, "creates, removes or stat_ops")
-	assert.Equal(t, pattern.Hold{K: 6, N: 6}, by["stat_polling"].Rule.Hold)
+	assert.Len(t, by["metadata_storm"].Rule.Any, 2, "creates or removes")
+	assert.Equal(t, pattern.Hold{K: 2, N: 2}, by["stat_polling"].Rule.Hold)
+	assert.Equal(t, pattern.Critical, by["stat_storm"].Severity)
 	assert.Equal(t, 4, by["imbalanced_io"].Rule.MinNodes)
 	assert.Equal(t, pattern.Info, by["heavy_streaming"].Severity)
 	assert.Contains(t, by["heavy_streaming"].Advice, "No action is usually needed")
@@ -110,10 +111,10 @@ func TestDescribeRule(t *testing.T) {
 		}
 	}
 	for _, want := range []string{
-		"  rule:      in at least 3 of the last 4 windows, jobs of 4 or more nodes\n",
+		"  rule:      in at least 2 of the last 3 windows, jobs of 4 or more nodes\n",
 		"    all of:  busiest_node_share > 0.8\n",
 		"    any of:  read_bytes grade >= 4\n",
-		"  matches:   score >= 3/4; flag after 1 matching window(s), clear after 3\n",
+		"  matches:   score >= 2/3; flag after 1 matching window(s), clear after 3\n",
 	} {
 		assert.Contains(t, d, want)
 	}

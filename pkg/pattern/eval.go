@@ -204,14 +204,36 @@ func (c Condition) Holds(w WindowView) bool {
 // MinNodes nodes, every condition of All holds and, when Any is not empty,
 // one of Any holds. A rule without conditions never holds.
 func (r *Rule) Holds(w WindowView) bool {
+	return r.holds(w.Nodes, func(c Condition) bool { return c.Holds(w) })
+}
+
+// HoldsBetween reports whether the rule holds for a window that is still
+// open, given two bounds on what it will be when it closes: low, its
+// counts so far spread over the whole window (as if the rest stayed idle),
+// and high, its counts so far over the time they cover (as if the rest
+// went on at the same rate). A condition of the "at least" kind (level,
+// grade_at_least, above) must hold on low and one of the "at most" kind
+// (level_at_most, grade_at_most, below) on high, so that a match on an
+// open window does not rest on a guess in either direction.
+func (r *Rule) HoldsBetween(low, high WindowView) bool {
+	return r.holds(high.Nodes, func(c Condition) bool {
+		switch c.Op {
+		case LevelAtMost, GradeAtMost, Below:
+			return c.Holds(high)
+		}
+		return c.Holds(low)
+	})
+}
+
+func (r *Rule) holds(nodes int, holds func(Condition) bool) bool {
 	if len(r.All) == 0 && len(r.Any) == 0 {
 		return false
 	}
-	if r.MinNodes > 1 && w.Nodes < r.MinNodes {
+	if r.MinNodes > 1 && nodes < r.MinNodes {
 		return false
 	}
 	for _, c := range r.All {
-		if !c.Holds(w) {
+		if !holds(c) {
 			return false
 		}
 	}
@@ -219,7 +241,7 @@ func (r *Rule) Holds(w WindowView) bool {
 		return true
 	}
 	for _, c := range r.Any {
-		if c.Holds(w) {
+		if holds(c) {
 			return true
 		}
 	}

@@ -293,9 +293,9 @@ func TestBuiltinsOnBehaviours(t *testing.T) {
 			metric.WriteBytes: 5e8, metric.WriteOps: 500}, 2, 0.95), nil},
 		{"imbalanced but little I/O", view(map[metric.ID]float64{
 			metric.WriteBytes: 1e6, metric.WriteOps: 10}, 8, 0.95), nil},
-		{"stat polling: 500 stats/s, no data", view(map[metric.ID]float64{metric.StatOps: 500}, 1, 1), []string{"stat_polling"}},
+		{"500 stats/s, below the elevated cut: not yet polling", view(map[metric.ID]float64{metric.StatOps: 500}, 1, 1), nil},
 		{"stat polling at an elevated rate", view(map[metric.ID]float64{metric.StatOps: 3000}, 1, 1), []string{"stat_polling"}},
-		{"critical stats are a storm, not polling", view(map[metric.ID]float64{metric.StatOps: 20000}, 1, 1), []string{"metadata_storm"}},
+		{"critical stats are a stat storm, not polling", view(map[metric.ID]float64{metric.StatOps: 20000}, 1, 1), []string{"stat_storm"}},
 		{"stats with data are not polling", view(map[metric.ID]float64{metric.StatOps: 500, metric.ReadBytes: 1e8, metric.ReadOps: 100}, 1, 1), nil},
 		{"heavy streaming: 4 GB/s in 4 MB writes", view(map[metric.ID]float64{
 			metric.WriteBytes: 4e9, metric.WriteOps: 1000, metric.Opens: 1, metric.Closes: 1}, 4, 0.26), []string{"heavy_streaming"}},
@@ -317,4 +317,27 @@ func TestBuiltinsOnBehaviours(t *testing.T) {
 			assert.Equal(t, tt.want, got)
 		})
 	}
+}
+
+// TestHoldsBetween: on an open window, "at least" conditions are tested on
+// the low bound and "at most" ones on the high bound, so a creates storm
+// half-way into a window that is also moving data at a critical rate so
+// far does not match a rule that wants data normal.
+func TestHoldsBetween(t *testing.T) {
+	r := &pattern.Rule{
+		Hold: pattern.Hold{K: 1, N: 1},
+		All: []pattern.Condition{
+			{Op: pattern.LevelAtLeast, Metric: metric.Creates, Level: level.Critical},
+			{Op: pattern.LevelAtMost, Metric: metric.WriteBytes, Level: level.Normal},
+		},
+	}
+	var low, high pattern.WindowView
+	low.Levels[metric.Creates], high.Levels[metric.Creates] = level.Critical, level.Critical
+	assert.True(t, r.HoldsBetween(low, high))
+	high.Levels[metric.WriteBytes] = level.Critical // critical so far, diluted in low
+	assert.True(t, r.Holds(low), "the low bound alone would match")
+	assert.False(t, r.HoldsBetween(low, high))
+	low.Levels[metric.Creates] = level.Elevated // critical only at the rate so far
+	high.Levels[metric.WriteBytes] = level.Normal
+	assert.False(t, r.HoldsBetween(low, high))
 }

@@ -64,7 +64,7 @@ func (t *Tracker) evaluate(j *JobState) {
 	for i, r := range j.LiveRates {
 		t.step(j, metric.ID(i), r)
 	}
-	t.matchLive(j, liveView(j, nodes, live))
+	t.matchLive(j)
 	t.dirtyJobs[j.Meta.ID] = struct{}{}
 }
 

@@ -8,7 +8,6 @@ import (
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
 	"sluice/pkg/pattern"
-	"sluice/pkg/signature"
 )
 
 // PatternHyst is one pattern's raise/clear state for one job. Closed
@@ -61,17 +60,26 @@ func (t *Tracker) matchWindow(j *JobState, w *model.Window) {
 	}
 }
 
-// matchLive scores the live window against the rule patterns.
-func (t *Tracker) matchLive(j *JobState, v pattern.WindowView) {
+// matchLive scores the open window so far (see provisional) against the
+// rule patterns.
+func (t *Tracker) matchLive(j *JobState) {
 	lib := t.opts.Patterns
 	if lib == nil {
+		return
+	}
+	low, high, ok := t.provisional(j)
+	if !ok {
 		return
 	}
 	if j.match == nil {
 		j.match = lib.NewJob()
 	}
-	for i, sc := range j.match.Live(v) {
-		t.stepPattern(j, lib.Patterns()[i], sc, v, j.LastSample, false)
+	// A flag raised now shows the live rates, the job's actual rates,
+	// beside the cut points: the provisional view is a lower bound.
+	shown := pattern.WindowView{Levels: j.LiveLevels, Grades: j.Signature.Live, Rates: j.LiveRates, Nodes: j.LiveNodes,
+		BusiestShare: high.BusiestShare, NodeSpread: high.NodeSpread}
+	for i, sc := range j.match.Live(low, high) {
+		t.stepPattern(j, lib.Patterns()[i], sc, shown, j.LastSample, false)
 	}
 }
 
@@ -189,17 +197,39 @@ func (t *Tracker) drivers(p *pattern.Pattern, v pattern.WindowView) []model.Driv
 	return out
 }
 
-// liveView is the live window as the patterns see it.
-func liveView(j *JobState, nodes []*Accum, grades signature.Grades) pattern.WindowView {
-	var bal balance
-	for _, a := range nodes {
-		if a.Seconds > 0 {
-			bal.add(float64(a.Values[metric.ReadBytes]+a.Values[metric.WriteBytes]) / a.Seconds)
-		}
+// provisional is the open window the latest samples fall in, as the
+// patterns see it before it closes, as two bounds: low, each node's counts
+// so far divided by the whole window's length (as if the rest stayed
+// idle), and high, the window's value so far (as if the rest went on at
+// the same rate). pattern.Rule.HoldsBetween tests "at least" conditions on
+// low and "at most" ones on high, so an early match is not a guess; the
+// 1-minute live rates would match a start-up minute that the window's
+// mean dilutes.
+func (t *Tracker) provisional(j *JobState) (low, high pattern.WindowView, ok bool) {
+	idx := j.windowIndex(j.LastSample, t.opts.Window)
+	ow := j.Open[idx]
+	if ow == nil || len(ow.Nodes) == 0 {
+		return low, high, false
 	}
-	v := pattern.WindowView{Levels: j.LiveLevels, Grades: grades, Rates: j.LiveRates, Nodes: j.LiveNodes}
-	v.BusiestShare, v.NodeSpread = bal.result()
-	return v
+	start := j.Meta.Start.Add(time.Duration(idx) * t.opts.Window)
+	hw := t.windowOf(j.Meta.ID, idx, start, start.Add(t.opts.Window), ow)
+	high = viewOf(&hw)
+	inv := 1 / t.opts.Window.Seconds()
+	var sum metric.Rates
+	var bal balance
+	for a := range ow.accums() {
+		for i, x := range a.Values {
+			sum[i] += float64(x) * inv
+		}
+		bal.add(float64(a.Values[metric.ReadBytes]+a.Values[metric.WriteBytes]) * inv)
+	}
+	for i := range sum {
+		sum[i] /= float64(len(ow.Nodes))
+	}
+	low = pattern.WindowView{Rates: sum, Nodes: len(ow.Nodes)}
+	low.Levels, low.Grades = t.coding.code(sum)
+	low.BusiestShare, low.NodeSpread = bal.result()
+	return low, high, true
 }
 
 // clearPatterns clears a finished job's pattern flags.
