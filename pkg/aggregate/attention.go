@@ -9,6 +9,7 @@ import (
 	"strings"
 	"time"
 
+	"sluice/pkg/export"
 	"sluice/pkg/model"
 )
 
@@ -236,4 +237,17 @@ func (s *Service) handlePatterns(w http.ResponseWriter, _ *http.Request) {
 		}
 	}
 	writeJSON(w, map[string]any{"patterns": out})
+}
+
+// patternInfo lists the patterns in force for sluice_pattern_info.
+func (s *Service) patternInfo() []export.PatternInfo {
+	lib := s.opts.Tracker.Patterns
+	if lib == nil {
+		return nil
+	}
+	var out []export.PatternInfo
+	for _, p := range lib.Patterns() {
+		out = append(out, export.PatternInfo{Name: p.Name, Title: p.Title, Severity: p.Severity.String(), Advice: p.Advice})
+	}
+	return out
 }

@@ -43,6 +43,7 @@ func (s *Service) Snapshot() export.Snapshot {
 		Jobs:            running,
 		Cuts:            s.tr.Coding().Levels,
 		Baseline:        s.learn.exported(),
+		Patterns:        s.patternInfo(),
 		Watermark:       s.tr.Watermark(),
 		Now:             s.opts.Now(),
 		Nodes:           s.tr.Nodes(),

@@ -45,6 +45,9 @@ func TestAlertsFireInPrometheus(t *testing.T) {
 		for _, a := range alerts(t, promURL) {
 			if a.Labels["alertname"] == name && a.State == "firing" && a.Labels["job_id"] == "4101" {
 				require.Contains(t, a.Annotations["advice"], "http://"+r.svc.HTTPAddr()+"/api/v1/jobs/4101")
+				if name == "SluicePatternCritical" { // the pattern's own advice, from sluice_pattern_info
+					require.Contains(t, a.Annotations["advice"], "Follow your site's policy")
+				}
 				return true
 			}
 		}

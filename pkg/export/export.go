@@ -86,7 +86,8 @@ type Snapshot struct {
 	Jobs      []model.Summary
 	Cuts      level.Cuts
 	Baseline  Baseline
-	Watermark time.Time // latest interval end seen; zero leaves out the lag
+	Patterns  []PatternInfo // the pattern library in force
+	Watermark time.Time     // latest interval end seen; zero leaves out the lag
 	Now       time.Time
 	Nodes     int // nodes heard from
 	// MaxJobSeries caps the per-job series: jobs are taken most severe
@@ -113,6 +114,12 @@ type Baseline struct {
 	Rejected      uint64    // window values refused (NaN, negative)
 }
 
+// PatternInfo is one pattern in force, for sluice_pattern_info: what the
+// alert rules read a flag's advice from.
+type PatternInfo struct {
+	Name, Title, Severity, Advice string
+}
+
 // Collector is a prometheus.Collector over snapshots.
 type Collector struct {
 	snapshot func() Snapshot
@@ -136,6 +143,7 @@ var (
 	descRunning   = prometheus.NewDesc(ns+"_jobs_running", "Running jobs, by their highest live-window level.", []string{"level"}, nil)
 	descCutBytes  = prometheus.NewDesc(ns+"_cut_point_bytes_per_second", "Per-node cut point in force for a byte metric; source is learned (baseline) or seed (configured).", []string{"metric", "level", "source"}, nil)
 	descCutOps    = prometheus.NewDesc(ns+"_cut_point_operations_per_second", "Per-node cut point in force for an operation metric; source is learned (baseline) or seed (configured).", []string{"metric", "level", "source"}, nil)
+	descPatInfo   = prometheus.NewDesc(ns+"_pattern_info", "One series per pattern in force, always 1; its labels carry the title, severity and advice that alert annotations quote.", []string{"pattern", "title", "severity", "advice"}, nil)
 	descBaseWin   = prometheus.NewDesc(ns+"_baseline_windows", "Non-idle job-windows inside the baseline horizon, per metric.", []string{"metric"}, nil)
 	descBaseIdle  = prometheus.NewDesc(ns+"_baseline_idle_windows", "Idle job-windows inside the baseline horizon, per metric (left out of the quantiles).", []string{"metric"}, nil)
 	descBaseDays  = prometheus.NewDesc(ns+"_baseline_day_sketches", "Days inside the baseline horizon that hold windows (one sketch set per day).", nil, nil)
@@ -164,7 +172,7 @@ var (
 	descSrcInst      = prometheus.NewDesc(ns+"_agent_source_instances", "Instances of a source found at its last read on the node.", []string{"node", "source"}, nil)
 	descSrcBad       = prometheus.NewDesc(ns+"_agent_source_malformed_lines_total", "Counter lines a source skipped as malformed on the node since its agent started.", []string{"node", "source"}, nil)
 
-	allDescs = []*prometheus.Desc{descAccepted, descRejected, descDupes, descSlow, descStoreErr, descLag, descNodes, descRunning, descCutBytes, descCutOps, descBaseWin, descBaseIdle, descBaseDays, descBaseAge, descBaseBad, descBroker, descJobBytes, descJobOps, descJobLevel, descJobNodes, descFlag, descFlagScore, descFlagSince, descPattern, descDropped,
+	allDescs = []*prometheus.Desc{descAccepted, descRejected, descDupes, descSlow, descStoreErr, descLag, descNodes, descRunning, descCutBytes, descCutOps, descPatInfo, descBaseWin, descBaseIdle, descBaseDays, descBaseAge, descBaseBad, descBroker, descJobBytes, descJobOps, descJobLevel, descJobNodes, descFlag, descFlagScore, descFlagSince, descPattern, descDropped,
 		descAgentSeen, descAgentCPU, descAgentShare, descAgentFleet, descAgentRSS, descAgentQueued, descAgentDropped, descSrcRead, descSrcUp, descSrcInst, descSrcBad}
 )
 
@@ -205,6 +213,9 @@ func (c *Collector) Collect(ch chan<- prometheus.Metric) {
 	gauge(descBroker, boolGauge(s.BrokerConnected))
 	c.collectCuts(s.Cuts, s.Baseline.Sources, gauge)
 	collectBaseline(s, counter, gauge)
+	for _, p := range s.Patterns {
+		gauge(descPatInfo, 1, p.Name, text(p.Title), p.Severity, text(strings.Join(strings.Fields(p.Advice), " ")))
+	}
 	c.collectJobs(s, gauge)
 	collectAgents(s.Agents, ch, counter, gauge)
 }

@@ -75,6 +75,8 @@ func fixed() export.Snapshot {
 	return export.Snapshot{
 		Ingest: in, Jobs: []model.Summary{idle, stream, hushed, storm}, Cuts: level.DefaultCuts(),
 		Watermark: t0, Now: t0.Add(2 * time.Second), Nodes: 70, MaxJobSeries: 100, Agents: agents,
+		Patterns: []export.PatternInfo{{Name: "metadata_storm", Title: "Metadata storm", Severity: "critical",
+			Advice: "Consider contacting the user about one file per task.\n  Follow your site's policy before acting on a job."}},
 		BrokerConnected: true,
 	}
 }
