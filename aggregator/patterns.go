@@ -9,6 +9,7 @@ import (
 	"net/http"
 	neturl "net/url"
 	"os"
+	"slices"
 	"strings"
 	"text/tabwriter"
 	"time"
@@ -220,13 +221,7 @@ func learnExample(name string, job model.Summary, ws []model.Window) (*pattern.P
 	if len(picked) == 0 {
 		return nil, errors.New("every metric was idle in every window: nothing to learn")
 	}
-	for i := range picked { // busiest first, stable by metric order
-		for k := i + 1; k < len(picked); k++ {
-			if picked[k].sum > picked[i].sum {
-				picked[i], picked[k] = picked[k], picked[i]
-			}
-		}
-	}
+	slices.SortStableFunc(picked, func(a, b busy) int { return b.sum - a.sum }) // busiest first
 	picked = picked[:min(5, len(picked))]
 	ex := &pattern.Example{Method: pattern.Sellers}
 	for _, b := range picked {
