@@ -37,15 +37,9 @@ func startService(t *testing.T, edit func(*aggregate.Options)) *aggregate.Servic
 	edit(&opts)
 	svc, err := aggregate.New(opts)
 	require.NoError(t, err)
-	ctx, cancel := context.WithCancel(context.Background())
-	done := make(chan error, 1)
-	go func() { done <- svc.Run(ctx) }()
-	select {
-	case <-svc.Ready():
-	case err := <-done:
-		t.Fatalf("aggregator did not start: %v", err)
-	}
-	t.Cleanup(func() { cancel(); require.NoError(t, <-done) })
+	stop, err := svc.Start()
+	require.NoError(t, err, "aggregator did not start")
+	t.Cleanup(func() { require.NoError(t, stop()) })
 	return svc
 }
 

@@ -113,13 +113,8 @@ func (d *demoRun) run(ctx context.Context, listen string, stderr io.Writer) erro
 	if err != nil {
 		return err
 	}
-	svcCtx, stopSvc := context.WithCancel(context.Background())
-	svcDone := make(chan error, 1)
-	go func() { svcDone <- svc.Run(svcCtx) }()
-	select {
-	case <-svc.Ready():
-	case err := <-svcDone:
-		stopSvc()
+	stopSvc, err := svc.Start()
+	if err != nil {
 		return err
 	}
 	d.url, d.nats = "http://"+svc.HTTPAddr(), svc.NATSURL()
@@ -136,8 +131,7 @@ func (d *demoRun) run(ctx context.Context, listen string, stderr io.Writer) erro
 	}
 	svc.Tick()
 	d.table()
-	stopSvc()
-	err = <-svcDone
+	err = stopSvc()
 	d.printf("demo over; state file was %s", filepath.Join(d.dir, "aggregator.db"))
 	return err
 }

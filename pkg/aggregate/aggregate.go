@@ -160,6 +160,27 @@ func (s *Service) brokerConnected() bool {
 	return nc != nil && nc.IsConnected()
 }
 
+// Start runs the service in the background and returns once it is ready,
+// or with Run's error if it stops before. stop ends it and returns Run's
+// error; it may be called more than once.
+func (s *Service) Start() (stop func() error, err error) {
+	ctx, cancel := context.WithCancel(context.Background())
+	done := make(chan error, 1)
+	go func() { done <- s.Run(ctx) }()
+	select {
+	case <-s.Ready():
+	case err := <-done:
+		cancel()
+		return nil, err
+	}
+	var once sync.Once
+	var runErr error
+	return func() error {
+		once.Do(func() { cancel(); runErr = <-done })
+		return runErr
+	}, nil
+}
+
 // Ready is closed once the service is subscribed and serving HTTP.
 func (s *Service) Ready() <-chan struct{} { return s.ready }
 

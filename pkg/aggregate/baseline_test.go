@@ -2,7 +2,6 @@ package aggregate_test
 
 import (
 	"bytes"
-	"context"
 	"encoding/json"
 	"fmt"
 	"io"
@@ -12,7 +11,6 @@ import (
 	"path/filepath"
 	"slices"
 	"strings"
-	"sync"
 	"testing"
 	"time"
 
@@ -35,16 +33,9 @@ func service(t *testing.T, storePath string, now func() time.Time) (*aggregate.S
 		TickEvery: time.Hour, FlushEvery: time.Hour, RecomputeEvery: time.Hour, Now: now,
 	})
 	require.NoError(t, err)
-	ctx, cancel := context.WithCancel(context.Background())
-	done := make(chan error, 1)
-	go func() { done <- svc.Run(ctx) }()
-	select {
-	case <-svc.Ready():
-	case err := <-done:
-		t.Fatalf("aggregator did not start: %v", err)
-	}
-	var once sync.Once
-	stop := func() { once.Do(func() { cancel(); require.NoError(t, <-done) }) }
+	stopSvc, err := svc.Start()
+	require.NoError(t, err, "aggregator did not start")
+	stop := func() { require.NoError(t, stopSvc()) }
 	t.Cleanup(stop)
 	return svc, stop
 }

@@ -2,7 +2,6 @@ package aggregate_test
 
 import (
 	"bytes"
-	"context"
 	"fmt"
 	"io"
 	"math"
@@ -33,11 +32,9 @@ func BenchmarkIngestThroughBroker(b *testing.B) {
 		Tracker: tracker.Options{Window: time.Minute, Live: 10 * time.Second}, TickEvery: time.Second,
 	})
 	require.NoError(b, err)
-	ctx, cancel := context.WithCancel(context.Background())
-	done := make(chan error, 1)
-	go func() { done <- svc.Run(ctx) }()
-	<-svc.Ready()
-	defer func() { cancel(); <-done }()
+	stop, err := svc.Start()
+	require.NoError(b, err)
+	defer stop()
 
 	const nodes, jobs = 1000, 50
 	subj, _ := bus.NewSubjects("", "")
@@ -96,11 +93,9 @@ func BenchmarkImport(b *testing.B) {
 		TickEvery: time.Hour, FlushEvery: time.Hour, RecomputeEvery: time.Hour,
 	})
 	require.NoError(b, err)
-	ctx, cancel := context.WithCancel(context.Background())
-	done := make(chan error, 1)
-	go func() { done <- svc.Run(ctx) }()
-	<-svc.Ready()
-	defer func() { cancel(); <-done }()
+	stop, err := svc.Start()
+	require.NoError(b, err)
+	defer stop()
 	url := "http://" + svc.HTTPAddr() + "/api/v1/baseline/import"
 	b.ResetTimer()
 	for b.Loop() {

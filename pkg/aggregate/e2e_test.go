@@ -120,22 +120,10 @@ func (r *rig) startService() {
 		Now:     r.clk.now,
 	})
 	require.NoError(r.t, err)
-	ctx, cancel := context.WithCancel(context.Background())
-	done := make(chan error, 1)
-	go func() { done <- svc.Run(ctx) }()
-	select {
-	case <-svc.Ready():
-	case err := <-done:
-		r.t.Fatalf("aggregator did not start: %v", err)
-	}
+	stop, err := svc.Start()
+	require.NoError(r.t, err, "aggregator did not start")
 	r.svc = svc
-	var once sync.Once
-	r.stop = func() {
-		once.Do(func() {
-			cancel()
-			require.NoError(r.t, <-done)
-		})
-	}
+	r.stop = func() { require.NoError(r.t, stop()) }
 	r.t.Cleanup(r.stop)
 }
 
