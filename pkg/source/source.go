@@ -70,3 +70,24 @@ type Summer interface {
 	Source
 	SumWith(row map[string]metric.ID)
 }
+
+// Slot is where one raw counter goes when a source sums its own (see
+// Summer): a metric, or nowhere when the mapping row has no entry for it.
+type Slot struct {
+	ID metric.ID
+	OK bool
+}
+
+// SlotOf looks counter name up in a mapping row.
+func SlotOf(row map[string]metric.ID, name string) Slot {
+	id, ok := row[name]
+	return Slot{id, ok}
+}
+
+// Add adds v to the reading's sums and marks the metric present.
+func (s Slot) Add(r *Reading, v uint64) {
+	if s.OK {
+		r.Sums[s.ID] += v
+		r.Present.Add(s.ID)
+	}
+}

@@ -12,22 +12,16 @@ import (
 func (s *Source) SumWith(row map[string]metric.ID) {
 	var p plan
 	for i, name := range counterNames {
-		p[i].id, p[i].ok = row[name]
+		p[i] = source.SlotOf(row, name)
 	}
 	s.plan = &p
 }
 
 // plan is the metric, if any, of each counter in counterNames order.
-type plan [nCounters]struct {
-	id metric.ID
-	ok bool
-}
+type plan [nCounters]source.Slot
 
 func (p *plan) sum(totals [nCounters]uint64, r *source.Reading) {
 	for i, v := range totals {
-		if p[i].ok {
-			r.Sums[p[i].id] += v
-			r.Present.Add(p[i].id)
-		}
+		p[i].Add(r, v)
 	}
 }

@@ -11,16 +11,16 @@ import (
 // reads, by the mapping row of source kind "nfs" (see source.Summer): the
 // same sums as mapping.Table.Apply over Mount.Raw, without building it.
 func (s *Source) SumWith(row map[string]metric.ID) {
-	p := &plan{ops: map[string]slot{}}
+	p := &plan{ops: map[string]source.Slot{}}
 	for i, key := range bytesKeys {
-		p.bytes[i].id, p.bytes[i].ok = row[key]
+		p.bytes[i] = source.SlotOf(row, key)
 	}
 	for i, key := range eventKeys {
-		p.events[i].id, p.events[i].ok = row[key]
+		p.events[i] = source.SlotOf(row, key)
 	}
 	for key, id := range row {
 		if name, ok := strings.CutPrefix(key, "op."); ok {
-			p.ops[name] = slot{id, true}
+			p.ops[name] = source.Slot{ID: id, OK: true}
 		}
 	}
 	s.plan = p
@@ -29,33 +29,21 @@ func (s *Source) SumWith(row map[string]metric.ID) {
 // plan is the metric, if any, of each bytes and events field and of each
 // operation by its name as printed.
 type plan struct {
-	bytes  [NumBytes]slot
-	events [NumEvents]slot
-	ops    map[string]slot
-}
-
-type slot struct {
-	id metric.ID
-	ok bool
-}
-
-func (sl slot) add(r *source.Reading, v uint64) {
-	if sl.ok {
-		r.Sums[sl.id] += v
-		r.Present.Add(sl.id)
-	}
+	bytes  [NumBytes]source.Slot
+	events [NumEvents]source.Slot
+	ops    map[string]source.Slot
 }
 
 func (p *plan) sum(m *Mount, r *source.Reading) {
 	for i, v := range m.Bytes {
-		p.bytes[i].add(r, v)
+		p.bytes[i].Add(r, v)
 	}
 	if m.HasEvents {
 		for i, v := range m.Events {
-			p.events[i].add(r, v)
+			p.events[i].Add(r, v)
 		}
 	}
 	for name, op := range m.Ops {
-		p.ops[name].add(r, op.Ops)
+		p.ops[name].Add(r, op.Ops)
 	}
 }
