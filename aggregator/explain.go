@@ -139,7 +139,7 @@ func explainRule(w io.Writer, r *pattern.Rule, j model.Summary, ws []model.Windo
 	views := make([]pattern.WindowView, 0, len(last)+1)
 	head := []string{}
 	for _, win := range last {
-		views = append(views, viewOf(win))
+		views = append(views, pattern.ViewOf(&win))
 		head = append(head, fmt.Sprintf("w%d", win.Index))
 	}
 	if j.State == "running" {
@@ -196,10 +196,6 @@ func value(c pattern.Condition, v pattern.WindowView) string {
 }
 
 func short(l level.Level) string { return l.String()[:4] }
-
-func viewOf(w model.Window) pattern.WindowView {
-	return pattern.WindowView{Levels: w.Levels, Grades: w.Grades, Rates: w.Rates, Nodes: w.Nodes, BusiestShare: w.BusiestShare, NodeSpread: w.NodeSpread}
-}
 
 func printSignature(w io.Writer, j model.Summary) {
 	for _, id := range metric.All() {

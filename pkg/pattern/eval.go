@@ -7,6 +7,7 @@ import (
 
 	"sluice/pkg/level"
 	"sluice/pkg/metric"
+	"sluice/pkg/model"
 	"sluice/pkg/signature"
 )
 
@@ -27,6 +28,14 @@ type WindowView struct {
 	// NodeSpread is the coefficient of variation (standard deviation over
 	// mean) of the per-node data byte rates (model.Window.NodeSpread).
 	NodeSpread float64
+}
+
+// ViewOf is how a rule sees a closed window.
+func ViewOf(w *model.Window) WindowView {
+	return WindowView{
+		Levels: w.Levels, Grades: w.Grades, Rates: w.Rates, Nodes: w.Nodes,
+		BusiestShare: w.BusiestShare, NodeSpread: w.NodeSpread,
+	}
 }
 
 // Quantity is a derived quantity: a number computed from a window's rates

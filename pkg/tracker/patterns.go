@@ -33,14 +33,7 @@ func (t *Tracker) Replay(job string, windows []model.Window) {
 	}
 	j.match = t.opts.Patterns.NewJob()
 	for i := range windows {
-		j.match.Window(viewOf(&windows[i]))
-	}
-}
-
-func viewOf(w *model.Window) pattern.WindowView {
-	return pattern.WindowView{
-		Levels: w.Levels, Grades: w.Grades, Rates: w.Rates, Nodes: w.Nodes,
-		BusiestShare: w.BusiestShare, NodeSpread: w.NodeSpread,
+		j.match.Window(pattern.ViewOf(&windows[i]))
 	}
 }
 
@@ -54,7 +47,7 @@ func (t *Tracker) matchWindow(j *JobState, w *model.Window) {
 	if j.match == nil {
 		j.match = lib.NewJob()
 	}
-	v := viewOf(w)
+	v := pattern.ViewOf(w)
 	for i, sc := range j.match.Window(v) {
 		t.stepPattern(j, lib.Patterns()[i], sc, v, w.End, true)
 	}
@@ -213,19 +206,8 @@ func (t *Tracker) provisional(j *JobState) (low, high pattern.WindowView, ok boo
 	}
 	start := j.Meta.Start.Add(time.Duration(idx) * t.opts.Window)
 	hw := t.windowOf(j.Meta.ID, idx, start, start.Add(t.opts.Window), ow)
-	high = viewOf(&hw)
-	inv := 1 / t.opts.Window.Seconds()
-	var sum metric.Rates
-	var bal balance
-	for a := range ow.accums() {
-		for i, x := range a.Values {
-			sum[i] += float64(x) * inv
-		}
-		bal.add(float64(a.Values[metric.ReadBytes]+a.Values[metric.WriteBytes]) * inv)
-	}
-	for i := range sum {
-		sum[i] /= float64(len(ow.Nodes))
-	}
+	high = pattern.ViewOf(&hw)
+	sum, bal := meanOver(ow, t.opts.Window.Seconds())
 	low = pattern.WindowView{Rates: sum, Nodes: len(ow.Nodes)}
 	low.Levels, low.Grades = t.coding.code(sum)
 	low.BusiestShare, low.NodeSpread = bal.result()

@@ -157,13 +157,29 @@ func (t *Tracker) anyClosable(j *JobState, now time.Time) bool {
 
 func (t *Tracker) windowOf(job string, idx int, start, end time.Time, ow *OpenWindow) model.Window {
 	w := model.Window{Job: job, Index: idx, Start: start, End: end, Nodes: len(ow.Nodes)}
+	var bal balance
+	w.Rates, bal = meanOver(ow, 0)
+	w.Levels, w.Grades = t.coding.code(w.Rates)
+	w.BusiestShare, w.NodeSpread = bal.result()
+	return w
+}
+
+// meanOver is the mean over the window's nodes of each node's counts
+// divided by its own seconds (over 0) or by over seconds, and the balance
+// of their data byte rates, in one pass: a wide job has thousands of
+// nodes. A node covering no time is left out.
+func meanOver(ow *OpenWindow, over float64) (metric.Rates, balance) {
 	var sum metric.Rates
 	var bal balance
-	for a := range ow.accums() { // one pass: a wide job has thousands of nodes
-		if a.Seconds <= 0 {
+	for a := range ow.accums() {
+		secs := a.Seconds
+		if over > 0 {
+			secs = over
+		}
+		if secs <= 0 {
 			continue
 		}
-		inv := 1 / a.Seconds // one division per node, not one per metric
+		inv := 1 / secs // one division per node, not one per metric
 		for i, x := range a.Values {
 			sum[i] += float64(x) * inv
 		}
@@ -174,10 +190,7 @@ func (t *Tracker) windowOf(job string, idx int, start, end time.Time, ow *OpenWi
 			sum[i] /= float64(bal.n)
 		}
 	}
-	w.Rates = sum
-	w.Levels, w.Grades = t.coding.code(w.Rates)
-	w.BusiestShare, w.NodeSpread = bal.result()
-	return w
+	return sum, bal
 }
 
 // balance gathers the nodes' data byte rates for the busiest node's share
