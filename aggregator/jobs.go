@@ -2,7 +2,6 @@ package main
 
 import (
 	"context"
-	"encoding/json"
 	"flag"
 	"fmt"
 	"io"
@@ -37,26 +36,11 @@ func jobs(ctx context.Context, args []string, stdout io.Writer) error {
 }
 
 func fetchJobs(ctx context.Context, base string) ([]model.Summary, error) {
-	ctx, cancel := context.WithTimeout(ctx, 10*time.Second)
-	defer cancel()
-	req, err := http.NewRequestWithContext(ctx, http.MethodGet, strings.TrimRight(base, "/")+"/api/v1/jobs", nil)
-	if err != nil {
-		return nil, err
-	}
-	resp, err := http.DefaultClient.Do(req)
-	if err != nil {
-		return nil, fmt.Errorf("ask the aggregator at %s: %w (is it running? set --url)", base, err)
-	}
-	defer resp.Body.Close()
-	if resp.StatusCode != http.StatusOK {
-		body, _ := io.ReadAll(io.LimitReader(resp.Body, 512))
-		return nil, fmt.Errorf("aggregator at %s answered %s: %s", base, resp.Status, strings.TrimSpace(string(body)))
-	}
 	var out struct {
 		Jobs []model.Summary `json:"jobs"`
 	}
-	if err := json.NewDecoder(resp.Body).Decode(&out); err != nil {
-		return nil, fmt.Errorf("decode jobs from %s: %w", base, err)
+	if err := call(ctx, http.MethodGet, base, "/api/v1/jobs", nil, &out); err != nil {
+		return nil, err
 	}
 	return out.Jobs, nil
 }

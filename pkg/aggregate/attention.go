@@ -1,6 +1,7 @@
 package aggregate
 
 import (
+	"cmp"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -48,16 +49,9 @@ func (r SilenceRequest) silence(now time.Time) (model.Silence, error) {
 		return model.Silence{}, errors.New("say who silences and why (by, why)")
 	}
 	return model.Silence{
-		ID:  fmt.Sprintf("%d-%s-%s", now.UnixNano(), cmpOr(r.Job, "any"), cmpOr(r.Pattern, "any")),
+		ID:  fmt.Sprintf("%d-%s-%s", now.UnixNano(), cmp.Or(r.Job, "any"), cmp.Or(r.Pattern, "any")),
 		Job: r.Job, Pattern: r.Pattern, Until: now.Add(d), By: r.By, Why: r.Why, Created: now,
 	}, nil
-}
-
-func cmpOr(s, def string) string {
-	if s == "" {
-		return def
-	}
-	return s
 }
 
 // attention holds the silences and acknowledgements, guarded by the
