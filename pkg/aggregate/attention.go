@@ -160,12 +160,12 @@ func (s *Service) handleAck(w http.ResponseWriter, r *http.Request) {
 		http.Error(w, "ack: say who acknowledges (by)", http.StatusBadRequest)
 		return
 	}
-	fs, err := s.st.Flags()
+	found, err := s.st.HasFlag(id)
 	if err != nil {
 		http.Error(w, err.Error(), http.StatusInternalServerError)
 		return
 	}
-	if !slices.ContainsFunc(fs, func(f model.Flag) bool { return f.ID == id }) {
+	if !found {
 		http.Error(w, "no such flag: "+id, http.StatusNotFound)
 		return
 	}

@@ -437,6 +437,19 @@ func (s *Store) Silences() ([]model.Silence, error) {
 	return out, nil
 }
 
+// HasFlag reports whether a flag with this id was ever stored.
+func (s *Store) HasFlag(id string) (bool, error) {
+	var found bool
+	err := s.db.View(func(tx *bolt.Tx) error {
+		found = tx.Bucket(bucketFlags).Get([]byte(id)) != nil
+		return nil
+	})
+	if err != nil {
+		return false, fmt.Errorf("store %s: %w", s.path, err)
+	}
+	return found, nil
+}
+
 // PutAck stores an acknowledgement.
 func (s *Store) PutAck(a model.Ack) error {
 	err := s.db.Update(func(tx *bolt.Tx) error { return putJSON(tx.Bucket(bucketAcks), []byte(a.Flag), &a) })
