@@ -5,9 +5,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
-	"io"
 	"io/fs"
-	"math"
 	"os"
 	"path/filepath"
 	"strconv"
@@ -29,6 +27,7 @@ type Source struct {
 	root    string
 	now     func() time.Time
 	br      *bufio.Reader
+	fr      fileReader // br's source, set for each file
 	scratch []Counter
 	plan    *plan // set by SumWith
 
@@ -48,6 +47,8 @@ type mount struct {
 	f        *os.File  // nil until first read, and after a failed one
 	snapshot time.Time // snapshot_time at the last read
 	readAt   time.Time // Source clock at the last read
+	names    []string  // counter names at the last read, by position
+	slots    []slot    // the plan's targets by position (see plan.sum)
 }
 
 // DefaultRescanEvery is how many reads reuse one listing of the root: at
@@ -63,7 +64,7 @@ func NewSource(root string, now func() time.Time) *Source {
 	return &Source{
 		root:        root,
 		now:         now,
-		br:          bufio.NewReaderSize(nil, maxLine),
+		br:          bufio.NewReaderSize(nil, readSize),
 		scratch:     make([]Counter, 0, 40),
 		rescanEvery: DefaultRescanEvery,
 	}
@@ -120,7 +121,7 @@ func (s *Source) Read(ctx context.Context) ([]source.Reading, error) {
 		}
 		r := source.Reading{Key: m.key, Epoch: epoch(st), Time: now, Malformed: st.Malformed}
 		if s.plan != nil {
-			s.plan.sum(st.Counters, &r)
+			m.slots = s.plan.sum(st.Counters, m.slots, &r)
 		} else {
 			r.Counters = st.Raw()
 		}
@@ -198,7 +199,7 @@ func (s *Source) readMount(m *mount, path string, now time.Time) (Stats, error) 
 		}
 		m.f = f
 	}
-	st, err := s.parseFrom(m.f)
+	st, err := s.parseFrom(m)
 	if err != nil {
 		return Stats{}, err
 	}
@@ -211,14 +212,33 @@ func (s *Source) readMount(m *mount, path string, now time.Time) (Stats, error) 
 	return st, nil
 }
 
-// parseFrom parses a stats file from offset 0 with the Source's buffers.
-// The returned Counters alias s.scratch and are valid until the next call.
-func (s *Source) parseFrom(f *os.File) (Stats, error) {
-	s.br.Reset(io.NewSectionReader(f, 0, math.MaxInt64))
-	st, err := parse(s.br, s.scratch)
+// parseFrom parses a mount's stats file from offset 0 with the Source's
+// buffers, and keeps its counter names for the next read. The returned
+// Counters alias s.scratch and are valid until the next call.
+func (s *Source) parseFrom(m *mount) (Stats, error) {
+	s.fr = fileReader{f: m.f}
+	s.br.Reset(&s.fr)
+	st, err := parse(s.br, s.scratch, m.names)
 	s.br.Reset(nil)
 	s.scratch = st.Counters
+	m.names = m.names[:0]
+	for i := range st.Counters {
+		m.names = append(m.names, st.Counters[i].Name)
+	}
 	return st, err
+}
+
+// fileReader reads a file from offset 0 with pread, as io.SectionReader
+// does, but can be set again for the next file without allocating.
+type fileReader struct {
+	f   *os.File
+	off int64
+}
+
+func (r *fileReader) Read(p []byte) (int, error) {
+	n, err := r.f.ReadAt(p, r.off)
+	r.off += int64(n)
+	return n, err
 }
 
 // vanished reports whether err means the stats file went away, as it does

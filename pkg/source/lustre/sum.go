@@ -27,6 +27,9 @@ func (s *Source) SumWith(row map[string]metric.ID) {
 		}
 	}
 	s.plan = p
+	for _, m := range s.mounts {
+		m.slots = nil // the old plan's targets
+	}
 }
 
 // plan says where each counter line goes. One map lookup per line replaces
@@ -46,13 +49,34 @@ type target struct {
 	totalGen         uint64 // read in which total was added
 }
 
+// slot is the target, nil for none, of the counter name at one position
+// of a mount's file.
+type slot struct {
+	name string
+	t    *target
+}
+
 // sum adds each counter as Stats.Raw would give it: a repeated name's later
-// line replaces the count, and its sum when it has one.
-func (p *plan) sum(counters []Counter, r *source.Reading) {
+// line replaces the count, and its sum when it has one. slots are the
+// mount's targets by position from its last read; a counter whose name is
+// the one at its position (usually the same string, so the compare is a
+// pointer check) skips the map lookup. sum returns the slots of this read.
+func (p *plan) sum(counters []Counter, slots []slot, r *source.Reading) []slot {
 	p.gen++
+	slots = slots[:min(len(slots), len(counters))]
 	for i := range counters {
 		c := &counters[i]
-		t := p.targets[c.Name]
+		var t *target
+		if i < len(slots) && slots[i].name == c.Name {
+			t = slots[i].t
+		} else {
+			t = p.targets[c.Name]
+			if i < len(slots) {
+				slots[i] = slot{c.Name, t}
+			} else {
+				slots = append(slots, slot{c.Name, t})
+			}
+		}
 		if t == nil {
 			continue
 		}
@@ -74,4 +98,5 @@ func (p *plan) sum(counters []Counter, r *source.Reading) {
 		r.Present.Add(t.sum)
 		t.totalGen, t.total = p.gen, c.Sum
 	}
+	return slots
 }

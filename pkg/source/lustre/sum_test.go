@@ -45,6 +45,37 @@ func TestSumsEqualMappedCounters(t *testing.T) {
 	}
 }
 
+// TestSumsEqualMappedCountersOverReads rewrites one mount's file with every
+// fixture in turn, forwards and back, and checks each read of one summing
+// source: what it keeps by line position from read to read (names and
+// targets) must never change a sum.
+func TestSumsEqualMappedCountersOverReads(t *testing.T) {
+	t.Parallel()
+	cases, err := os.ReadDir(testdata)
+	require.NoError(t, err)
+	var files [][]byte
+	for _, c := range cases {
+		if data, err := os.ReadFile(filepath.Join(testdata, c.Name(), "stats")); err == nil {
+			files = append(files, data)
+		}
+	}
+	require.Greater(t, len(files), 3)
+	for i := len(files) - 1; i >= 0; i-- {
+		files = append(files, files[i])
+	}
+	root := t.TempDir()
+	path := filepath.Join(root, "scratch-ffff9a0c12345000", "stats")
+	write(t, path, files[0])
+	table := mapping.Default()
+	plain, summing := lustre.NewSource(root, nowFunc), lustre.NewSource(root, nowFunc)
+	summing.SumWith(table["lustre"])
+	for i, data := range files {
+		write(t, path, data)
+		t.Logf("read %d", i)
+		sourcetest.ReadsMatch(t, table, plain, summing)
+	}
+}
+
 func write(t *testing.T, path string, data []byte) {
 	t.Helper()
 	require.NoError(t, os.MkdirAll(filepath.Dir(path), 0o755))

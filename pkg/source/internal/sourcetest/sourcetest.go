@@ -14,15 +14,25 @@ import (
 	"sluice/pkg/source"
 )
 
-// SumsMatch reads plain (built without a mapping row) and summing (the
-// same files, after SumWith) once each and checks, reading by reading,
-// that Sums equals mapping.Table.Apply over Counters and that Present is
-// the set of metrics of the counters present.
+// SumsMatch gives summing its mapping row (SumWith) and checks one read of
+// each source with ReadsMatch.
 func SumsMatch(t *testing.T, table mapping.Table, plain source.Source, summing source.Summer) {
 	t.Helper()
 	row := table[plain.Name()]
 	require.NotNil(t, row, "no mapping row for %s", plain.Name())
 	summing.SumWith(row)
+	ReadsMatch(t, table, plain, summing)
+}
+
+// ReadsMatch reads plain (built without a mapping row) and summing (the
+// same files, given the table's row before) once each and checks, reading
+// by reading, that Sums equals mapping.Table.Apply over Counters and that
+// Present is the set of metrics of the counters present. Calling it after
+// each change of the files checks what a summing source keeps between
+// reads.
+func ReadsMatch(t *testing.T, table mapping.Table, plain source.Source, summing source.Summer) {
+	t.Helper()
+	row := table[plain.Name()]
 	ctx := context.Background()
 	want, errPlain := plain.Read(ctx)
 	got, errSum := summing.Read(ctx)
