@@ -36,8 +36,11 @@ func FuzzParse(f *testing.F) {
 			}
 			raw := m.Raw()
 			require.LessOrEqual(t, len(raw), nfs.NumBytes+nfs.NumEvents+len(m.Ops))
-			for name := range m.Ops {
-				require.NotEmpty(t, name)
+			names := map[string]bool{}
+			for _, op := range m.Ops {
+				require.NotEmpty(t, op.Name)
+				require.False(t, names[op.Name], "per-op name %q is listed once", op.Name)
+				names[op.Name] = true
 			}
 		}
 		require.LessOrEqual(t, perMount, st.Malformed)

@@ -3,7 +3,9 @@ package nfs_test
 import (
 	"os"
 	"path/filepath"
+	"slices"
 	"sort"
+	"strings"
 	"testing"
 
 	"github.com/stretchr/testify/require"
@@ -51,8 +53,8 @@ func allCases(t testing.TB) []string {
 // opNames returns the sorted per-op names of m.
 func opNames(m nfs.Mount) []string {
 	names := make([]string, 0, len(m.Ops))
-	for n := range m.Ops {
-		names = append(names, n)
+	for _, op := range m.Ops {
+		names = append(names, op.Name)
 	}
 	sort.Strings(names)
 	return names
@@ -82,4 +84,27 @@ var (
 func sorted(s ...string) []string {
 	sort.Strings(s)
 	return s
+}
+
+// opsOf turns a table's per-op lines into Mount.Ops, sorted by name: the
+// tables compare them with opMap, in any order.
+func opsOf(m map[string]nfs.OpStats) []nfs.Op {
+	ops := make([]nfs.Op, 0, len(m))
+	for name, v := range m {
+		ops = append(ops, nfs.Op{Name: name, OpStats: v})
+	}
+	slices.SortFunc(ops, func(a, b nfs.Op) int { return strings.Compare(a.Name, b.Name) })
+	return ops
+}
+
+// opMap indexes per-op lines by name; nil for none.
+func opMap(ops []nfs.Op) map[string]nfs.OpStats {
+	if len(ops) == 0 {
+		return nil
+	}
+	m := make(map[string]nfs.OpStats, len(ops))
+	for _, op := range ops {
+		m[op.Name] = op.OpStats
+	}
+	return m
 }

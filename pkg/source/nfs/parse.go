@@ -33,6 +33,13 @@ type OpStats struct {
 	Errors uint64
 }
 
+// Op is one per-op line: the RPC procedure name as printed ("READ",
+// "GETATTR", ...) and its numbers.
+type Op struct {
+	Name string
+	OpStats
+}
+
 // Mount is one NFS mount of a mountstats file: its header line, printed by
 // show_vfsstat in fs/proc_namespace.c, and its tab-indented body, printed
 // by nfs_show_stats in fs/nfs/super.c and rpc_clnt_show_stats in
@@ -60,9 +67,10 @@ type Mount struct {
 	Events [NumEvents]uint64
 	// HasEvents reports whether a usable "events:" line (27 numbers) was read.
 	HasEvents bool
-	// Ops maps an RPC procedure name as printed ("READ", "GETATTR", ...) to
-	// its per-op line. A name that appears twice keeps its last line.
-	Ops map[string]OpStats
+	// Ops holds the per-op lines in file order (the kernel's procedure
+	// table order). A name that appears twice keeps the place of its first
+	// line and the numbers of its last.
+	Ops []Op
 	// Transports counts the "xprt:" lines: one per transport, so several
 	// with the nconnect mount option.
 	Transports int
@@ -73,6 +81,16 @@ type Mount struct {
 	Partial bool
 	// Malformed counts the lines of this mount that were skipped.
 	Malformed int
+}
+
+// Op returns the per-op line of the procedure called name.
+func (m *Mount) Op(name string) (OpStats, bool) {
+	for i := range m.Ops {
+		if m.Ops[i].Name == name {
+			return m.Ops[i].OpStats, true
+		}
+	}
+	return OpStats{}, false
 }
 
 // Stats is one parsed mountstats file (/proc/self/mountstats, or
@@ -123,12 +141,20 @@ type parser struct {
 	tok     [maxTokens + 1][]byte
 	unesc   []byte
 	numbers [NumEvents]uint64
+
+	// prev is cur's per-op lines from the parse before (the slot's), and
+	// sameOps whether cur's lines so far have had prev's names in prev's
+	// order: while they do, a line's name is unique in cur and interned
+	// already. After the first difference, seen indexes cur's names.
+	prev    []Op
+	sameOps bool
+	seen    map[string]int
 }
 
 // parse fills st from data. It reuses st.Mounts' backing array, the Ops
 // maps in it and any string that did not change since the last parse.
 func (p *parser) parse(data []byte, st *Stats) {
-	*p = parser{unesc: p.unesc[:0]}
+	*p = parser{unesc: p.unesc[:0], seen: p.seen}
 	p.st = st
 	st.Mounts = st.Mounts[:0]
 	st.Malformed = 0
@@ -147,6 +173,9 @@ func (p *parser) parse(data []byte, st *Stats) {
 
 // line handles one line, newline removed.
 func (p *parser) line(line []byte) {
+	if p.inOps && p.opLine(line) {
+		return
+	}
 	n := fields.Split(line, p.tok[:])
 	if n == 0 {
 		return // blank: the kernel ends every mount with one
@@ -164,9 +193,7 @@ func (p *parser) line(line []byte) {
 	}
 	m := p.cur
 	if p.inOps {
-		if !p.op(t, n) {
-			p.bad()
-		}
+		p.bad() // not a per-op line: opLine would have taken it
 		return
 	}
 	key := t[0]
@@ -254,6 +281,8 @@ func (p *parser) header(t [][]byte) {
 	}
 	p.inOther = false
 	m := p.st.newMount()
+	p.prev, p.sameOps = m.Ops, true
+	m.Ops = m.Ops[:0]
 	m.FSType = fstype
 	p.setEscaped(&m.Device, dev)
 	p.setEscaped(&m.MountPoint, t[2])
@@ -275,14 +304,13 @@ func (p *parser) endMount() {
 }
 
 // newMount appends a zeroed mount to st and returns it. A slot left from an
-// earlier parse keeps its Ops map (cleared) and strings, which header
-// overwrites only if they changed.
+// earlier parse keeps its Ops (for header to compare with and reuse) and
+// strings, which header overwrites only if they changed.
 func (st *Stats) newMount() *Mount {
 	n := len(st.Mounts)
 	if n < cap(st.Mounts) {
 		st.Mounts = st.Mounts[:n+1]
 		m := &st.Mounts[n]
-		clear(m.Ops)
 		*m = Mount{
 			Device: m.Device, MountPoint: m.MountPoint, StatVersion: m.StatVersion,
 			Opts: m.Opts, Ops: m.Ops,
@@ -293,28 +321,85 @@ func (st *Stats) newMount() *Mount {
 	return &st.Mounts[n]
 }
 
-// op parses a per-op line: "<NAME>:" and 8 or 9 numbers.
-func (p *parser) op(t [][]byte, n int) bool {
-	name := t[0]
-	if len(name) < 2 || name[len(name)-1] != ':' || (n != 9 && n != 10) {
+// opLine handles a line of the per-op section, "<NAME>:" and 8 or 9
+// numbers, splitting it only after its name. It returns false for a line
+// that is not one, blank or a header, for line to handle.
+func (p *parser) opLine(line []byte) bool {
+	name, rest := fields.First(line)
+	if name == nil || string(name) == "device" || string(name) == "no" {
 		return false
 	}
-	var v [9]uint64
-	for i, b := range t[1:n] {
+	if len(name) < 2 || name[len(name)-1] != ':' {
+		p.bad()
+		return true
+	}
+	var v OpStats
+	// Most procedures of a mount are never called: their lines are all
+	// zeros, printed the same way every time.
+	if string(rest) != zeroOps9 && string(rest) != zeroOps8 {
 		var ok bool
-		if v[i], ok = fields.ParseUint(b); !ok {
-			return false
+		if v, ok = p.opStats(rest); !ok {
+			p.bad()
+			return true
 		}
 	}
-	m := p.cur
-	if m.Ops == nil {
-		m.Ops = make(map[string]OpStats, 32)
+	p.addOp(name[:len(name)-1], v)
+	return true
+}
+
+// zeroOps9 and zeroOps8 are the numbers of a per-op line of a procedure not
+// called yet, as _print_rpc_iostats prints them with and without errors.
+const (
+	zeroOps9 = " 0 0 0 0 0 0 0 0 0"
+	zeroOps8 = " 0 0 0 0 0 0 0 0"
+)
+
+// opStats parses the 8 or 9 numbers of a per-op line.
+func (p *parser) opStats(rest []byte) (OpStats, bool) {
+	t := p.tok[:10] // one more than 9, to tell a line that has too many
+	n := fields.Split(rest, t)
+	if n != 8 && n != 9 {
+		return OpStats{}, false
 	}
-	m.Ops[internOp(name[:len(name)-1])] = OpStats{
+	var v [9]uint64
+	for i, b := range t[:n] {
+		var ok bool
+		if v[i], ok = fields.ParseUint(b); !ok {
+			return OpStats{}, false
+		}
+	}
+	return OpStats{
 		Ops: v[0], Trans: v[1], MajorTimeouts: v[2], BytesSent: v[3], BytesRecv: v[4],
 		QueueMs: v[5], RTTMs: v[6], ExecMs: v[7], Errors: v[8],
+	}, true
+}
+
+// addOp adds a per-op line to cur, or replaces the numbers of an earlier
+// line of the same name.
+func (p *parser) addOp(name []byte, v OpStats) {
+	m := p.cur
+	i := len(m.Ops)
+	if p.sameOps && i < len(p.prev) && p.prev[i].Name == string(name) {
+		m.Ops = append(m.Ops, Op{Name: p.prev[i].Name, OpStats: v})
+		return
 	}
-	return true
+	if p.sameOps { // the first difference: index what came before it
+		p.sameOps = false
+		if p.seen == nil {
+			p.seen = make(map[string]int, 64)
+		}
+		clear(p.seen)
+		for j := range m.Ops {
+			p.seen[m.Ops[j].Name] = j
+		}
+	}
+	if j, ok := p.seen[string(name)]; ok {
+		m.Ops[j].OpStats = v
+		return
+	}
+	s := internOp(name)
+	p.seen[s] = i
+	m.Ops = append(m.Ops, Op{Name: s, OpStats: v})
 }
 
 // numbersInto parses the n-1 numbers after t[0] into dst, which they must

@@ -46,10 +46,10 @@ func sharedProj(mountPoint string) wantMount {
 			Opts: optsV42, Age: 86400, Transports: 1, HasEvents: true,
 			Bytes:  [8]uint64{42438068, 21607583, 4194304, 0, 46640564, 21607583, 10361, 5276},
 			Events: [27]uint64{620, 4242, 11, 65, 545, 479, 992, 217, 0, 61, 0, 131, 42, 16, 330, 27, 18, 574, 0, 3, 38, 1, 0, 0, 0, 0, 0},
-			Ops: map[string]nfs.OpStats{
+			Ops: opsOf(map[string]nfs.OpStats{
 				"READ":  {Ops: 346, Trans: 346, BytesSent: 52592, BytesRecv: 90771716, QueueMs: 18, RTTMs: 346, ExecMs: 392},
 				"WRITE": {Ops: 333, Trans: 335, BytesSent: 43712244, BytesRecv: 56610, QueueMs: 11, RTTMs: 333, ExecMs: 377},
-			},
+			}),
 		},
 		ops: v4Ops,
 	}
@@ -62,7 +62,7 @@ func homeV3(age uint64, bytes [8]uint64, events [27]uint64, getattr nfs.OpStats)
 		mount: nfs.Mount{
 			Device: "fs02:/export/home", MountPoint: "/home", FSType: "nfs", StatVersion: "1.1",
 			Opts: optsV3, Age: age, Transports: 1, HasEvents: true, Bytes: bytes, Events: events,
-			Ops: map[string]nfs.OpStats{"GETATTR": getattr},
+			Ops: opsOf(map[string]nfs.OpStats{"GETATTR": getattr}),
 		},
 		ops: v3Ops,
 	}
@@ -74,7 +74,7 @@ func scratchV42(age uint64, bytes [8]uint64, events [27]uint64, read nfs.OpStats
 		mount: nfs.Mount{
 			Device: "fs01:/export/scratch", MountPoint: "/scratch", FSType: "nfs4", StatVersion: "1.1",
 			Opts: optsV42, Age: age, Transports: 1, HasEvents: true, Bytes: bytes, Events: events,
-			Ops: map[string]nfs.OpStats{"READ": read},
+			Ops: opsOf(map[string]nfs.OpStats{"READ": read}),
 		},
 		ops: v4Ops,
 	}
@@ -98,10 +98,10 @@ func TestParseFixtures(t *testing.T) {
 					Opts: optsExample, Age: 86400, Transports: 1, HasEvents: true,
 					Bytes:  [8]uint64{1048576, 2097152, 0, 0, 1048576, 2097152, 256, 512},
 					Events: [27]uint64{100, 200, 3, 4, 50, 60, 70, 80, 0, 9, 0, 8, 5, 2, 7, 1, 0, 50, 0, 0, 3, 0, 0, 0, 0, 0, 0},
-					Ops: map[string]nfs.OpStats{
+					Ops: opsOf(map[string]nfs.OpStats{
 						"NULL": {Ops: 1, Trans: 1, BytesSent: 44, BytesRecv: 24},
 						"READ": {Ops: 256, Trans: 256, BytesSent: 46080, BytesRecv: 1081344, QueueMs: 10, RTTMs: 900, ExecMs: 950},
-					},
+					}),
 				},
 				ops: []string{"NULL", "READ"},
 			}}},
@@ -116,10 +116,10 @@ func TestParseFixtures(t *testing.T) {
 					Opts: optsV3, Age: 3024000, Transports: 1, HasEvents: true,
 					Bytes:  [8]uint64{42442087, 21245036, 4194304, 0, 46644583, 21245036, 10362, 5187},
 					Events: [27]uint64{621, 5427, 18, 48, 489, 709, 1385, 360, 0, 97, 0, 88, 44, 12, 540, 28, 18, 419, 0, 2, 52, 1, 0, 0, 0, 0, 0},
-					Ops: map[string]nfs.OpStats{
+					Ops: opsOf(map[string]nfs.OpStats{
 						"READ":   {Ops: 542, Trans: 544, BytesSent: 131164, BytesRecv: 142189906, QueueMs: 45, RTTMs: 1084, ExecMs: 1179},
 						"LOOKUP": {Ops: 518, Trans: 520, BytesSent: 87542, BytesRecv: 120694, QueueMs: 24, RTTMs: 1554, ExecMs: 1579, Errors: 2},
-					},
+					}),
 				},
 				ops: v3Ops,
 			}}},
@@ -142,9 +142,9 @@ func TestParseFixtures(t *testing.T) {
 						Opts: optsV41, Age: 86400, Transports: 1, HasEvents: true,
 						Bytes:  [8]uint64{42478747, 21723423, 4194304, 0, 46681243, 21723423, 10371, 5304},
 						Events: [27]uint64{818, 4046, 15, 73, 314, 638, 1694, 263, 0, 101, 0, 86, 30, 13, 490, 35, 13, 494, 0, 2, 48, 1, 0, 0, 0, 0, 0},
-						Ops: map[string]nfs.OpStats{
+						Ops: opsOf(map[string]nfs.OpStats{
 							"GETATTR": {Ops: 1462, Trans: 1463, BytesSent: 286552, BytesRecv: 286552, QueueMs: 2, RTTMs: 2924, ExecMs: 2949},
-						},
+						}),
 					},
 					ops: v4Ops,
 				},
@@ -154,9 +154,9 @@ func TestParseFixtures(t *testing.T) {
 						Opts: optsV3, Age: 3024000, Transports: 1, HasEvents: true,
 						Bytes:  [8]uint64{42112006, 21988711, 4194304, 0, 46314502, 21988711, 10282, 5369},
 						Events: [27]uint64{906, 5350, 11, 71, 433, 418, 900, 237, 0, 102, 0, 155, 40, 23, 491, 30, 10, 439, 0, 3, 55, 1, 0, 0, 0, 0, 0},
-						Ops: map[string]nfs.OpStats{
+						Ops: opsOf(map[string]nfs.OpStats{
 							"WRITE": {Ops: 274, Trans: 274, BytesSent: 35956198, BytesRecv: 41374, QueueMs: 26, RTTMs: 822, ExecMs: 871},
-						},
+						}),
 					},
 					ops: v3Ops,
 				},
@@ -172,10 +172,10 @@ func TestParseFixtures(t *testing.T) {
 					Opts: optsV3, Age: 7776000, Transports: 1, HasEvents: true,
 					Bytes:  [8]uint64{42622166, 21287873, 4194304, 0, 46824662, 21287873, 10406, 5198},
 					Events: [27]uint64{665, 3617, 16, 43, 337, 674, 996, 293, 0, 97, 0, 87, 41, 15, 319, 22, 16, 514, 0, 2, 37, 1, 0, 0, 0, 0, 0},
-					Ops: map[string]nfs.OpStats{
+					Ops: opsOf(map[string]nfs.OpStats{
 						"NULL": {Ops: 1, Trans: 1, BytesSent: 169, BytesRecv: 201, RTTMs: 1, ExecMs: 1},
 						"READ": {Ops: 585, Trans: 585, BytesSent: 109395, BytesRecv: 153475335, QueueMs: 9, RTTMs: 1755, ExecMs: 1779},
-					},
+					}),
 				},
 				ops: v3Ops,
 			}}},
@@ -190,9 +190,9 @@ func TestParseFixtures(t *testing.T) {
 					Opts: optsV42, Age: 43200, Transports: 1, HasEvents: true,
 					Bytes:  [8]uint64{42418476, 21748329, 4194304, 0, 46620972, 21748329, 10357, 5310},
 					Events: [27]uint64{616, 4517, 16, 48, 398, 760, 944, 221, 0, 68, 0, 111, 41, 15, 505, 20, 17, 549, 0, 3, 42, 1, 0, 0, 0, 0, 0},
-					Ops: map[string]nfs.OpStats{
+					Ops: opsOf(map[string]nfs.OpStats{
 						"NULL": {Ops: 1, Trans: 1, BytesSent: 197, BytesRecv: 196, RTTMs: 1, ExecMs: 1},
-					},
+					}),
 				},
 				ops: v4Ops,
 			}}},
@@ -209,9 +209,9 @@ func TestParseFixtures(t *testing.T) {
 					Transports: 4, HasEvents: true,
 					Bytes:  [8]uint64{42914036, 21754411, 4194304, 0, 47116532, 21754411, 10478, 5312},
 					Events: [27]uint64{737, 5511, 15, 57, 370, 495, 1787, 373, 0, 60, 0, 123, 41, 19, 341, 30, 18, 320, 0, 3, 35, 1, 0, 0, 0, 0, 0},
-					Ops: map[string]nfs.OpStats{
+					Ops: opsOf(map[string]nfs.OpStats{
 						"LOOKUP": {Ops: 758, Trans: 760, BytesSent: 127344, BytesRecv: 109152, QueueMs: 5, RTTMs: 758, ExecMs: 832, Errors: 2},
-					},
+					}),
 				},
 				ops: v4Ops,
 			}}},
@@ -228,11 +228,11 @@ func TestParseFixtures(t *testing.T) {
 							Device: "fs01:/export/proj", MountPoint: "/proj", FSType: "nfs4", StatVersion: "1.1",
 							Opts: optsExample, Age: 86400, Transports: 1, Malformed: 9,
 							Bytes: [8]uint64{1048576, 2097152, 0, 0, 1048576, 2097152, 256, 512},
-							Ops: map[string]nfs.OpStats{
+							Ops: opsOf(map[string]nfs.OpStats{
 								"NULL":   {Ops: 1, Trans: 1, BytesSent: 44, BytesRecv: 24},
 								"READ":   {Ops: 256, Trans: 256, BytesSent: 46080, BytesRecv: 1081344, QueueMs: 10, RTTMs: 900, ExecMs: 950},
 								"LOOKUP": {Ops: 30, Trans: 30, BytesSent: 5400, BytesRecv: 7200, RTTMs: 33, ExecMs: 35, Errors: 2},
-							},
+							}),
 						},
 						ops: []string{"LOOKUP", "NULL", "READ"},
 					},
@@ -242,7 +242,7 @@ func TestParseFixtures(t *testing.T) {
 							Opts: strings.Replace(optsV3, "acregmin=3,acregmax=60,acdirmin=30,acdirmax=60,", "", 1),
 							Age:  3024000, Transports: 1, HasEvents: true, Partial: true, Malformed: 1,
 							Events: [27]uint64{10, 20, 0, 0, 5, 6, 7, 0, 0, 1, 0, 1, 0, 0, 1, 0, 0, 5},
-							Ops:    map[string]nfs.OpStats{"GETATTR": {Ops: 9, Trans: 9, BytesSent: 1, BytesRecv: 1}},
+							Ops:    opsOf(map[string]nfs.OpStats{"GETATTR": {Ops: 9, Trans: 9, BytesSent: 1, BytesRecv: 1}}),
 						},
 						ops: []string{"GETATTR"},
 					},
@@ -320,15 +320,14 @@ func TestParseFixtures(t *testing.T) {
 				g := got.Mounts[i]
 				require.Equal(t, w.ops, opNames(g), "mount %d per-op names", i)
 				// Compare only the per-op lines the table spells out.
-				checked := maps.Clone(g.Ops)
+				want := opMap(w.mount.Ops)
+				checked := opMap(g.Ops)
 				maps.DeleteFunc(checked, func(name string, _ nfs.OpStats) bool {
-					_, ok := w.mount.Ops[name]
+					_, ok := want[name]
 					return !ok
 				})
-				if len(checked) == 0 {
-					checked = nil
-				}
-				g.Ops = checked
+				require.Equal(t, want, checked, "mount %d per-op lines", i)
+				w.mount.Ops, g.Ops = nil, nil
 				require.Equal(t, w.mount, g, "mount %d (-want +got)", i)
 			}
 		})
@@ -378,14 +377,14 @@ func TestParseInline(t *testing.T) {
 			name:  "spaces instead of tabs, no trailing spaces, no final newline",
 			input: strings.ReplaceAll(strings.ReplaceAll(header+body, "\t", "    "), " \n", "\n") + "  READ: 1 2 3 4 5 6 7 8 9",
 			want: nfs.Stats{Mounts: with(func(m *nfs.Mount) {
-				m.Ops = map[string]nfs.OpStats{"READ": {1, 2, 3, 4, 5, 6, 7, 8, 9}}
+				m.Ops = []nfs.Op{{Name: "READ", OpStats: nfs.OpStats{1, 2, 3, 4, 5, 6, 7, 8, 9}}}
 			})},
 		},
 		{
 			name:  "CRLF line ends",
 			input: strings.ReplaceAll(header+body+"\tREAD: 1 2 3 4 5 6 7 8\n", "\n", "\r\n"),
 			want: nfs.Stats{Mounts: with(func(m *nfs.Mount) {
-				m.Ops = map[string]nfs.OpStats{"READ": {1, 2, 3, 4, 5, 6, 7, 8, 0}}
+				m.Ops = []nfs.Op{{Name: "READ", OpStats: nfs.OpStats{1, 2, 3, 4, 5, 6, 7, 8, 0}}}
 			})},
 		},
 		{
@@ -393,9 +392,9 @@ func TestParseInline(t *testing.T) {
 			name:  "per-op names longer than 12 columns",
 			input: header + body + "SETCLIENTID_CONFIRM: 1 1 0 0 0 0 0 0 0\n\tBIND_CONN_TO_SESSION: 2 2 0 0 0 0 0 0 0\n",
 			want: nfs.Stats{Mounts: with(func(m *nfs.Mount) {
-				m.Ops = map[string]nfs.OpStats{
-					"SETCLIENTID_CONFIRM":  {Ops: 1, Trans: 1},
-					"BIND_CONN_TO_SESSION": {Ops: 2, Trans: 2},
+				m.Ops = []nfs.Op{
+					{Name: "SETCLIENTID_CONFIRM", OpStats: nfs.OpStats{Ops: 1, Trans: 1}},
+					{Name: "BIND_CONN_TO_SESSION", OpStats: nfs.OpStats{Ops: 2, Trans: 2}},
 				}
 			})},
 		},

@@ -93,7 +93,8 @@ func TestAgreesWithProcfs(t *testing.T) {
 
 				require.Len(t, g.Ops, len(rs.Operations))
 				for _, op := range rs.Operations {
-					require.Contains(t, g.Ops, op.Operation)
+					got, ok := g.Op(op.Operation)
+					require.True(t, ok, op.Operation)
 					require.Equal(t, nfs.OpStats{
 						Ops: op.Requests, Trans: op.Transmissions, MajorTimeouts: op.MajorTimeouts,
 						BytesSent: op.BytesSent, BytesRecv: op.BytesReceived,
@@ -101,7 +102,7 @@ func TestAgreesWithProcfs(t *testing.T) {
 						RTTMs:   op.CumulativeTotalResponseMilliseconds,
 						ExecMs:  op.CumulativeTotalRequestMilliseconds,
 						Errors:  op.Errors,
-					}, g.Ops[op.Operation], op.Operation)
+					}, got, op.Operation)
 				}
 			}
 		})

@@ -5,8 +5,8 @@ import (
 	"errors"
 	"fmt"
 	"io/fs"
-	"maps"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 	"time"
@@ -74,6 +74,7 @@ type mountState struct {
 	epoch int64     // the reading's Epoch, a Unix time in seconds
 	text  string    // epoch formatted, kept to save an allocation per read
 	gen   uint64    // the Read that last saw the key
+	slots []opSlot  // the plan's slots of the key's per-op lines (plan.sum)
 }
 
 // NewSource returns a Source reading <procRoot>/self/mountstats (procRoot is
@@ -159,13 +160,13 @@ func (s *Source) Read(ctx context.Context) ([]source.Reading, error) {
 	readings := make([]source.Reading, 0, len(s.kept))
 	for i := range s.kept {
 		k := &s.kept[i]
-		epoch, ok := s.epoch(k.key, k.m.Age, now)
+		st, ok := s.epoch(k.key, k.m.Age, now)
 		if !ok {
 			continue
 		}
-		r := source.Reading{Key: k.key, Epoch: epoch, Time: now, Malformed: k.malformed}
+		r := source.Reading{Key: k.key, Epoch: st.text, Time: now, Malformed: k.malformed}
 		if s.plan != nil {
-			s.plan.sum(k.m, &r)
+			st.slots = s.plan.sum(k.m, st.slots, &r)
 		} else {
 			r.Counters = k.m.Raw()
 		}
@@ -233,7 +234,7 @@ func sameSuperblock(a, b *Mount) bool {
 		return true
 	}
 	return a.Bytes == b.Bytes && a.Events == b.Events && a.HasEvents == b.HasEvents &&
-		maps.Equal(a.Ops, b.Ops)
+		slices.Equal(a.Ops, b.Ops)
 }
 
 // unshared reports whether the mount options include nosharecache.
@@ -253,8 +254,9 @@ func absDiff(a, b uint64) uint64 {
 	return b - a
 }
 
-// epoch returns the Epoch of key's reading for a mount of the given age
-// read at now, and whether to report the reading at all.
+// epoch returns the state of key, whose text is the Epoch of key's reading
+// for a mount of the given age read at now, and whether to report the
+// reading at all.
 //
 // The epoch is the mount's start time, now - age, fixed when the key is
 // first seen, so that jitter between the clock and the kernel's age does
@@ -265,13 +267,13 @@ func absDiff(a, b uint64) uint64 {
 // two superblocks of one device was unmounted), as it has when the age
 // jumps ahead of the clock; its counters are not a delta of the old ones,
 // so the reading is left out once and the agent starts the key afresh.
-func (s *Source) epoch(key string, age uint64, now time.Time) (string, bool) {
+func (s *Source) epoch(key string, age uint64, now time.Time) (*mountState, bool) {
 	start := now.Round(time.Second).Unix() - int64(min(age, 1<<62))
 	st := s.state[key]
 	if st == nil {
 		st = &mountState{age: age, at: now, epoch: start, text: strconv.FormatInt(start, 10), gen: s.gen}
 		s.state[key] = st
-		return st.text, true
+		return st, true
 	}
 	elapsed := max(int64(now.Sub(st.at)/time.Second), 0)
 	report, restart := true, false
@@ -286,7 +288,7 @@ func (s *Source) epoch(key string, age uint64, now time.Time) (string, bool) {
 		st.text = strconv.FormatInt(st.epoch, 10)
 	}
 	st.age, st.at, st.gen = age, now, s.gen
-	return st.text, report
+	return st, report
 }
 
 // load returns the file's current content, as procfile.File.Load does.
@@ -315,8 +317,8 @@ func (m *Mount) Raw() map[string]uint64 {
 			c[eventKeys[i]] = v
 		}
 	}
-	for name, op := range m.Ops {
-		c[opKey(name)] = op.Ops
+	for _, op := range m.Ops {
+		c[opKey(op.Name)] = op.Ops
 	}
 	return c
 }

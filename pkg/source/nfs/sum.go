@@ -24,6 +24,9 @@ func (s *Source) SumWith(row map[string]metric.ID) {
 		}
 	}
 	s.plan = p
+	for _, st := range s.state {
+		st.slots = nil // the old plan's slots
+	}
 }
 
 // plan is the metric, if any, of each bytes and events field and of each
@@ -34,7 +37,19 @@ type plan struct {
 	ops    map[string]source.Slot
 }
 
-func (p *plan) sum(m *Mount, r *source.Reading) {
+// opSlot is the slot of the procedure name at one position of a mount's
+// per-op section.
+type opSlot struct {
+	name string
+	slot source.Slot
+}
+
+// sum adds m's counters. slots are the slots of m's per-op lines by
+// position from the last read; a line whose name is the one at its
+// position (the same string, so the compare is a pointer check) skips the
+// map lookup. sum returns the slots of this read. Ops holds each name once,
+// so no line's count replaces another's.
+func (p *plan) sum(m *Mount, slots []opSlot, r *source.Reading) []opSlot {
 	for i, v := range m.Bytes {
 		p.bytes[i].Add(r, v)
 	}
@@ -43,7 +58,15 @@ func (p *plan) sum(m *Mount, r *source.Reading) {
 			p.events[i].Add(r, v)
 		}
 	}
-	for name, op := range m.Ops {
-		p.ops[name].Add(r, op.Ops)
+	slots = slots[:min(len(slots), len(m.Ops))]
+	for i := range m.Ops {
+		op := &m.Ops[i]
+		if i == len(slots) {
+			slots = append(slots, opSlot{op.Name, p.ops[op.Name]})
+		} else if slots[i].name != op.Name {
+			slots[i] = opSlot{op.Name, p.ops[op.Name]}
+		}
+		slots[i].slot.Add(r, op.Ops)
 	}
+	return slots
 }

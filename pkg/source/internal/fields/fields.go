@@ -31,6 +31,24 @@ func Split(line []byte, tok [][]byte) int {
 	return n
 }
 
+// First returns the first token of line and what follows it, for a caller
+// that decides by the first token whether, or how, to split the rest. tok
+// is nil when line holds no token; rest starts with the separator after tok.
+func First(line []byte) (tok, rest []byte) {
+	i := 0
+	for i < len(line) && IsSpace(line[i]) {
+		i++
+	}
+	j := i
+	for j < len(line) && !IsSpace(line[j]) {
+		j++
+	}
+	if i == j {
+		return nil, nil
+	}
+	return line[i:j], line[j:]
+}
+
 // IsSpace reports whether b separates tokens: space, \t, \n, \v, \f or \r.
 func IsSpace(b byte) bool { return spaces[b] }
 

@@ -49,3 +49,26 @@ func FuzzSplit(f *testing.F) {
 		}
 	})
 }
+
+// FuzzFirst checks that First gives Split's first token, and that the rest
+// splits into Split's other tokens.
+func FuzzFirst(f *testing.F) {
+	f.Add([]byte("\t        READ: 1 2 3 4 5 6 7 8 9"))
+	f.Add([]byte(" \t\r\n"))
+	f.Add([]byte("x"))
+	f.Fuzz(func(t *testing.T, line []byte) {
+		var all [64][]byte
+		n := fields.Split(line, all[:])
+		tok, rest := fields.First(line)
+		if n == 0 {
+			require.Nil(t, tok)
+			require.Nil(t, rest)
+			return
+		}
+		require.Equal(t, string(all[0]), string(tok))
+		require.True(t, len(rest) == 0 || fields.IsSpace(rest[0]), "rest starts with a separator")
+		var others [63][]byte // one fewer, so that both stop at the same token
+		m := fields.Split(rest, others[:])
+		require.Equal(t, strs(all[1:n], n-1), strs(others[:m], m))
+	})
+}
