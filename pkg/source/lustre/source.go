@@ -5,6 +5,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"io"
 	"io/fs"
 	"os"
 	"path/filepath"
@@ -229,16 +230,70 @@ func (s *Source) parseFrom(m *mount) (Stats, error) {
 }
 
 // fileReader reads a file from offset 0 with pread, as io.SectionReader
-// does, but can be set again for the next file without allocating.
+// does, but can be set again for the next file without allocating, and
+// takes a short first read as the whole file when it must be one.
+//
+// A stats file is a seq_file: a read returns records until the file ends,
+// the reader's buffer is full, or the next record does not fit in the
+// seq_file's own buffer, which is at least a page (seq_read_iter in
+// fs/seq_file.c, from memory). Each record here is a line shorter than
+// maxLine, so a first read that stopped short of the reader's buffer with
+// at least maxLine of the smallest page (4 KiB) left over ended with the
+// file, and the read that would return end of file is saved. A regular
+// file (tests, the simulator) returns less than asked only at its end.
 type fileReader struct {
 	f   *os.File
 	off int64
+	eof bool
 }
 
+// minPage is the smallest page size Linux has, and so the smallest
+// seq_file buffer.
+const minPage = 4096
+
 func (r *fileReader) Read(p []byte) (int, error) {
-	n, err := r.f.ReadAt(p, r.off)
+	if len(p) == 0 {
+		return 0, nil
+	}
+	if r.eof {
+		return 0, io.EOF
+	}
+	n, err := pread(r.f, p, r.off)
+	if err != nil {
+		return 0, err
+	}
+	if n == 0 {
+		r.eof = true
+		return 0, io.EOF
+	}
+	r.eof = r.off == 0 && n < len(p) && n+maxLine <= minPage
 	r.off += int64(n)
-	return n, err
+	return n, nil
+}
+
+// pread is one pread(2) on f, retried on EINTR; os.File.ReadAt would read
+// on to fill p.
+func pread(f *os.File, p []byte, off int64) (int, error) {
+	rc, err := f.SyscallConn()
+	if err != nil {
+		return 0, err
+	}
+	var n int
+	var perr error
+	if err := rc.Read(func(fd uintptr) bool {
+		for {
+			n, perr = syscall.Pread(int(fd), p, off)
+			if perr != syscall.EINTR {
+				return true
+			}
+		}
+	}); err != nil {
+		return 0, err
+	}
+	if perr != nil {
+		return 0, &os.PathError{Op: "read", Path: f.Name(), Err: perr}
+	}
+	return n, nil
 }
 
 // vanished reports whether err means the stats file went away, as it does

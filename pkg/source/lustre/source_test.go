@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"context"
 	"errors"
+	"fmt"
 	"os"
 	"path/filepath"
 	"testing"
@@ -237,4 +238,36 @@ func TestSourceCanceled(t *testing.T) {
 	cancel()
 	_, err := lustre.NewSource(filepath.Join(testdata, "tree"), nowFunc).Read(ctx)
 	require.ErrorIs(t, err, context.Canceled)
+}
+
+// TestSourceReadsFilesOfAnySize reads files around the sizes where the
+// Source's reading changes: the short first read taken as the whole file
+// (up to 3 KiB), one page, the 16 KiB read buffer and beyond it, and
+// checks that every counter is read once.
+func TestSourceReadsFilesOfAnySize(t *testing.T) {
+	t.Parallel()
+	for _, n := range []int{1, 40, 50, 64, 70, 90, 250, 300, 600} {
+		t.Run(fmt.Sprint(n), func(t *testing.T) {
+			t.Parallel()
+			st := lustre.Stats{SnapshotTime: fixedNow}
+			for i := range n {
+				st.Counters = append(st.Counters, lustre.Counter{
+					Name: fmt.Sprintf("c%04d", i), Samples: uint64(i + 1), Unit: "reqs"})
+			}
+			var buf bytes.Buffer
+			require.NoError(t, lustre.Write(&buf, st, lustre.FormatV2_16))
+			root := t.TempDir()
+			write(t, filepath.Join(root, "big-ffff9a0c12345000", "stats"), buf.Bytes())
+			t.Logf("%d counters, %d bytes", n, buf.Len())
+			src := lustre.NewSource(root, nil)
+			for range 2 { // the second read goes through the kept descriptor
+				got, err := src.Read(context.Background())
+				require.NoError(t, err)
+				require.Len(t, got, 1)
+				require.Len(t, got[0].Counters, n)
+				require.Zero(t, got[0].Malformed)
+				require.Equal(t, uint64(n), got[0].Counters[fmt.Sprintf("c%04d", n-1)])
+			}
+		})
+	}
 }
