@@ -113,15 +113,16 @@ func Parse(r io.Reader) (Stats, error) {
 }
 
 // parse reads lines from br and appends counters to counters[:0], so that
-// the Source can reuse both the reader's buffer and the slice. names are
-// the counter names of the mount's last read, by position: a line whose
-// name is the one at its position takes that string, which costs a compare
-// where interning costs a map lookup (a mount prints the same counters in
-// the same order until one goes from zero to non-zero). The error is br's,
-// unwrapped.
-func parse(br *bufio.Reader, counters []Counter, names []string) (Stats, error) {
+// the Source can reuse both the reader's buffer and the slice. memo, when
+// not nil, holds the mount's last read: lines equal to their place there
+// are not parsed again, and the read is recorded in it when it succeeds.
+// The error is br's, unwrapped.
+func parse(br *bufio.Reader, counters []Counter, m *memo) (Stats, error) {
 	st := Stats{Counters: counters[:0]}
-	for {
+	if m != nil {
+		m.begin()
+	}
+	for i := 0; ; i++ {
 		line, err := br.ReadSlice('\n')
 		switch {
 		case err == bufio.ErrBufferFull || len(line) > maxLine:
@@ -129,12 +130,20 @@ func parse(br *bufio.Reader, counters []Counter, names []string) (Stats, error) 
 			for err == bufio.ErrBufferFull {
 				_, err = br.ReadSlice('\n')
 			}
+			if m != nil {
+				m.record(nil, nil)
+			}
+		case len(line) > 0 && m != nil:
+			st.parseRemembered(i, line, m)
 		case len(line) > 0:
-			st.parseLine(line, names)
+			st.parseLine(line, nil, 0)
 		}
 		switch err {
 		case nil:
 		case io.EOF:
+			if m != nil {
+				m.commit()
+			}
 			return st, nil
 		default:
 			return st, err
@@ -142,8 +151,27 @@ func parse(br *bufio.Reader, counters []Counter, names []string) (Stats, error) 
 	}
 }
 
-// parseLine adds one line to st. Blank lines are ignored.
-func (st *Stats) parseLine(line []byte, names []string) {
+// parseRemembered adds line number i to st as parseLine does, taking the
+// counter from the memo when the line has not changed, and records it.
+func (st *Stats) parseRemembered(i int, line []byte, m *memo) {
+	if c, ok := m.lookup(i, line); ok {
+		st.Counters = append(st.Counters, *c)
+		m.record(line, c)
+		return
+	}
+	n := len(st.Counters)
+	st.parseLine(line, m, i)
+	if len(st.Counters) > n {
+		m.record(line, &st.Counters[n])
+	} else {
+		m.record(line, nil)
+	}
+}
+
+// parseLine adds one line to st. Blank lines are ignored. A counter whose
+// name is the one at line i of the memo's last read (if m is not nil)
+// takes that string instead of interning it again.
+func (st *Stats) parseLine(line []byte, m *memo, i int) {
 	var tok [maxTokens + 1][]byte // one more, to tell a line that has too many
 	n := fields.Split(line, tok[:])
 	if n == 0 {
@@ -169,8 +197,8 @@ func (st *Stats) parseLine(line []byte, names []string) {
 		st.Malformed++
 		return
 	}
-	if i := len(st.Counters); i < len(names) && names[i] == string(tok[0]) {
-		c.Name = names[i]
+	if name, ok := m.name(i, tok[0]); ok {
+		c.Name = name
 	} else {
 		c.Name = internName(tok[0])
 	}

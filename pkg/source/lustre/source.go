@@ -48,7 +48,7 @@ type mount struct {
 	f        *os.File  // nil until first read, and after a failed one
 	snapshot time.Time // snapshot_time at the last read
 	readAt   time.Time // Source clock at the last read
-	names    []string  // counter names at the last read, by position
+	memo     memo      // the last read's lines (see memo)
 	slots    []slot    // the plan's targets by position (see plan.sum)
 }
 
@@ -214,18 +214,14 @@ func (s *Source) readMount(m *mount, path string, now time.Time) (Stats, error) 
 }
 
 // parseFrom parses a mount's stats file from offset 0 with the Source's
-// buffers, and keeps its counter names for the next read. The returned
-// Counters alias s.scratch and are valid until the next call.
+// buffers and the mount's memo. The returned Counters alias s.scratch and
+// are valid until the next call.
 func (s *Source) parseFrom(m *mount) (Stats, error) {
 	s.fr = fileReader{f: m.f}
 	s.br.Reset(&s.fr)
-	st, err := parse(s.br, s.scratch, m.names)
+	st, err := parse(s.br, s.scratch, &m.memo)
 	s.br.Reset(nil)
 	s.scratch = st.Counters
-	m.names = m.names[:0]
-	for i := range st.Counters {
-		m.names = append(m.names, st.Counters[i].Name)
-	}
 	return st, err
 }
 
