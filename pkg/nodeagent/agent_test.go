@@ -190,8 +190,8 @@ func BenchmarkCollectOneMount(b *testing.B) {
 	state := b.TempDir()
 	// A live stats file has a new snapshot_time at every read; this fixture
 	// does not change, so the source's clock is held still, or the source
-	// would take the file for a replaced one and open it again each time,
-	// a path production never takes.
+	// would look the path up at each read to see whether the file was
+	// replaced, a path production never takes.
 	frozen := func() time.Time { return t0 }
 	a, err := nodeagent.New(nodeagent.Config{
 		Node: "bw001", StateDir: state, Sources: []source.Source{lustre.NewSource(root, frozen)},

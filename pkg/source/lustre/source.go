@@ -43,13 +43,14 @@ type Source struct {
 // mount is one instance directory and its open stats file.
 type mount struct {
 	name     string
-	key      string    // the reading key, "lustre:<name>"
-	path     string    // <root>/<name>/stats
-	f        *os.File  // nil until first read, and after a failed one
-	snapshot time.Time // snapshot_time at the last read
-	readAt   time.Time // Source clock at the last read
-	memo     memo      // the last read's lines (see memo)
-	slots    []slot    // the plan's targets by position (see plan.sum)
+	key      string      // the reading key, "lustre:<name>"
+	path     string      // <root>/<name>/stats
+	f        *os.File    // nil until first read, and after a failed one
+	fi       os.FileInfo // f's identity, to tell a replaced file
+	snapshot time.Time   // snapshot_time at the last read
+	readAt   time.Time   // Source clock at the last read
+	memo     memo        // the last read's lines (see memo)
+	slots    []slot      // the plan's targets by position (see plan.sum)
 }
 
 // DefaultRescanEvery is how many reads reuse one listing of the root: at
@@ -188,14 +189,20 @@ func (m *mount) close() {
 
 // readMount reads a mount's stats file through its open descriptor. A live
 // stats file sums its counters at every read, so its snapshot_time always
-// moves on; one that stands still while the Source's clock moved means the
-// descriptor holds a file that was replaced on disk (as a simulator or a
-// test does), and the path is opened and read again.
+// moves on; one that stands still while the Source's clock moved may be a
+// descriptor of a file that was replaced on disk (as a simulator or a test
+// does). The path is then looked up, and opened and read again if it names
+// another file; if it names the same one, the file simply did not change
+// (a fixture read by agent bench), and the read stands.
 func (s *Source) readMount(m *mount, path string, now time.Time) (Stats, error) {
 	fresh := m.f == nil
 	if fresh {
 		f, err := os.Open(path)
 		if err != nil {
+			return Stats{}, err
+		}
+		if m.fi, err = f.Stat(); err != nil {
+			f.Close()
 			return Stats{}, err
 		}
 		m.f = f
@@ -205,12 +212,18 @@ func (s *Source) readMount(m *mount, path string, now time.Time) (Stats, error) 
 		return Stats{}, err
 	}
 	stale := !fresh && !st.SnapshotTime.IsZero() && st.SnapshotTime.Equal(m.snapshot) && now.After(m.readAt)
-	if stale {
+	if stale && m.replaced(path) {
 		m.close()
 		return s.readMount(m, path, now)
 	}
 	m.snapshot, m.readAt = st.SnapshotTime, now
 	return st, nil
+}
+
+// replaced reports whether path no longer names the file m has open.
+func (m *mount) replaced(path string) bool {
+	fi, err := os.Stat(path)
+	return err != nil || !os.SameFile(fi, m.fi)
 }
 
 // parseFrom parses a mount's stats file from offset 0 with the Source's
