@@ -149,12 +149,18 @@ type parser struct {
 	prev    []Op
 	sameOps bool
 	seen    map[string]int
+
+	// memos are the mount slots' op lines from the parse before, memo
+	// cur's (nil outside a mount): while sameOps holds, a line equal to
+	// its place there takes prev's op unparsed.
+	memos []opMemo
+	memo  *opMemo
 }
 
 // parse fills st from data. It reuses st.Mounts' backing array, the Ops
 // maps in it and any string that did not change since the last parse.
 func (p *parser) parse(data []byte, st *Stats) {
-	*p = parser{unesc: p.unesc[:0], seen: p.seen}
+	*p = parser{unesc: p.unesc[:0], seen: p.seen, memos: p.memos}
 	p.st = st
 	st.Mounts = st.Mounts[:0]
 	st.Malformed = 0
@@ -283,6 +289,12 @@ func (p *parser) header(t [][]byte) {
 	m := p.st.newMount()
 	p.prev, p.sameOps = m.Ops, true
 	m.Ops = m.Ops[:0]
+	slot := len(p.st.Mounts) - 1
+	for len(p.memos) <= slot {
+		p.memos = append(p.memos, opMemo{})
+	}
+	p.memo = &p.memos[slot]
+	p.memo.begin()
 	m.FSType = fstype
 	p.setEscaped(&m.Device, dev)
 	p.setEscaped(&m.MountPoint, t[2])
@@ -298,8 +310,9 @@ func (p *parser) header(t [][]byte) {
 func (p *parser) endMount() {
 	if p.cur != nil {
 		p.cur.Partial = !p.hasAge || !p.hasBytes || !p.inOps
+		p.memo.commit()
 	}
-	p.cur = nil
+	p.cur, p.memo = nil, nil
 	p.hasAge, p.hasBytes, p.inOps, p.inImplID = false, false, false, false
 }
 
@@ -333,6 +346,11 @@ func (p *parser) opLine(line []byte) bool {
 		p.bad()
 		return true
 	}
+	if i := len(p.cur.Ops); p.sameOps && i < len(p.prev) && p.memo.same(i, line) {
+		p.cur.Ops = append(p.cur.Ops, p.prev[i]) // the line it parsed from
+		p.memo.record(line)
+		return true
+	}
 	var v OpStats
 	// Most procedures of a mount are never called: their lines are all
 	// zeros, printed the same way every time.
@@ -343,7 +361,11 @@ func (p *parser) opLine(line []byte) bool {
 			return true
 		}
 	}
-	p.addOp(name[:len(name)-1], v)
+	if p.addOp(name[:len(name)-1], v) {
+		p.memo.record(line)
+	} else {
+		p.memo.spoil()
+	}
 	return true
 }
 
@@ -374,14 +396,14 @@ func (p *parser) opStats(rest []byte) (OpStats, bool) {
 	}, true
 }
 
-// addOp adds a per-op line to cur, or replaces the numbers of an earlier
-// line of the same name.
-func (p *parser) addOp(name []byte, v OpStats) {
+// addOp adds a per-op line to cur and reports true, or replaces the
+// numbers of an earlier line of the same name and reports false.
+func (p *parser) addOp(name []byte, v OpStats) bool {
 	m := p.cur
 	i := len(m.Ops)
 	if p.sameOps && i < len(p.prev) && p.prev[i].Name == string(name) {
 		m.Ops = append(m.Ops, Op{Name: p.prev[i].Name, OpStats: v})
-		return
+		return true
 	}
 	if p.sameOps { // the first difference: index what came before it
 		p.sameOps = false
@@ -395,11 +417,12 @@ func (p *parser) addOp(name []byte, v OpStats) {
 	}
 	if j, ok := p.seen[string(name)]; ok {
 		m.Ops[j].OpStats = v
-		return
+		return false
 	}
 	s := internOp(name)
 	p.seen[s] = i
 	m.Ops = append(m.Ops, Op{Name: s, OpStats: v})
+	return true
 }
 
 // numbersInto parses the n-1 numbers after t[0] into dst, which they must
