@@ -48,3 +48,29 @@ func FuzzParseAfter(f *testing.F) {
 		}
 	})
 }
+
+// FuzzCounterAsPrinted checks the fast path for counter lines as Lustre
+// prints them against splitting: any line must add the same to Stats both
+// ways.
+func FuzzCounterAsPrinted(f *testing.F) {
+	for _, line := range []string{
+		"read_bytes                1200 samples [bytes] 1 4194304 2472242752 6886455976423650\n",
+		"ioctl                     7 samples [reqs]\n",
+		"open 42 samples [usecs] 11 870 19915",
+		"x 1 samples [by tes] 1 2 3\n",
+		"x 1 samples [[]] 1 2 3\n",
+		"x\t1 samples [reqs]\n",
+		"x 1 samples [reqs] 1 2 3 4 5\n",
+		"x 1 samples [reqs] 1 2 18446744073709551615\n",
+		"x 1 samples [reqs] \n",
+		"snapshot_time 1.5 secs.usecs\n",
+	} {
+		f.Add([]byte(line))
+	}
+	f.Fuzz(func(t *testing.T, line []byte) {
+		var fast, split Stats
+		fast.parseLine(line, nil, 0)
+		split.parseLineSplit(line, nil, 0)
+		require.Equal(t, split, fast)
+	})
+}

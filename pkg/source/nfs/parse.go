@@ -376,19 +376,25 @@ const (
 	zeroOps8 = " 0 0 0 0 0 0 0 0"
 )
 
-// opStats parses the 8 or 9 numbers of a per-op line.
+// opStats parses the 8 or 9 numbers of a per-op line: as the kernel
+// prints them (fields.Uints) or, failing that, split the general way.
 func (p *parser) opStats(rest []byte) (OpStats, bool) {
-	t := p.tok[:10] // one more than 9, to tell a line that has too many
-	n := fields.Split(rest, t)
-	if n != 8 && n != 9 {
-		return OpStats{}, false
-	}
 	var v [9]uint64
-	for i, b := range t[:n] {
-		var ok bool
-		if v[i], ok = fields.ParseUint(b); !ok {
+	n, ok := fields.Uints(rest, v[:])
+	if !ok {
+		t := p.tok[:10] // one more than 9, to tell a line that has too many
+		n = fields.Split(rest, t)
+		if n > 9 {
 			return OpStats{}, false
 		}
+		for i, b := range t[:n] {
+			if v[i], ok = fields.ParseUint(b); !ok {
+				return OpStats{}, false
+			}
+		}
+	}
+	if n != 8 && n != 9 {
+		return OpStats{}, false
 	}
 	return OpStats{
 		Ops: v[0], Trans: v[1], MajorTimeouts: v[2], BytesSent: v[3], BytesRecv: v[4],

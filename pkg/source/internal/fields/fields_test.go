@@ -129,3 +129,33 @@ func FuzzParseUint(f *testing.F) {
 		}
 	})
 }
+
+func TestUints(t *testing.T) {
+	t.Parallel()
+	tests := []struct {
+		in   string
+		size int
+		want []uint64 // nil: not accepted
+	}{
+		{in: " 3044 3044 0 575316 563140 7 6088 6215 0", size: 9, want: []uint64{3044, 3044, 0, 575316, 563140, 7, 6088, 6215, 0}},
+		{in: " 1 4194304\n", size: 4, want: []uint64{1, 4194304}},
+		{in: "", size: 1, want: []uint64{}},
+		{in: " 1 2 3", size: 2},                // more than dst holds
+		{in: "  1", size: 2},                   // two spaces
+		{in: " 1 ", size: 2},                   // trailing space
+		{in: "\t1", size: 2},                   // a tab
+		{in: " 1\r\n", size: 2},                // CRLF
+		{in: " -1", size: 2},                   // a sign
+		{in: " 1x", size: 2},                   // not a number
+		{in: " 18446744073709551615", size: 1}, // 20 digits: the general path decides
+		{in: " 9999999999999999999", size: 1, want: []uint64{9999999999999999999}},
+	}
+	for _, tt := range tests {
+		dst := make([]uint64, tt.size)
+		n, ok := fields.Uints([]byte(tt.in), dst)
+		require.Equal(t, tt.want != nil, ok, "%q", tt.in)
+		if ok {
+			require.Equal(t, tt.want, dst[:n], "%q", tt.in)
+		}
+	}
+}

@@ -72,3 +72,37 @@ func FuzzFirst(f *testing.F) {
 		require.Equal(t, strs(all[1:n], n-1), strs(others[:m], m))
 	})
 }
+
+// FuzzUints checks that whatever Uints accepts, Split and ParseUint read to
+// the same numbers, and that it accepts what the kernel prints.
+func FuzzUints(f *testing.F) {
+	f.Add([]byte(" 3044 3044 0 575316 563140 7 6088 6215 0"), uint8(9))
+	f.Add([]byte(" 1 4194304 2472242752 6886455976423650\n"), uint8(4))
+	f.Add([]byte(" 18446744073709551615 1"), uint8(2))
+	f.Add([]byte("  1"), uint8(3))
+	f.Add([]byte(" 1 "), uint8(3))
+	f.Add([]byte(""), uint8(0))
+	f.Fuzz(func(t *testing.T, b []byte, size uint8) {
+		dst := make([]uint64, size%32)
+		n, ok := fields.Uints(b, dst)
+		if !ok {
+			return
+		}
+		var tok [33][]byte
+		m := fields.Split(b, tok[:])
+		require.Equal(t, m, n, "token count")
+		for i := range n {
+			v, ok := fields.ParseUint(tok[i])
+			require.True(t, ok, "token %d %q", i, tok[i])
+			require.Equal(t, v, dst[i], "token %d", i)
+		}
+		// What Uints accepts is " <digits>" repeated and an optional
+		// newline, nothing else.
+		body := strings.TrimSuffix(string(b), "\n")
+		require.NotContains(t, body, "  ")
+		for i, c := range []byte(body) {
+			require.True(t, c == ' ' || c >= '0' && c <= '9', "byte %d %q", i, c)
+		}
+		require.True(t, body == "" || body[0] == ' ')
+	})
+}
