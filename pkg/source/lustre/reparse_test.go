@@ -3,25 +3,19 @@ package lustre
 import (
 	"bufio"
 	"bytes"
-	"os"
 	"path/filepath"
 	"testing"
 
 	"github.com/stretchr/testify/require"
+
+	"sluice/pkg/source/internal/sourcetest"
 )
 
 // FuzzParseAfter checks what the Source keeps from one read of a mount to
 // the next (its memo of lines and names): parsing b after a, and b again,
 // with one memo must give what a fresh Parse of b gives.
 func FuzzParseAfter(f *testing.F) {
-	paths, err := filepath.Glob(filepath.Join("..", "..", "..", "testdata", "lustre", "*", "stats"))
-	require.NoError(f, err)
-	var files [][]byte
-	for _, p := range paths {
-		data, err := os.ReadFile(p)
-		require.NoError(f, err)
-		files = append(files, data)
-	}
+	files := sourcetest.Fixtures(f, filepath.Join("..", "..", "..", "testdata", "lustre", "*", "stats"))
 	for i := range files {
 		f.Add(files[i], files[(i+1)%len(files)])
 	}

@@ -51,18 +51,7 @@ func TestSumsEqualMappedCounters(t *testing.T) {
 // targets) must never change a sum.
 func TestSumsEqualMappedCountersOverReads(t *testing.T) {
 	t.Parallel()
-	cases, err := os.ReadDir(testdata)
-	require.NoError(t, err)
-	var files [][]byte
-	for _, c := range cases {
-		if data, err := os.ReadFile(filepath.Join(testdata, c.Name(), "stats")); err == nil {
-			files = append(files, data)
-		}
-	}
-	require.Greater(t, len(files), 3)
-	for i := len(files) - 1; i >= 0; i-- {
-		files = append(files, files[i])
-	}
+	files := sourcetest.ForthAndBack(sourcetest.Fixtures(t, filepath.Join(testdata, "*", "stats")))
 	root := t.TempDir()
 	path := filepath.Join(root, "scratch-ffff9a0c12345000", "stats")
 	write(t, path, files[0])

@@ -2,25 +2,19 @@ package nfs
 
 import (
 	"bytes"
-	"os"
 	"path/filepath"
 	"testing"
 
 	"github.com/stretchr/testify/require"
+
+	"sluice/pkg/source/internal/sourcetest"
 )
 
 // FuzzParseAfter checks what the Source's parser keeps from one file to
 // the next (each mount slot's per-op names and lines, by position): parsing
 // b after a, and b again, must give what a fresh Parse of b gives.
 func FuzzParseAfter(f *testing.F) {
-	paths, err := filepath.Glob(filepath.Join("..", "..", "..", "testdata", "nfs", "*", "mountstats"))
-	require.NoError(f, err)
-	var files [][]byte
-	for _, p := range paths {
-		data, err := os.ReadFile(p)
-		require.NoError(f, err)
-		files = append(files, data)
-	}
+	files := sourcetest.Fixtures(f, filepath.Join("..", "..", "..", "testdata", "nfs", "*", "mountstats"))
 	for i := range files {
 		f.Add(files[i], files[(i+1)%len(files)])
 		f.Add(files[i], files[i])

@@ -46,18 +46,7 @@ func TestSumsEqualMappedCounters(t *testing.T) {
 // must never change a sum.
 func TestSumsEqualMappedCountersOverReads(t *testing.T) {
 	t.Parallel()
-	cases, err := os.ReadDir(testdata)
-	require.NoError(t, err)
-	var files [][]byte
-	for _, c := range cases {
-		if data, err := os.ReadFile(filepath.Join(testdata, c.Name(), "mountstats")); err == nil {
-			files = append(files, data)
-		}
-	}
-	require.Greater(t, len(files), 3)
-	for i := len(files) - 1; i >= 0; i-- {
-		files = append(files, files[i])
-	}
+	files := sourcetest.ForthAndBack(sourcetest.Fixtures(t, filepath.Join(testdata, "*", "mountstats")))
 	root, path := procRoot(t, files[0])
 	table := mapping.Default()
 	plain, summing := nfs.NewSource(root, nil).WithCheckEvery(1), nfs.NewSource(root, nil).WithCheckEvery(1)

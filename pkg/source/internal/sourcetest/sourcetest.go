@@ -5,6 +5,9 @@ package sourcetest
 
 import (
 	"context"
+	"os"
+	"path/filepath"
+	"slices"
 	"testing"
 
 	"github.com/stretchr/testify/require"
@@ -56,4 +59,30 @@ func ReadsMatch(t *testing.T, table mapping.Table, plain source.Source, summing 
 		require.Equal(t, sums, g.Sums, "sums of %s", w.Key)
 		require.Equal(t, present.IDs(), g.Present.IDs(), "present metrics of %s", w.Key)
 	}
+}
+
+// Fixtures returns the contents of the files matching a glob pattern, in
+// name order, and fails the test when there are none.
+func Fixtures(t testing.TB, pattern string) [][]byte {
+	t.Helper()
+	paths, err := filepath.Glob(pattern)
+	require.NoError(t, err)
+	require.NotEmpty(t, paths, "no fixture matches %s", pattern)
+	files := make([][]byte, 0, len(paths))
+	for _, p := range paths {
+		data, err := os.ReadFile(p)
+		require.NoError(t, err)
+		files = append(files, data)
+	}
+	return files
+}
+
+// ForthAndBack returns files followed by the same files in reverse, a run
+// of reads in which every file follows two different ones.
+func ForthAndBack(files [][]byte) [][]byte {
+	out := slices.Clone(files)
+	for i := len(files) - 1; i >= 0; i-- {
+		out = append(out, files[i])
+	}
+	return out
 }
