@@ -245,11 +245,12 @@ func (s *Source) parseFrom(m *mount) (Stats, error) {
 // A stats file is a seq_file: a read returns records until the file ends,
 // the reader's buffer is full, or the next record does not fit in the
 // seq_file's own buffer, which is at least a page (seq_read_iter in
-// fs/seq_file.c, from memory). Each record here is a line shorter than
-// maxLine, so a first read that stopped short of the reader's buffer with
-// at least maxLine of the smallest page (4 KiB) left over ended with the
-// file, and the read that would return end of file is saved. A regular
-// file (tests, the simulator) returns less than asked only at its end.
+// fs/seq_file.c, from memory). A record here is one counter line (the
+// first also carries the time stamp lines), well under maxLine, so a first
+// read that stopped short of the reader's buffer with at least maxLine of
+// the smallest page (4 KiB) left over ended with the file, and the read
+// that would return end of file is saved. A regular file (tests, the
+// simulator) returns less than asked only at its end.
 type fileReader struct {
 	f   *os.File
 	off int64
