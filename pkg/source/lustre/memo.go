@@ -57,9 +57,17 @@ func (m *memo) name(i int, name []byte) (string, bool) {
 	return m.last.lines[i].c.Name, true
 }
 
+// maxMemo bounds the text a memo keeps: a stats file is a few KB, but a
+// Source can be pointed at any directory, and the lines past the bound are
+// only parsed, not remembered.
+const maxMemo = 256 << 10
+
 // record adds line number len(next.lines) with what it parsed to: c, or
 // nil for a line that was not a counter.
 func (m *memo) record(line []byte, c *Counter) {
+	if len(m.next.text)+len(line) > maxMemo {
+		line, c = nil, nil // kept as a line that never matches
+	}
 	start := len(m.next.text)
 	m.next.text = append(m.next.text, line...)
 	l := memoLine{start: start, end: len(m.next.text), isCounter: c != nil}

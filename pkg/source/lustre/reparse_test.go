@@ -3,6 +3,7 @@ package lustre
 import (
 	"bufio"
 	"bytes"
+	"fmt"
 	"path/filepath"
 	"testing"
 
@@ -67,4 +68,22 @@ func FuzzCounterAsPrinted(f *testing.F) {
 		split.parseLineSplit(line, nil, 0)
 		require.Equal(t, split, fast)
 	})
+}
+
+// TestMemoIsBounded reads a file far larger than any stats file twice with
+// one memo: the memo keeps at most maxMemo of text, and the second read
+// still gives every counter.
+func TestMemoIsBounded(t *testing.T) {
+	var data []byte
+	for i := range 20000 { // about 0.9 MB
+		data = fmt.Appendf(data, "counter_%05d             %d samples [reqs]\n", i, i+1)
+	}
+	var m memo
+	for range 2 {
+		st, err := parse(bufio.NewReaderSize(bytes.NewReader(data), readSize), nil, &m)
+		require.NoError(t, err)
+		require.Len(t, st.Counters, 20000)
+		require.Equal(t, uint64(20000), st.Counters[19999].Samples)
+		require.LessOrEqual(t, len(m.last.text), maxMemo)
+	}
 }
