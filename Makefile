@@ -52,6 +52,10 @@ lint:
 	  if ! cmp -s go.mod /tmp/sluice-go.mod.bak || ! cmp -s go.sum /tmp/sluice-go.sum.bak; then \
 	    echo "go mod tidy changed go.mod/go.sum; run it and commit the result"; \
 	    cp /tmp/sluice-go.mod.bak go.mod; cp /tmp/sluice-go.sum.bak go.sum; exit 1; fi
+	@# The agent must not link the NATS server: its process-statistics
+	@# goroutine would wake every agent once a second (see pkg/bus/broker).
+	@if $(GO) list -deps ./agent | grep -q '^github.com/nats-io/nats-server'; then \
+	  echo "./agent links github.com/nats-io/nats-server; keep the broker in pkg/bus/broker"; exit 1; fi
 
 # The Prometheus example config and alert rules in deploy/prometheus, and the
 # rules' unit tests. promtool comes with the Debian package prometheus

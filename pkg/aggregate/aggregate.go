@@ -32,6 +32,7 @@ import (
 
 	"sluice/pkg/baseline"
 	"sluice/pkg/bus"
+	"sluice/pkg/bus/broker"
 	"sluice/pkg/export"
 	"sluice/pkg/model"
 	"sluice/pkg/store"
@@ -300,7 +301,7 @@ func (s *Service) connect(ctx context.Context) (*nats.Conn, func(), error) {
 	stop := func() {}
 	url := s.opts.NATSURL
 	if url == "" {
-		emb, err := bus.StartEmbedded(bus.EmbeddedOptions{Listen: s.opts.EmbeddedListen})
+		emb, err := broker.Start(broker.Options{Listen: s.opts.EmbeddedListen})
 		if err != nil {
 			return nil, nil, fmt.Errorf("aggregator: %w (set --nats.url to use an external broker, or --nats.embedded.listen)", err)
 		}

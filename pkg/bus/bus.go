@@ -1,6 +1,8 @@
-// Package bus holds the NATS side of the project: the subject layout, the
-// embedded broker the aggregator starts when no broker URL is given, and the
-// connection options agents and aggregators share.
+// Package bus holds the NATS side of the project that agents and
+// aggregators share: the subject layout and the connection options. The
+// embedded broker the aggregator starts when no broker URL is given is in
+// bus/broker, so that the agent does not link the NATS server (whose
+// process-statistics goroutine would wake the agent every second).
 //
 // # Basics
 //
@@ -27,13 +29,10 @@ import (
 	"context"
 	"errors"
 	"fmt"
-	"net"
-	"strconv"
 	"strings"
 	"time"
 	"unicode"
 
-	"github.com/nats-io/nats-server/v2/server"
 	"github.com/nats-io/nats.go"
 )
 
@@ -100,71 +99,6 @@ func Token(name string) string {
 		}
 		return r
 	}, name)
-}
-
-// Embedded is a NATS server running inside this process.
-type Embedded struct {
-	srv *server.Server
-}
-
-// EmbeddedOptions configures an embedded broker. Zero values mean loopback
-// and a free port.
-type EmbeddedOptions struct {
-	// Listen is host:port; "" means 127.0.0.1 on a free port.
-	Listen string
-	// ReadyTimeout bounds the wait for the server to accept connections;
-	// zero means 5 seconds.
-	ReadyTimeout time.Duration
-}
-
-// StartEmbedded starts a broker and waits until it accepts connections.
-func StartEmbedded(opts EmbeddedOptions) (*Embedded, error) {
-	host, port := "127.0.0.1", -1
-	if opts.Listen != "" {
-		h, p, err := net.SplitHostPort(opts.Listen)
-		if err != nil {
-			return nil, fmt.Errorf("embedded broker listen %q: %w", opts.Listen, err)
-		}
-		n, err := strconv.Atoi(p)
-		if err != nil {
-			return nil, fmt.Errorf("embedded broker listen %q: port: %w", opts.Listen, err)
-		}
-		host, port = h, n
-		if port == 0 {
-			port = -1
-		}
-	}
-	if opts.ReadyTimeout == 0 {
-		opts.ReadyTimeout = 5 * time.Second
-	}
-	srv, err := server.NewServer(&server.Options{
-		Host:                  host,
-		Port:                  port,
-		NoLog:                 true,
-		NoSigs:                true,
-		MaxPayload:            1 << 20,
-		MaxPending:            256 << 20,
-		WriteDeadline:         10 * time.Second,
-		DisableShortFirstPing: true,
-	})
-	if err != nil {
-		return nil, fmt.Errorf("embedded broker: %w", err)
-	}
-	go srv.Start()
-	if !srv.ReadyForConnections(opts.ReadyTimeout) {
-		srv.Shutdown()
-		return nil, fmt.Errorf("embedded broker on %s:%d not ready after %s", host, port, opts.ReadyTimeout)
-	}
-	return &Embedded{srv: srv}, nil
-}
-
-// URL is the client URL of the embedded broker.
-func (e *Embedded) URL() string { return e.srv.ClientURL() }
-
-// Shutdown stops the broker and waits for it to finish.
-func (e *Embedded) Shutdown() {
-	e.srv.Shutdown()
-	e.srv.WaitForShutdown()
 }
 
 // ErrNoBroker means no broker answered within the connect timeout.

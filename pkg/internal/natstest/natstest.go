@@ -7,14 +7,14 @@ import (
 	"github.com/nats-io/nats.go"
 	"github.com/stretchr/testify/require"
 
-	"sluice/pkg/bus"
+	"sluice/pkg/bus/broker"
 )
 
 // Start runs an embedded broker on a free loopback port for the test's
 // lifetime and returns it.
-func Start(t testing.TB) *bus.Embedded {
+func Start(t testing.TB) *broker.Embedded {
 	t.Helper()
-	srv, err := bus.StartEmbedded(bus.EmbeddedOptions{Listen: "127.0.0.1:0"})
+	srv, err := broker.Start(broker.Options{Listen: "127.0.0.1:0"})
 	require.NoError(t, err)
 	t.Cleanup(srv.Shutdown)
 	return srv
@@ -23,9 +23,9 @@ func Start(t testing.TB) *bus.Embedded {
 // StartAt runs an embedded broker on listen (host:port) for the test's
 // lifetime; a test restarts a broker by shutting one down and starting
 // another on the same address.
-func StartAt(t testing.TB, listen string) *bus.Embedded {
+func StartAt(t testing.TB, listen string) *broker.Embedded {
 	t.Helper()
-	srv, err := bus.StartEmbedded(bus.EmbeddedOptions{Listen: listen})
+	srv, err := broker.Start(broker.Options{Listen: listen})
 	require.NoError(t, err)
 	t.Cleanup(srv.Shutdown)
 	return srv
