@@ -78,6 +78,10 @@ type Config struct {
 	// HeartbeatEvery is how many intervals pass between heartbeats; zero
 	// means 6.
 	HeartbeatEvery int
+	// SeqReserve is how many sample sequence numbers one write of the
+	// sequence file reserves; zero means 720 (an hour at the default
+	// interval). See saveSeq.
+	SeqReserve int
 	// Logger receives the agent's logs; nil discards them.
 	Logger *slog.Logger
 	// Now is the clock; nil means time.Now.
@@ -92,7 +96,8 @@ type Agent struct {
 	jobs   *jobstate.Dir
 	deltas map[string]*delta.Tracker // per source kind
 	costs  map[string]*cost
-	seq    uint64
+	seq    uint64    // the last sequence number a sample took
+	saved  uint64    // the highest one the sequence file allows (see saveSeq)
 	last   time.Time // end of the previous interval; zero before the first read
 	queue  *queue
 	buf    []byte
@@ -130,6 +135,7 @@ func New(cfg Config) (*Agent, error) {
 	cfg.Interval = cmp.Or(cfg.Interval, 5*time.Second)
 	cfg.QueueLimit = cmp.Or(cfg.QueueLimit, 720)
 	cfg.HeartbeatEvery = cmp.Or(cfg.HeartbeatEvery, 6)
+	cfg.SeqReserve = max(cmp.Or(cfg.SeqReserve, 720), 1)
 	cfg.JobsFrom = cmp.Or(cfg.JobsFrom, JobsFromBoth)
 	if !slices.Contains([]JobsFrom{JobsFromHooks, JobsFromCgroups, JobsFromBoth}, cfg.JobsFrom) {
 		return nil, fmt.Errorf("agent: jobs from %q: want hooks, cgroups or both", cfg.JobsFrom)
@@ -175,6 +181,7 @@ func New(cfg Config) (*Agent, error) {
 	if a.seq, err = a.loadSeq(); err != nil {
 		return nil, err
 	}
+	a.saved = a.seq
 	return a, nil
 }
 
@@ -228,16 +235,26 @@ func (a *Agent) loadSeq() (uint64, error) {
 	return n, nil
 }
 
-// saveSeq persists the sequence number before a sample carrying it
-// leaves, so a restarted agent never reuses one.
+// saveSeq makes sure the sequence file allows a.seq before a sample
+// carrying it leaves, so that a restarted agent, which starts after what
+// the file says, never reuses one. One write reserves SeqReserve numbers:
+// writing the file at every interval was a fifth of a running agent's CPU
+// time. A restart skips what was reserved and not used, and the gap means
+// nothing to the aggregator, which uses sequence numbers only to drop
+// duplicates.
 func (a *Agent) saveSeq() error {
+	if a.seq <= a.saved {
+		return nil
+	}
+	upTo := a.seq + uint64(a.cfg.SeqReserve) - 1
 	tmp := a.seqFile() + ".tmp"
-	if err := os.WriteFile(tmp, []byte(strconv.FormatUint(a.seq, 10)), 0o644); err != nil {
+	if err := os.WriteFile(tmp, []byte(strconv.FormatUint(upTo, 10)), 0o644); err != nil {
 		return fmt.Errorf("agent: write sequence: %w", err)
 	}
 	if err := os.Rename(tmp, a.seqFile()); err != nil {
 		return fmt.Errorf("agent: write sequence: %w", err)
 	}
+	a.saved = upTo
 	return nil
 }
 

@@ -93,13 +93,54 @@ func TestCollectMapsDeltasAndPersistsSequence(t *testing.T) {
 	assert.Equal(t, t0, s.Start)
 	assert.Equal(t, t0.Add(5*time.Second), s.End)
 
-	// Step persists the sequence; a new agent on the same state continues it.
+	// Step persists the sequence; a new agent on the same state continues
+	// after what the first one reserved (720 numbers by default).
 	a.Step(context.Background(), nil)
 	b := newAgent(t, root, state, clk, "")
 	b.Collect(context.Background())
 	clk.add(5 * time.Second)
 	s, _, _ = b.Collect(context.Background())
-	assert.Equal(t, uint64(3), s.Seq, "sequence numbers are never reused across restarts")
+	assert.Equal(t, uint64(2+720), s.Seq, "sequence numbers are never reused across restarts")
+}
+
+// TestSequenceFileReservesNumbers steps agents with a reserve of 3 and
+// checks when the sequence file is written and where a restarted agent,
+// after a clean stop or mid-reserve as after a crash, goes on.
+func TestSequenceFileReservesNumbers(t *testing.T) {
+	root, state := t.TempDir(), t.TempDir()
+	clk := &clock{t: t0}
+	writeStats(t, root, "scratch-ffff8f0000001000", map[string][2]uint64{"open": {1, 0}})
+	start := func() *nodeagent.Agent {
+		a, err := nodeagent.New(nodeagent.Config{
+			Node: "bw007", StateDir: state, Now: clk.now, SeqReserve: 3,
+			Sources: []source.Source{lustre.NewSource(root, clk.now)},
+		})
+		require.NoError(t, err)
+		a.Step(context.Background(), nil) // the base reading: no sample
+		return a
+	}
+	file := func() string {
+		b, err := os.ReadFile(filepath.Join(state, "sequence"))
+		require.NoError(t, err)
+		return string(b)
+	}
+	step := func(a *nodeagent.Agent) {
+		clk.add(5 * time.Second)
+		a.Step(context.Background(), nil)
+	}
+	a := start()
+	_, err := os.Stat(filepath.Join(state, "sequence"))
+	require.ErrorIs(t, err, os.ErrNotExist, "nothing is written before a sample")
+	for seq, want := range []string{1: "3", 2: "3", 3: "3", 4: "6", 5: "6"} {
+		if seq == 0 {
+			continue
+		}
+		step(a)
+		assert.Equal(t, want, file(), "after sample %d", seq)
+	}
+	b := start() // a stopped after sample 5 of 6 reserved
+	step(b)
+	assert.Equal(t, "9", file(), "sample 7 reserves 7 to 9")
 }
 
 func TestSampleNamesJobsRunningInTheInterval(t *testing.T) {

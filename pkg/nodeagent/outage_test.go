@@ -84,6 +84,7 @@ func runOutage(t *testing.T, queueLimit int, outage uint64) ([]uint64, uint64, u
 	a, err := nodeagent.New(nodeagent.Config{
 		Node: "bw007", Interval: 100 * time.Millisecond, Jitter: -1, StateDir: state, NATSURL: srv.URL(),
 		QueueLimit: queueLimit, HeartbeatEvery: 1, Sources: []source.Source{lustre.NewSource(root, nil)},
+		SeqReserve: 1, // the sequence file then shows every sample taken
 	})
 	require.NoError(t, err)
 	ctx, cancel := context.WithCancel(context.Background())
