@@ -2,12 +2,14 @@ package nodeagent_test
 
 import (
 	"context"
+	"net"
 	"net/url"
 	"os"
 	"path/filepath"
 	"strconv"
 	"strings"
 	"sync"
+	"sync/atomic"
 	"testing"
 	"time"
 
@@ -23,16 +25,19 @@ import (
 )
 
 // collector records what reaches the broker, reconnecting quickly after a
-// restart so it is back before the agent is.
+// restart so it is back before the agent is. Like the aggregator, it keeps
+// a sample sequence number the first time it arrives and counts repeats.
 type collector struct {
 	mu      sync.Mutex
 	seqs    []uint64
+	seen    map[uint64]bool
+	repeats int
 	dropped uint64
 	beats   int
 }
 
 func collect(t *testing.T, brokerURL string) *collector {
-	c := &collector{}
+	c := &collector{seen: map[uint64]bool{}}
 	nc, err := nats.Connect(brokerURL, nats.MaxReconnects(-1), nats.ReconnectWait(10*time.Millisecond))
 	require.NoError(t, err)
 	t.Cleanup(nc.Close)
@@ -42,7 +47,12 @@ func collect(t *testing.T, brokerURL string) *collector {
 		switch k, _ := wire.Peek(m.Data); k {
 		case wire.KindSample:
 			var s wire.Sample
-			if wire.DecodeSample(m.Data, &s) == nil {
+			switch {
+			case wire.DecodeSample(m.Data, &s) != nil:
+			case c.seen[s.Seq]:
+				c.repeats++
+			default:
+				c.seen[s.Seq] = true
 				c.seqs = append(c.seqs, s.Seq)
 			}
 		case wire.KindHeartbeat:
@@ -130,4 +140,101 @@ func TestOutageBeyondTheBoundDropsTheOldestAndSaysSo(t *testing.T) {
 	}
 	assert.Positive(t, missing, "an outage longer than the queue loses samples")
 	assert.Equal(t, missing, dropped, "and the heartbeat counts exactly those")
+}
+
+// TestConnectionThatStopsAnsweringLosesNothing freezes the network between
+// the agent and the broker without closing anything, as a crashed broker
+// host or a dropping switch does: what the agent published into the dead
+// connection must reach the broker once the network is back, sent again
+// from the queue, because no flush round trip confirmed it.
+func TestConnectionThatStopsAnsweringLosesNothing(t *testing.T) {
+	srv := natstest.Start(t)
+	c := collect(t, srv.URL())
+	px := startProxy(t, strings.TrimPrefix(srv.URL(), "nats://"))
+	root, state := t.TempDir(), t.TempDir()
+	writeStats(t, root, "scratch-ffff8f0000001000", map[string][2]uint64{"open": {1, 0}})
+	a, err := nodeagent.New(nodeagent.Config{
+		Node: "bw007", Interval: 100 * time.Millisecond, Jitter: -1, StateDir: state, NATSURL: px.url(),
+		HeartbeatEvery: 1, SeqReserve: 1, Sources: []source.Source{lustre.NewSource(root, nil)},
+	})
+	require.NoError(t, err)
+	ctx, cancel := context.WithCancel(context.Background())
+	done := make(chan error, 1)
+	go func() { done <- a.Run(ctx) }()
+	defer func() { cancel(); require.NoError(t, <-done) }()
+
+	waitFor := func(cond func() bool, what string) {
+		require.Eventually(t, cond, 30*time.Second, 10*time.Millisecond, what)
+	}
+	waitFor(func() bool { s, _ := c.snapshot(); return len(s) >= 3 }, "first samples")
+	px.freeze(true)
+	frozenAt := persistedSeq(state)
+	// Long enough for the flush round trip to time out (2 s) and for
+	// samples to be taken meanwhile.
+	time.Sleep(3 * time.Second)
+	px.freeze(false)
+	last := persistedSeq(state)
+	require.Greater(t, last, frozenAt, "samples were taken while the network was frozen")
+	waitFor(func() bool { s, _ := c.snapshot(); return len(s) > 0 && s[len(s)-1] >= last }, "catching up")
+	seqs, dropped := c.snapshot()
+	for i, s := range seqs {
+		require.Equal(t, uint64(i+1), s, "every sample arrives, in order: %v", seqs)
+	}
+	assert.Zero(t, dropped)
+}
+
+// proxy forwards TCP connections to a target and can freeze: while frozen
+// it drops every byte both ways but closes nothing, so neither end learns
+// that the other has stopped answering.
+type proxy struct {
+	ln     net.Listener
+	target string
+	frozen atomic.Bool
+}
+
+func startProxy(t *testing.T, target string) *proxy {
+	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	require.NoError(t, err)
+	p := &proxy{ln: ln, target: target}
+	t.Cleanup(func() { ln.Close() })
+	go p.serve()
+	return p
+}
+
+func (p *proxy) url() string    { return "nats://" + p.ln.Addr().String() }
+func (p *proxy) freeze(on bool) { p.frozen.Store(on) }
+func (p *proxy) serve() {
+	for {
+		client, err := p.ln.Accept()
+		if err != nil {
+			return
+		}
+		server, err := net.Dial("tcp", p.target)
+		if err != nil {
+			client.Close()
+			continue
+		}
+		go p.pump(server, client)
+		go p.pump(client, server)
+	}
+}
+
+// pump copies src to dst, dropping what it reads while frozen, and closes
+// both when either fails.
+func (p *proxy) pump(dst, src net.Conn) {
+	defer dst.Close()
+	defer src.Close()
+	buf := make([]byte, 32<<10)
+	for {
+		n, err := src.Read(buf)
+		if err != nil {
+			return
+		}
+		if p.frozen.Load() {
+			continue
+		}
+		if _, err := dst.Write(buf[:n]); err != nil {
+			return
+		}
+	}
 }

@@ -25,15 +25,20 @@ func (q *queue) push(subject string, data []byte) {
 
 func (q *queue) len() int { return len(q.items) }
 
-// drain offers the messages to send in order and stops at the first it
-// refuses, which stays at the head.
-func (q *queue) drain(send func(subject string, data []byte) error) error {
-	for len(q.items) > 0 {
-		if err := send(q.items[0].subject, q.items[0].data); err != nil {
-			return err
+// offer sends the messages in order, from the oldest, and stops at the
+// first that send refuses. It returns how many were sent; they stay
+// queued until remove takes them.
+func (q *queue) offer(send func(subject string, data []byte) error) (int, error) {
+	for i, m := range q.items {
+		if err := send(m.subject, m.data); err != nil {
+			return i, err
 		}
-		q.items[0] = queued{}
-		q.items = q.items[1:]
 	}
-	return nil
+	return len(q.items), nil
+}
+
+// remove drops the n oldest messages, once they are known to be delivered.
+func (q *queue) remove(n int) {
+	clear(q.items[:n])
+	q.items = q.items[n:]
 }

@@ -92,21 +92,36 @@ func (a *Agent) Step(ctx context.Context, nc *nats.Conn) {
 	a.flush(nc)
 }
 
-// flush sends queued messages while the connection takes them; a nil or
-// disconnected connection leaves them queued.
+// flush sends the queued messages and removes them once the broker has
+// answered a flush round trip, which it does only after it has taken
+// everything sent before it. Until then they stay queued and are sent
+// again at the next flush: a connection that died without being closed (a
+// broker host that crashed, a network that dropped) shows only when the
+// round trip fails, and what was published into it would be lost. The
+// round trip timing out also drops the connection, so that samples queue
+// until a new one is up. A message sent twice is harmless: the aggregator
+// drops a sample whose node and sequence it has applied, and job events
+// merge. A nil or disconnected connection leaves everything queued.
 func (a *Agent) flush(nc *nats.Conn) {
 	if nc == nil || !nc.IsConnected() {
 		return
 	}
-	err := a.queue.drain(func(subject string, data []byte) error { return nc.Publish(subject, data) })
+	n, err := a.queue.offer(func(subject string, data []byte) error { return nc.Publish(subject, data) })
+	if err == nil && n > 0 {
+		err = nc.FlushTimeout(flushTimeout)
+	}
 	if err != nil {
 		a.log.Debug("publish deferred", "queued", a.queue.len(), "err", err)
+		if errors.Is(err, nats.ErrTimeout) {
+			_ = nc.ForceReconnect()
+		}
 		return
 	}
-	if err := nc.FlushTimeout(2 * time.Second); err != nil {
-		a.log.Debug("flush", "err", err)
-	}
+	a.queue.remove(n)
 }
+
+// flushTimeout bounds the wait for the broker's answer to a flush.
+const flushTimeout = 2 * time.Second
 
 // syncJobs publishes the job events the hooks could not and removes
 // records whose end has been published and covered by a sample.
