@@ -48,7 +48,7 @@ func baselineCmd(ctx context.Context, args []string, stdout, stderr io.Writer) e
 
 func baselineImport(ctx context.Context, args []string, stdout, stderr io.Writer) error {
 	fs := flag.NewFlagSet("aggregator baseline import", flag.ContinueOnError)
-	url := fs.String("url", "http://127.0.0.1:9713", "base URL of the running aggregator")
+	url := urlFlag(fs)
 	quiet := fs.Bool("quiet", false, "no progress bar")
 	path, err := parseWithFile(fs, args)
 	if err != nil {
@@ -113,7 +113,7 @@ func printImport(w io.Writer, path string, res aggregate.ImportResult) {
 
 func baselineShow(ctx context.Context, args []string, stdout io.Writer) error {
 	fs := flag.NewFlagSet("aggregator baseline show", flag.ContinueOnError)
-	url := fs.String("url", "http://127.0.0.1:9713", "base URL of the running aggregator")
+	url := urlFlag(fs)
 	if err := parse(fs, args); err != nil {
 		return err
 	}
@@ -164,7 +164,7 @@ func printBaseline(w io.Writer, b aggregate.Baseline) {
 
 func baselineExport(ctx context.Context, args []string, stdout io.Writer) error {
 	fs := flag.NewFlagSet("aggregator baseline export", flag.ContinueOnError)
-	url := fs.String("url", "http://127.0.0.1:9713", "base URL of the running aggregator")
+	url := urlFlag(fs)
 	out := fs.String("out", "", "file to write; empty writes to standard output")
 	origin := fs.String("origin", "", `"live" or "import" for one origin only; empty merges both per day`)
 	if err := parse(fs, args); err != nil {

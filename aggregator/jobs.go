@@ -18,7 +18,7 @@ import (
 
 func jobs(ctx context.Context, args []string, stdout io.Writer) error {
 	fs := flag.NewFlagSet("aggregator jobs", flag.ContinueOnError)
-	url := fs.String("url", "http://127.0.0.1:9713", "base URL of the running aggregator")
+	url := urlFlag(fs)
 	all := fs.Bool("all", false, "include recently ended jobs")
 	wide := fs.Bool("wide", false, "one column per metric instead of the hottest metrics")
 	if err := parse(fs, args); err != nil {

@@ -140,7 +140,7 @@ func patternsCheck(args []string, stdout io.Writer) error {
 // at most five, the busiest first.
 func patternsLearn(ctx context.Context, args []string, stdout io.Writer) error {
 	fs := flag.NewFlagSet("aggregator patterns learn", flag.ContinueOnError)
-	url := fs.String("url", "http://127.0.0.1:9713", "base URL of the running aggregator")
+	url := urlFlag(fs)
 	job := fs.String("job", "", "the job to learn from (required)")
 	name := fs.String("name", "", "the new pattern's name (required; lower case, digits, _)")
 	from := fs.String("from", "", "first window to take, RFC 3339 time (default: the job's first)")
