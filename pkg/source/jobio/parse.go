@@ -175,15 +175,7 @@ func parseProcIOExact(b []byte) (v [nProcIO]uint64, ok bool) {
 			return v, false
 		}
 		b = b[len(prefix):]
-		var x uint64
-		n := 0
-		for ; n < len(b) && n < 19; n++ {
-			d := b[n] - '0'
-			if d > 9 {
-				break
-			}
-			x = x*10 + uint64(d)
-		}
+		x, n := fields.Digits(b)
 		if n == 0 || n == len(b) || b[n] != '\n' {
 			return v, false
 		}

@@ -357,15 +357,7 @@ func (s *Source) openProcs(j *job, n *dirNode, trusted *bool) {
 func (s *Source) addPids(j *job, b []byte) {
 	for len(b) > 0 {
 		// The kernel's line, a pid and a newline, the quick way.
-		var pid uint64
-		n := 0
-		for ; n < len(b) && n < 8; n++ {
-			d := b[n] - '0'
-			if d > 9 {
-				break
-			}
-			pid = pid*10 + uint64(d)
-		}
+		pid, n := fields.Digits(b)
 		if n > 0 && n < len(b) && b[n] == '\n' && pid > 0 && pid <= maxPid {
 			s.pids = append(s.pids, int(pid))
 			b = b[n+1:]

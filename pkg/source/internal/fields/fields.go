@@ -49,6 +49,21 @@ func First(line []byte) (tok, rest []byte) {
 	return line[i:j], line[j:]
 }
 
+// Digits reads the decimal digits at the start of b, at most 19 of them
+// (below 10^19 < 2^64, so the value cannot overflow), and returns their
+// value and how many there were. The fast paths for lines as the kernel
+// prints them are built on it; a caller decides what may follow.
+func Digits(b []byte) (v uint64, n int) {
+	for ; n < len(b) && n < 19; n++ {
+		d := b[n] - '0'
+		if d > 9 {
+			break
+		}
+		v = v*10 + uint64(d)
+	}
+	return v, n
+}
+
 // Uints parses b if it is numbers as the kernel prints a row of them with
 // " %lu": each one space and 1 to 19 decimal digits, nothing else but one
 // '\n' at the end. It stores them in dst and returns how many; ok is false
@@ -65,18 +80,9 @@ func Uints(b []byte, dst []uint64) (n int, ok bool) {
 		if b[i] != ' ' || n == len(dst) {
 			return 0, false
 		}
-		i++
-		start := i
-		var v uint64
-		for i < len(b) {
-			d := b[i] - '0'
-			if d > 9 {
-				break
-			}
-			v = v*10 + uint64(d)
-			i++
-		}
-		if i == start || i-start > 19 { // below 10^19 < 2^64: no overflow
+		v, d := Digits(b[i+1:])
+		i += 1 + d
+		if d == 0 || (i < len(b) && b[i] != ' ') { // none, or 20 or more, or another byte
 			return 0, false
 		}
 		dst[n] = v
