@@ -81,6 +81,26 @@ func persistedSeq(state string) uint64 {
 	return n
 }
 
+// runAgent runs an agent on one Lustre mount at a 100 ms interval,
+// publishing to brokerURL with a heartbeat every interval, until the test
+// ends, and returns its state directory. Its sequence file shows every
+// sample taken (a reserve of 1). A queueLimit of 0 means the default.
+func runAgent(t *testing.T, brokerURL string, queueLimit int) string {
+	root, state := t.TempDir(), t.TempDir()
+	writeStats(t, root, "scratch-ffff8f0000001000", map[string][2]uint64{"open": {1, 0}})
+	a, err := nodeagent.New(nodeagent.Config{
+		Node: "bw007", Interval: 100 * time.Millisecond, Jitter: -1, StateDir: state, NATSURL: brokerURL,
+		QueueLimit: queueLimit, HeartbeatEvery: 1, SeqReserve: 1,
+		Sources: []source.Source{lustre.NewSource(root, nil)},
+	})
+	require.NoError(t, err)
+	ctx, cancel := context.WithCancel(context.Background())
+	done := make(chan error, 1)
+	go func() { done <- a.Run(ctx) }()
+	t.Cleanup(func() { cancel(); require.NoError(t, <-done) })
+	return state
+}
+
 // runOutage runs an agent, stops the broker for `outage` samples, starts it
 // again on the same address and returns every sequence number received
 // once the agent has caught up, and the last dropped count reported.
@@ -89,18 +109,7 @@ func runOutage(t *testing.T, queueLimit int, outage uint64) ([]uint64, uint64, u
 	u, err := url.Parse(srv.URL())
 	require.NoError(t, err)
 	c := collect(t, srv.URL())
-	root, state := t.TempDir(), t.TempDir()
-	writeStats(t, root, "scratch-ffff8f0000001000", map[string][2]uint64{"open": {1, 0}})
-	a, err := nodeagent.New(nodeagent.Config{
-		Node: "bw007", Interval: 100 * time.Millisecond, Jitter: -1, StateDir: state, NATSURL: srv.URL(),
-		QueueLimit: queueLimit, HeartbeatEvery: 1, Sources: []source.Source{lustre.NewSource(root, nil)},
-		SeqReserve: 1, // the sequence file then shows every sample taken
-	})
-	require.NoError(t, err)
-	ctx, cancel := context.WithCancel(context.Background())
-	done := make(chan error, 1)
-	go func() { done <- a.Run(ctx) }()
-	defer func() { cancel(); require.NoError(t, <-done) }()
+	state := runAgent(t, srv.URL(), queueLimit)
 
 	waitFor := func(cond func() bool, what string) {
 		require.Eventually(t, cond, 20*time.Second, 10*time.Millisecond, what)
@@ -151,17 +160,7 @@ func TestConnectionThatStopsAnsweringLosesNothing(t *testing.T) {
 	srv := natstest.Start(t)
 	c := collect(t, srv.URL())
 	px := startProxy(t, strings.TrimPrefix(srv.URL(), "nats://"))
-	root, state := t.TempDir(), t.TempDir()
-	writeStats(t, root, "scratch-ffff8f0000001000", map[string][2]uint64{"open": {1, 0}})
-	a, err := nodeagent.New(nodeagent.Config{
-		Node: "bw007", Interval: 100 * time.Millisecond, Jitter: -1, StateDir: state, NATSURL: px.url(),
-		HeartbeatEvery: 1, SeqReserve: 1, Sources: []source.Source{lustre.NewSource(root, nil)},
-	})
-	require.NoError(t, err)
-	ctx, cancel := context.WithCancel(context.Background())
-	done := make(chan error, 1)
-	go func() { done <- a.Run(ctx) }()
-	defer func() { cancel(); require.NoError(t, <-done) }()
+	state := runAgent(t, px.url(), 0)
 
 	waitFor := func(cond func() bool, what string) {
 		require.Eventually(t, cond, 30*time.Second, 10*time.Millisecond, what)
