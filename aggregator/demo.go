@@ -16,7 +16,7 @@ import (
 	"time"
 
 	"sluice/pkg/aggregate"
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/model"
 	"sluice/pkg/sim"
 	"sluice/pkg/tracker"
@@ -243,7 +243,7 @@ func (d *demoRun) report(e tracker.Event, j model.Summary) {
 		d.printf("clear  job %s: %s (peak %s per node)", j.ID, e.Flag.Reason, human(e.Flag.Peak, e.Flag.Metric.IsBytes()))
 	case tracker.WindowClosed:
 		w := e.Window
-		if w.Levels.Max() > level.Normal {
+		if w.Levels.Max() > coding.Normal {
 			d.printf("window job %s #%d closed: %d nodes, highest level %s", w.Job, w.Index, w.Nodes, w.Levels.Max())
 		}
 	}

@@ -100,12 +100,9 @@ func printEval(w io.Writer, res *eval.Result, took time.Duration, cuts, list boo
 	if cuts {
 		fmt.Fprintln(w, "\ncut points learned from the ordinary jobs (per node):")
 		tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
-		fmt.Fprintln(tw, "METRIC\tSOURCE\tp50\tp90\tELEVATED (p99)\tCRITICAL (p99.9)")
+		fmt.Fprintln(tw, "METRIC\tBASIS\tp50\tp90\tELEVATED (p99)\tCRITICAL (p99.9)")
 		for id := range metric.Count {
-			src := "seed"
-			if res.Learned[id] {
-				src = "learned"
-			}
+			src := res.Bases[id]
 			g := res.Coding.Grades[id]
 			fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\n", id, src, human(g[0], id.IsBytes()), human(g[2], id.IsBytes()),
 				human(res.Coding.Levels[id].Elevated, id.IsBytes()), human(res.Coding.Levels[id].Critical, id.IsBytes()))

@@ -10,8 +10,7 @@ import (
 	"slices"
 	"strings"
 
-	"sluice/pkg/grade"
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
 	"sluice/pkg/pattern"
@@ -119,11 +118,11 @@ func explainExample(w io.Writer, ex *pattern.Example, ws []model.Window) {
 			job.WriteByte(g.Byte())
 			marks.WriteByte(mark(g, pat[k]))
 		}
-		fmt.Fprintf(w, "    %-12s job %s  pattern %s  %s\n", id, job.String(), grade.Format(pat), marks.String())
+		fmt.Fprintf(w, "    %-12s job %s  pattern %s  %s\n", id, job.String(), coding.FormatGrades(pat), marks.String())
 	}
 }
 
-func mark(a, b grade.Grade) byte {
+func mark(a, b coding.Grade) byte {
 	switch d := int(a) - int(b); {
 	case d == 0:
 		return '='
@@ -195,7 +194,7 @@ func value(c pattern.Condition, v pattern.WindowView) string {
 	return fmt.Sprintf("%.3g", x)
 }
 
-func short(l level.Level) string { return l.String()[:4] }
+func short(l coding.Level) string { return l.String()[:4] }
 
 func printSignature(w io.Writer, j model.Summary) {
 	for _, id := range metric.All() {

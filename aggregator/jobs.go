@@ -11,7 +11,7 @@ import (
 	"text/tabwriter"
 	"time"
 
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
 )
@@ -94,7 +94,7 @@ func runtime(j model.Summary, now time.Time) string {
 // hottest lists the n busiest non-idle metrics: highest level first, then
 // highest rate.
 func hottest(j model.Summary, n int) string {
-	ids := slices.DeleteFunc(metric.All(), func(id metric.ID) bool { return level.Idle(id, j.Live[id]) })
+	ids := slices.DeleteFunc(metric.All(), func(id metric.ID) bool { return coding.IsIdle(id, j.Live[id]) })
 	slices.SortStableFunc(ids, func(a, b metric.ID) int {
 		if la, lb := j.LiveLevels[a], j.LiveLevels[b]; la != lb {
 			return int(lb) - int(la)
@@ -129,12 +129,12 @@ func compareDesc(a, b float64) int {
 	return 0
 }
 
-func cell(id metric.ID, rate float64, l level.Level) string {
+func cell(id metric.ID, rate float64, l coding.Level) string {
 	s := human(rate, id.IsBytes())
 	switch l {
-	case level.Critical:
+	case coding.Critical:
 		return s + " CRIT"
-	case level.Elevated:
+	case coding.Elevated:
 		return s + " high"
 	}
 	return s

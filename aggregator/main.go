@@ -24,7 +24,7 @@ import (
 
 	"sluice/pkg/aggregate"
 	"sluice/pkg/baseline"
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/options"
 	"sluice/pkg/tracker"
 )
@@ -127,7 +127,7 @@ func (f *serveFlags) register(fs *flag.FlagSet) {
 }
 
 func (f *serveFlags) options(log *slog.Logger) (aggregate.Options, error) {
-	cuts := level.DefaultCuts()
+	cuts := coding.DefaultCuts()
 	if f.cutsFile != "" {
 		var err error
 		if cuts, err = loadCuts(f.cutsFile, cuts); err != nil {
@@ -153,13 +153,13 @@ func (f *serveFlags) options(log *slog.Logger) (aggregate.Options, error) {
 	}, nil
 }
 
-func loadCuts(path string, base level.Cuts) (level.Cuts, error) {
+func loadCuts(path string, base coding.Cuts) (coding.Cuts, error) {
 	f, err := os.Open(path)
 	if err != nil {
 		return base, fmt.Errorf("--cuts.file: %w", err)
 	}
 	defer f.Close()
-	cuts, err := level.LoadCuts(f, base)
+	cuts, err := coding.LoadCuts(f, base)
 	if err != nil {
 		return base, fmt.Errorf("--cuts.file %s: %w", path, err)
 	}

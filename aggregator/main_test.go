@@ -9,15 +9,15 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
 )
 
 func TestExampleCutsLoad(t *testing.T) {
-	cuts, err := loadCuts("../deploy/config/cuts.example.yaml", level.DefaultCuts())
+	cuts, err := loadCuts("../deploy/config/cuts.example.yaml", coding.DefaultCuts())
 	require.NoError(t, err)
-	assert.Equal(t, level.Cut{Elevated: 100, Critical: 1000}, cuts[metric.Creates])
+	assert.Equal(t, coding.Cut{Elevated: 100, Critical: 1000}, cuts[metric.Creates])
 }
 
 func TestJobsTable(t *testing.T) {
@@ -27,8 +27,8 @@ func TestJobsTable(t *testing.T) {
 	storm.Live[metric.StatOps] = 15300
 	storm.Live[metric.ReadBytes] = 5e6
 	storm.Live[metric.Syncs] = 0.2 // below the idle floor: not listed
-	storm.LiveLevels[metric.Creates] = level.Critical
-	storm.LiveLevels[metric.StatOps] = level.Critical
+	storm.LiveLevels[metric.Creates] = coding.Critical
+	storm.LiveLevels[metric.StatOps] = coding.Critical
 	since := time.Date(2026, 3, 2, 14, 6, 30, 0, time.Local)
 	storm.ActiveFlags = []model.Flag{{Reason: "critical:creates", Since: since}}
 	idle := model.Summary{JobMeta: model.JobMeta{ID: "81231", Start: now.Add(-time.Hour)}, State: "running", NodesSeen: 2}

@@ -15,7 +15,7 @@ import (
 	"time"
 
 	"sluice/pkg/aggregate"
-	"sluice/pkg/grade"
+	"sluice/pkg/coding"
 	"sluice/pkg/matcher"
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
@@ -225,7 +225,7 @@ func learnExample(name string, job model.Summary, ws []model.Window) (*pattern.P
 	picked = picked[:min(5, len(picked))]
 	ex := &pattern.Example{Method: pattern.Sellers}
 	for _, b := range picked {
-		gs := make([]grade.Grade, len(ws))
+		gs := make([]coding.Grade, len(ws))
 		for i, w := range ws {
 			gs[i] = w.Grades[b.id]
 		}

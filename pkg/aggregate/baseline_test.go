@@ -19,8 +19,8 @@ import (
 	"gonum.org/v1/gonum/stat"
 
 	"sluice/pkg/aggregate"
+	"sluice/pkg/coding"
 	"sluice/pkg/internal/natstest"
-	"sluice/pkg/level"
 	"sluice/pkg/metric"
 )
 
@@ -112,9 +112,9 @@ func TestImportLearnsExportsAndSurvivesRestart(t *testing.T) {
 	assert.Contains(t, res.Errors[2], fmt.Sprintf("line %d: rate", len(bad)-1))
 	assert.Len(t, res.Days, 3)
 
-	// Windows below the idle floor (1 op/s, level.Floor) are idle and left
+	// Windows below the idle floor (1 op/s, coding.Floor) are idle and left
 	// out of the quantiles, like the rate-0 rows.
-	active := slices.DeleteFunc(values, func(v float64) bool { return v < level.Floor(metric.Creates) })
+	active := slices.DeleteFunc(values, func(v float64) bool { return v < coding.Floor(metric.Creates) })
 	got := creates(report(t, svc))
 	require.Equal(t, "learned", got.Source)
 	assert.EqualValues(t, len(active), got.Windows)

@@ -5,12 +5,10 @@ import (
 	"time"
 
 	"sluice/pkg/baseline"
+	"sluice/pkg/coding"
 	"sluice/pkg/export"
-	"sluice/pkg/grade"
-	"sluice/pkg/level"
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
-	"sluice/pkg/tracker"
 )
 
 // learner is the service's side of the baseline: it adds every closed
@@ -19,21 +17,21 @@ import (
 // service lock guards it.
 type learner struct {
 	b     *baseline.Baseline
-	seed  level.Cuts
+	seed  coding.Cuts
 	dirty map[baseline.Key]bool
 
 	th         baseline.Thresholds
-	sources    baseline.Sources
-	coding     tracker.Coding
+	bases      coding.Bases
+	coding     coding.Coding
 	recomputed time.Time
 }
 
-func newLearner(opts baseline.Options, seed level.Cuts) (*learner, error) {
+func newLearner(opts baseline.Options, seed coding.Cuts) (*learner, error) {
 	b, err := baseline.New(&opts)
 	if err != nil {
 		return nil, fmt.Errorf("aggregator: %w", err)
 	}
-	return &learner{b: b, seed: seed, dirty: map[baseline.Key]bool{}, coding: tracker.SeedCoding(seed)}, nil
+	return &learner{b: b, seed: seed, dirty: map[baseline.Key]bool{}, coding: coding.Seed(seed)}, nil
 }
 
 // load puts the stored days back.
@@ -69,20 +67,13 @@ func (l *learner) imported(days map[baseline.DayKey]*baseline.Day) {
 // recompute drops days past the horizon, merges the rest and returns the
 // coding they give: learned cuts for metrics with enough windows, seed cuts
 // for the others.
-func (l *learner) recompute(now time.Time) tracker.Coding {
+func (l *learner) recompute(now time.Time) coding.Coding {
 	for _, k := range l.b.Prune(now) {
 		l.dirty[k] = true // Get now returns nil: deleted at the next write
 	}
 	l.th = l.b.Cuts(now)
-	var c tracker.Coding
-	c.Levels, l.sources = l.th.Apply(l.seed)
-	seed := tracker.SeedCoding(l.seed)
-	for i, m := range l.th.Metrics {
-		c.Grades[i] = seed.Grades[i]
-		if l.sources[i] == baseline.SourceLearned {
-			c.Grades[i] = m.Grade
-		}
-	}
+	c, bases := coding.Assemble(l.seed, l.th.Learned())
+	l.bases = bases
 	l.coding, l.recomputed = c, now
 	return c
 }
@@ -128,15 +119,15 @@ type BaselineDay struct {
 
 // BaselineMetric is one metric's cuts in force and the counts behind them.
 type BaselineMetric struct {
-	Metric   string     `json:"metric"`
-	Unit     string     `json:"unit"`
-	Bytes    bool       `json:"-"`
-	Source   string     `json:"source"` // "learned" or "seed"
-	Elevated float64    `json:"elevated"`
-	Critical float64    `json:"critical"`
-	Grades   grade.Cuts `json:"grade_cuts"`
-	Windows  uint64     `json:"windows"`
-	Idle     uint64     `json:"idle_windows"`
+	Metric   string           `json:"metric"`
+	Unit     string           `json:"unit"`
+	Bytes    bool             `json:"-"`
+	Source   string           `json:"source"` // "learned" or "seed"
+	Elevated float64          `json:"elevated"`
+	Critical float64          `json:"critical"`
+	Grades   coding.GradeCuts `json:"grade_cuts"`
+	Windows  uint64           `json:"windows"`
+	Idle     uint64           `json:"idle_windows"`
 }
 
 // report describes the baseline as of the last recompute.
@@ -144,7 +135,7 @@ func (l *learner) report() Baseline {
 	o := l.b.Options()
 	r := Baseline{
 		Recomputed: l.recomputed, HorizonDays: o.Days, MinWindows: o.MinWindows,
-		Quantiles: grade.Quantiles(o.ElevatedQuantile, o.CriticalQuantile), Rejected: l.b.Rejected(),
+		Quantiles: coding.GradeQuantiles(o.ElevatedQuantile, o.CriticalQuantile), Rejected: l.b.Rejected(),
 	}
 	r.Newest, _ = l.b.Newest()
 	for _, k := range l.b.Keys() {
@@ -157,7 +148,7 @@ func (l *learner) report() Baseline {
 	for i, m := range l.th.Metrics {
 		id := metric.ID(i)
 		r.Metrics = append(r.Metrics, BaselineMetric{
-			Metric: id.String(), Unit: id.Unit(), Bytes: id.IsBytes(), Source: l.sources[i].String(),
+			Metric: id.String(), Unit: id.Unit(), Bytes: id.IsBytes(), Source: l.bases[i].String(),
 			Elevated: l.coding.Levels[i].Elevated, Critical: l.coding.Levels[i].Critical,
 			Grades: l.coding.Grades[i], Windows: m.Windows, Idle: m.Idle,
 		})
@@ -169,7 +160,7 @@ func (l *learner) report() Baseline {
 func (l *learner) exported() export.Baseline {
 	var e export.Baseline
 	for i, m := range l.th.Metrics {
-		e.Sources[i] = l.sources[i].String()
+		e.Sources[i] = l.bases[i].String()
 		e.Windows[i], e.Idle[i] = m.Windows, m.Idle
 	}
 	e.Days = len(l.th.Days)

@@ -12,8 +12,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"sluice/pkg/baseline"
-	"sluice/pkg/grade"
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 )
 
@@ -173,25 +172,25 @@ func TestAddRejects(t *testing.T) {
 func TestMinWindowsSwitchesFromSeedToLearned(t *testing.T) {
 	today := baseline.DayOf(noon)
 	b := newBaseline(t, &baseline.Options{MinWindows: 100})
-	seed := level.DefaultCuts()
+	seed := coding.DefaultCuts()
 	for i := range 99 {
 		require.NoError(t, b.Add(today, metric.Creates, float64(1+i)))
 	}
 	th := b.Cuts(noon)
-	assert.False(t, th.Metrics[metric.Creates].Learned)
+	assert.False(t, th.Metrics[metric.Creates].Enough)
 	assert.Equal(t, uint64(99), th.Metrics[metric.Creates].Windows)
-	cuts, src := th.Apply(seed)
+	cuts, src := apply(th, seed)
 	assert.Equal(t, seed, cuts, "below MinWindows every metric keeps its seed")
-	assert.Equal(t, baseline.Sources{}, src)
+	assert.Equal(t, coding.Bases{}, src)
 	assert.Equal(t, "seed", src[metric.Creates].String())
 
 	require.NoError(t, b.Add(today, metric.Creates, 100))
 	th = b.Cuts(noon)
 	m := th.Metrics[metric.Creates]
-	require.True(t, m.Learned)
-	cuts, src = th.Apply(seed)
+	require.True(t, m.Enough)
+	cuts, src = apply(th, seed)
 	require.NoError(t, cuts.Validate())
-	assert.Equal(t, baseline.SourceLearned, src[metric.Creates])
+	assert.Equal(t, coding.BasisLearned, src[metric.Creates])
 	assert.Equal(t, "learned", src[metric.Creates].String())
 	assert.Equal(t, m.Level, cuts[metric.Creates])
 	// Values 1..100: ranks ⌊0.99·99⌋ and ⌊0.999·99⌋ are both 98 (0-based),
@@ -201,7 +200,7 @@ func TestMinWindowsSwitchesFromSeedToLearned(t *testing.T) {
 	for id := range metric.Count {
 		if id != metric.Creates {
 			assert.Equal(t, seed[id], cuts[id], "%s keeps its seed", id)
-			assert.Equal(t, baseline.SourceSeed, src[id])
+			assert.Equal(t, coding.BasisSeed, src[id])
 		}
 	}
 }
@@ -211,21 +210,21 @@ func TestCutsShape(t *testing.T) {
 	today := baseline.DayOf(noon)
 	b.ReplaceImported(today, realisticDay(t, 4, 20_000))
 	th := b.Cuts(noon)
-	seed := level.DefaultCuts()
-	cuts, src := th.Apply(seed)
+	seed := coding.DefaultCuts()
+	cuts, src := apply(th, seed)
 	require.NoError(t, cuts.Validate())
 	for id := range metric.Count {
 		m := th.Metrics[id]
-		require.True(t, m.Learned, "%s: %d windows", id, m.Windows)
-		assert.Equal(t, baseline.SourceLearned, src[id])
+		require.True(t, m.Enough, "%s: %d windows", id, m.Windows)
+		assert.Equal(t, coding.BasisLearned, src[id])
 		assert.Equal(t, uint64(20_000), m.Windows+m.Idle, "%s", id)
 		for g := 1; g < len(m.Grade); g++ {
 			assert.LessOrEqual(t, m.Grade[g-1], m.Grade[g], "%s grade cuts ascend", id)
 		}
 		assert.Equal(t, m.Grade[3], m.Level.Elevated)
 		assert.Equal(t, m.Grade[4], m.Level.Critical)
-		assert.Equal(t, grade.Top, m.Grade.Code(m.Level.Critical*1.1, false))
-		assert.Equal(t, grade.Idle, m.Grade.Code(0, true))
+		assert.Equal(t, coding.GradeTop, m.Grade.Code(m.Level.Critical*1.1, false))
+		assert.Equal(t, coding.GradeIdle, m.Grade.Code(0, true))
 	}
 }
 
@@ -264,14 +263,14 @@ func TestCutsBoundTheShareAbove(t *testing.T) {
 		for range 100_000 {
 			v := w.next()
 			require.NoError(t, b.Add(today, id, v))
-			if !level.Idle(id, v) {
+			if !coding.IsIdle(id, v) {
 				values[id] = append(values[id], v)
 			}
 		}
 	}
 	th := b.Cuts(noon)
-	cuts, _ := th.Apply(level.DefaultCuts())
-	qs := grade.Quantiles(baseline.DefaultElevatedQuantile, baseline.DefaultCriticalQuantile)
+	cuts, _ := apply(th, coding.DefaultCuts())
+	qs := coding.GradeQuantiles(baseline.DefaultElevatedQuantile, baseline.DefaultCriticalQuantile)
 	for id := range metric.Count {
 		vs := values[id]
 		slices.Sort(vs)
@@ -287,9 +286,9 @@ func TestCutsBoundTheShareAbove(t *testing.T) {
 		var elevated, critical int
 		for _, v := range vs {
 			switch cuts.Classify(id, v) {
-			case level.Elevated:
+			case coding.Elevated:
 				elevated++
-			case level.Critical:
+			case coding.Critical:
 				critical++
 			}
 		}
@@ -305,20 +304,20 @@ func TestEqualCutsStayValid(t *testing.T) {
 	b.ReplaceImported(today, dayOf(t, metric.Syncs, 3, 5000))
 	th := b.Cuts(noon)
 	m := th.Metrics[metric.Syncs]
-	require.True(t, m.Learned)
+	require.True(t, m.Enough)
 	assert.Equal(t, m.Level.Elevated, m.Level.Critical, "one bin: every quantile is the same")
-	cuts, _ := th.Apply(level.DefaultCuts())
+	cuts, _ := apply(th, coding.DefaultCuts())
 	require.NoError(t, cuts.Validate())
-	assert.Equal(t, level.Normal, cuts.Classify(metric.Syncs, 3), "a point mass is not above its own cut")
+	assert.Equal(t, coding.Normal, cuts.Classify(metric.Syncs, 3), "a point mass is not above its own cut")
 }
 
 func TestCutsOfAnEmptyBaseline(t *testing.T) {
 	th := newBaseline(t, nil).Cuts(noon)
 	assert.Empty(t, th.Days)
 	assert.Equal(t, [metric.Count]baseline.MetricCuts{}, th.Metrics)
-	cuts, src := th.Apply(level.DefaultCuts())
-	assert.Equal(t, level.DefaultCuts(), cuts)
-	assert.Equal(t, baseline.Sources{}, src)
+	cuts, src := apply(th, coding.DefaultCuts())
+	assert.Equal(t, coding.DefaultCuts(), cuts)
+	assert.Equal(t, coding.Bases{}, src)
 }
 
 func TestKeysAreOrdered(t *testing.T) {
@@ -337,7 +336,8 @@ func ExampleBaseline_Cuts() {
 		_ = b.Add(today, metric.Opens, math.Exp(float64(i)/200)) // 2000 windows, 1 to 22026 opens/s
 	}
 	th := b.Cuts(time.Date(2026, 12, 1, 16, 0, 0, 0, time.UTC))
-	cuts, src := th.Apply(level.DefaultCuts())
+	c, bases := coding.Assemble(coding.DefaultCuts(), th.Learned())
+	cuts, src := c.Levels, bases
 	fmt.Printf("opens: %s, elevated %.0f, critical %.0f\n", src[metric.Opens], cuts[metric.Opens].Elevated, cuts[metric.Opens].Critical)
 	fmt.Printf("creates: %s, elevated %.0f, critical %.0f\n", src[metric.Creates], cuts[metric.Creates].Elevated, cuts[metric.Creates].Critical)
 	// Output:

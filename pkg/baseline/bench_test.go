@@ -46,7 +46,7 @@ func BenchmarkCuts30Days(b *testing.B) {
 	th := bl.Cuts(now)
 	require.Len(b, th.Days, baseline.DefaultDays)
 	for id := range metric.Count {
-		require.True(b, th.Metrics[id].Learned)
+		require.True(b, th.Metrics[id].Enough)
 	}
 	for b.Loop() {
 		bl.Cuts(now)

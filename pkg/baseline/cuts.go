@@ -1,15 +1,13 @@
 package baseline
 
 import (
-	"fmt"
 	"math"
 	"slices"
 	"time"
 
 	"github.com/DataDog/sketches-go/ddsketch"
 
-	"sluice/pkg/grade"
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 )
 
@@ -23,64 +21,30 @@ type Thresholds struct {
 }
 
 // MetricCuts are one metric's learned cuts and the counts behind them.
+//
+// Level holds the cut points at the elevated and critical quantiles: each
+// is the upper edge of the sketch bin holding its quantile, never below
+// the exact quantile and at most 2.02% above it, so that only windows
+// ranked above the quantile's rank (a share of about 1−q) are above the
+// cut; zero when the metric has no non-idle window. Grade holds the cuts
+// at coding.GradeQuantiles(elevated, critical), taken the same way and
+// non-decreasing. Enough says Windows reached Options.MinWindows and the
+// cuts are positive, so they may replace the seed cuts.
 type MetricCuts struct {
-	// Level holds the cut points at the elevated and critical quantiles:
-	// each is the upper edge of the sketch bin holding its quantile, never
-	// below the exact quantile and at most 2.02% above it, so that only
-	// windows ranked above the quantile's rank (a share of about 1−q) are
-	// above the cut. Zero when the metric has no non-idle window.
-	Level level.Cut
-	// Grade holds the cuts at grade.Quantiles(elevated, critical), taken
-	// the same way and non-decreasing; Grade[3] and Grade[4] equal Level's
-	// two cuts.
-	Grade grade.Cuts
+	coding.Learned
 	// Windows is the number of non-idle windows the quantiles are over.
 	Windows uint64
 	// Idle is the number of idle windows left out of them.
 	Idle uint64
-	// Learned says Windows reached Options.MinWindows and the cuts are
-	// positive, so they may replace the seed cuts.
-	Learned bool
 }
 
-// Source says where a metric's cut points in force came from.
-type Source uint8
-
-// The sources of cut points.
-const (
-	// SourceSeed is the configured seed cuts (level.DefaultCuts or the
-	// site's overrides).
-	SourceSeed Source = iota
-	// SourceLearned is the baseline's quantiles.
-	SourceLearned
-)
-
-// String returns "seed" or "learned", as used in labels.
-func (s Source) String() string {
-	switch s {
-	case SourceSeed:
-		return "seed"
-	case SourceLearned:
-		return "learned"
-	}
-	return fmt.Sprintf("source(%d)", uint8(s))
-}
-
-// Sources holds one Source per metric.
-type Sources [metric.Count]Source
-
-// Apply returns seed with every learned metric's cut points replaced by the
-// learned ones, and the source of each metric's cuts. The result passes
-// level.Cuts.Validate whenever seed does.
-func (t Thresholds) Apply(seed level.Cuts) (level.Cuts, Sources) {
-	var src Sources
+// Learned returns what was learned of each metric, for coding.Assemble.
+func (t *Thresholds) Learned() *[metric.Count]coding.Learned {
+	var out [metric.Count]coding.Learned
 	for i, m := range t.Metrics {
-		if m.Learned {
-			seed[i] = m.Level
-			src[i] = SourceLearned
-		}
+		out[i] = m.Learned
 	}
-	return seed, src
+	return &out
 }
 
 // Cuts merges every day of every origin inside the horizon at now (the
@@ -115,7 +79,7 @@ func (b *Baseline) Cuts(now time.Time) Thresholds {
 			t.Metrics[i].Idle += d.idle[i]
 		}
 	}
-	qs := grade.Quantiles(b.opts.ElevatedQuantile, b.opts.CriticalQuantile)
+	qs := coding.GradeQuantiles(b.opts.ElevatedQuantile, b.opts.CriticalQuantile)
 	for i, s := range b.merged {
 		m := &t.Metrics[i]
 		m.Windows = uint64(s.GetCount())
@@ -127,8 +91,8 @@ func (b *Baseline) Cuts(now time.Time) Thresholds {
 			m.Grade[g] = max(upperEdge(s, q), prev) // keep the cuts ascending
 			prev = m.Grade[g]
 		}
-		m.Level = level.Cut{Elevated: m.Grade[3], Critical: m.Grade[4]}
-		m.Learned = m.Windows >= b.opts.MinWindows && m.Level.Elevated > 0 &&
+		m.Level = coding.Cut{Elevated: m.Grade[3], Critical: m.Grade[4]}
+		m.Enough = m.Windows >= b.opts.MinWindows && m.Level.Elevated > 0 &&
 			m.Level.Elevated <= m.Level.Critical && !math.IsInf(m.Level.Critical, 0)
 	}
 	return t

@@ -11,7 +11,7 @@ import (
 	"github.com/DataDog/sketches-go/ddsketch/mapping"
 	"github.com/DataDog/sketches-go/ddsketch/store"
 
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 )
 
@@ -142,7 +142,7 @@ func (d *Day) AddWithCount(id metric.ID, rate float64, count uint64) error {
 	if count == 0 {
 		return nil
 	}
-	if level.Idle(id, rate) {
+	if coding.IsIdle(id, rate) {
 		d.idle[id] += count
 		return nil
 	}
@@ -212,13 +212,13 @@ func (d *Day) Bins(id metric.ID) iter.Seq2[float64, uint64] {
 	}
 }
 
-// idleFloor returns the smallest value of metric id that level.Idle does not
+// idleFloor returns the smallest value of metric id that coding.IsIdle does not
 // call idle.
 func idleFloor(id metric.ID) float64 {
 	if id.IsBytes() {
-		return level.IdleBytesPerSecond
+		return coding.IdleBytesPerSecond
 	}
-	return level.IdleOpsPerSecond
+	return coding.IdleOpsPerSecond
 }
 
 // Merge adds every window of o to d.

@@ -13,7 +13,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"sluice/pkg/baseline"
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 )
 
@@ -60,10 +60,10 @@ func TestDayAdd(t *testing.T) {
 		wantWin  uint64
 	}{
 		{"zero is idle", metric.ReadBytes, 0, nil, 1, 0},
-		{"below the byte floor is idle", metric.ReadBytes, level.IdleBytesPerSecond - 1, nil, 1, 0},
-		{"the byte floor is not idle", metric.ReadBytes, level.IdleBytesPerSecond, nil, 0, 1},
+		{"below the byte floor is idle", metric.ReadBytes, coding.IdleBytesPerSecond - 1, nil, 1, 0},
+		{"the byte floor is not idle", metric.ReadBytes, coding.IdleBytesPerSecond, nil, 0, 1},
 		{"below the op floor is idle", metric.Opens, 0.99, nil, 1, 0},
-		{"the op floor is not idle", metric.Opens, level.IdleOpsPerSecond, nil, 0, 1},
+		{"the op floor is not idle", metric.Opens, coding.IdleOpsPerSecond, nil, 0, 1},
 		{"a large rate", metric.WriteBytes, 1e11, nil, 0, 1},
 		{"negative", metric.Opens, -1, baseline.ErrInvalidValue, 0, 0},
 		{"negative zero is zero", metric.Opens, math.Copysign(0, -1), nil, 1, 0},
@@ -90,15 +90,15 @@ func TestDayAdd(t *testing.T) {
 }
 
 // TestIdleFloorMatchesLevel pins the floor Bins raises representatives to
-// against level.Idle, so the two cannot drift apart unnoticed.
+// against coding.IsIdle, so the two cannot drift apart unnoticed.
 func TestIdleFloorMatchesLevel(t *testing.T) {
 	for id := range metric.Count {
-		floor := float64(level.IdleOpsPerSecond)
+		floor := float64(coding.IdleOpsPerSecond)
 		if id.IsBytes() {
-			floor = level.IdleBytesPerSecond
+			floor = coding.IdleBytesPerSecond
 		}
-		require.False(t, level.Idle(id, floor), "%s", id)
-		require.True(t, level.Idle(id, math.Nextafter(floor, 0)), "%s", id)
+		require.False(t, coding.IsIdle(id, floor), "%s", id)
+		require.True(t, coding.IsIdle(id, math.Nextafter(floor, 0)), "%s", id)
 
 		// A window at the floor lands in a bin whose representative is
 		// below it; Bins must report a value that is not idle.
@@ -106,7 +106,7 @@ func TestIdleFloorMatchesLevel(t *testing.T) {
 		require.NoError(t, d.Add(id, floor))
 		bs := binsOf(d, id)
 		require.Len(t, bs, 1)
-		assert.False(t, level.Idle(id, bs[0].Value), "%s: bin value %g", id, bs[0].Value)
+		assert.False(t, coding.IsIdle(id, bs[0].Value), "%s: bin value %g", id, bs[0].Value)
 		assert.InEpsilon(t, floor, bs[0].Value, baseline.RelativeAccuracy)
 	}
 }

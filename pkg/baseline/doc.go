@@ -6,7 +6,7 @@
 // Every closed job-window contributes one value per metric: the job's
 // per-node rate in that window (the mean over the job's nodes of each node's
 // rate, in bytes/s or ops/s). A value below the metric's idle floor
-// (level.Idle) is counted as idle and kept out of the distribution, so every
+// (coding.IsIdle) is counted as idle and kept out of the distribution, so every
 // quantile is a quantile of the non-idle windows.
 //
 // The distribution of one metric over one UTC calendar day is a DDSketch
@@ -26,9 +26,9 @@
 // merges every day of both origins inside the horizon (default 30 days) and
 // computes, per metric, the level cut points at the elevated and critical
 // quantiles (default p99 and p99.9), the five grade cuts of
-// grade.Quantiles, and whether the metric has seen enough non-idle windows
+// coding.GradeQuantiles, and whether the metric has seen enough non-idle windows
 // ([Options.MinWindows], default 1000) for the learned cuts to replace the
-// seed cuts ([Thresholds.Apply]).
+// seed cuts (coding.Assemble over [Thresholds.Learned]).
 //
 // A Day is stored as bytes ([Day.MarshalBinary]): a version byte, the
 // DEFLATE-compressed idle counts and sketches (in the ddsketch library's

@@ -9,6 +9,7 @@ import (
 	"gonum.org/v1/gonum/stat/distuv"
 
 	"sluice/pkg/baseline"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 )
 
@@ -104,4 +105,11 @@ func requireSameDay(t *testing.T, want, got *baseline.Day) {
 		require.Equal(t, want.Windows(id), got.Windows(id), "%s windows", id)
 		require.Equal(t, binsOf(want, id), binsOf(got, id), "%s bins", id)
 	}
+}
+
+// apply is the level cut points and bases coding.Assemble gives for th
+// over seed.
+func apply(th baseline.Thresholds, seed coding.Cuts) (coding.Cuts, coding.Bases) {
+	c, bases := coding.Assemble(seed, th.Learned())
+	return c.Levels, bases
 }

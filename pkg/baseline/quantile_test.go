@@ -14,7 +14,7 @@ import (
 	"gonum.org/v1/gonum/stat/distuv"
 
 	"sluice/pkg/baseline"
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 )
 
@@ -58,7 +58,7 @@ func drawSample(t *testing.T, s sample, seed uint64, n int) (*baseline.Day, []fl
 	for range n {
 		v := next()
 		require.NoError(t, d.Add(s.id, v))
-		if !level.Idle(s.id, v) {
+		if !coding.IsIdle(s.id, v) {
 			nonIdle = append(nonIdle, v)
 		}
 	}

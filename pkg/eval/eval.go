@@ -8,7 +8,7 @@
 // [Run] first learns the cut points as the aggregator does: it generates
 // the centre's ordinary jobs (sim.Ordinary), adds each closed window's
 // per-node rate per metric to a baseline.Baseline and builds the tracker
-// coding from its cuts exactly as pkg/aggregate's learner does (learned
+// coding from its cuts with coding.Assemble, as the aggregator does (learned
 // metrics take the learned cuts and grade cuts, the others the seed
 // coding). It then generates the labelled jobs, scaled by those cuts, and
 // replays them interleaved, as agents would send them: one wire.Sample per
@@ -41,7 +41,7 @@ import (
 	"time"
 
 	"sluice/pkg/baseline"
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/matcher"
 	"sluice/pkg/metric"
 	"sluice/pkg/pattern"
@@ -163,10 +163,10 @@ type Result struct {
 	Benign, BenignFlagged int
 	// FlaggedByClass counts the benign jobs flagged, by class.
 	FlaggedByClass map[string]int
-	// Coding is the coding the jobs were evaluated against; Learned says
+	// Coding is the coding the jobs were evaluated against; Bases says
 	// which metrics' cuts were learned (the others are seeds).
-	Coding  tracker.Coding
-	Learned [metric.Count]bool
+	Coding coding.Coding
+	Bases  coding.Bases
 	// BaselineWindows is the number of job-windows the baseline holds.
 	BaselineWindows int
 	// Samples is the number of samples replayed.
@@ -219,21 +219,21 @@ func Run(o Options) (*Result, error) {
 		return nil, fmt.Errorf("eval: %w", err)
 	}
 	res := &Result{Options: o, Jobs: map[string]int{}, FlaggedByClass: map[string]int{}}
-	coding, learned, windows, err := learn(o)
+	c, bases, windows, err := learn(o)
 	if err != nil {
 		return nil, err
 	}
-	res.Coding, res.Learned, res.BaselineWindows = coding, learned, windows
+	res.Coding, res.Bases, res.BaselineWindows = c, bases, windows
 
 	jobs := sim.Labelled(sim.LabelledOptions{
 		Jobs: o.Jobs, Seed: o.Seed, Step: o.Step, Window: o.Window,
-		Reference: sim.Reference{Cuts: coding.Levels, Grades: coding.Grades},
+		Reference: sim.Reference{Cuts: c.Levels, Grades: c.Grades},
 	})
 	tr, err := tracker.New(tracker.Options{Window: o.Window, Live: o.Live, Patterns: lib, KeepEnded: o.Window})
 	if err != nil {
 		return nil, fmt.Errorf("eval: %w", err)
 	}
-	tr.SetCoding(coding)
+	tr.SetCoding(c)
 	starts := jobStarts(jobs, o)
 	flags, samples, err := replay(tr, jobs, starts, o)
 	if err != nil {
@@ -246,10 +246,10 @@ func Run(o Options) (*Result, error) {
 
 // learn builds the coding from the ordinary jobs' windows, as
 // pkg/aggregate's learner does.
-func learn(o Options) (tracker.Coding, [metric.Count]bool, int, error) {
+func learn(o Options) (coding.Coding, coding.Bases, int, error) {
 	b, err := baseline.New(nil)
 	if err != nil {
-		return tracker.Coding{}, [metric.Count]bool{}, 0, fmt.Errorf("eval: %w", err)
+		return coding.Coding{}, coding.Bases{}, 0, fmt.Errorf("eval: %w", err)
 	}
 	day := baseline.DayOf(o.Start)
 	windows := 0
@@ -262,20 +262,8 @@ func learn(o Options) (tracker.Coding, [metric.Count]bool, int, error) {
 		}
 	}
 	th := b.Cuts(o.Start)
-	seed := level.DefaultCuts()
-	var c tracker.Coding
-	var src baseline.Sources
-	c.Levels, src = th.Apply(seed)
-	seedCoding := tracker.SeedCoding(seed)
-	var learned [metric.Count]bool
-	for i, m := range th.Metrics {
-		c.Grades[i] = seedCoding.Grades[i]
-		if src[i] == baseline.SourceLearned {
-			c.Grades[i] = m.Grade
-			learned[i] = true
-		}
-	}
-	return c, learned, windows, nil
+	c, bases := coding.Assemble(coding.DefaultCuts(), th.Learned())
+	return c, bases, windows, nil
 }
 
 // windowRates returns a job's window values as the tracker computes them:

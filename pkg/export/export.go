@@ -44,7 +44,7 @@ import (
 
 	"github.com/prometheus/client_golang/prometheus"
 
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
 )
@@ -84,7 +84,7 @@ type Snapshot struct {
 	Ingest Ingest
 	// Jobs are the running jobs; an entry with State "ended" is skipped.
 	Jobs      []model.Summary
-	Cuts      level.Cuts
+	Cuts      coding.Cuts
 	Baseline  Baseline
 	Patterns  []PatternInfo // the pattern library in force
 	Watermark time.Time     // latest interval end seen; zero leaves out the lag
@@ -277,15 +277,15 @@ func splitKey(key string) (kind, reason string) {
 	return key, "other"
 }
 
-func (c *Collector) collectCuts(cuts level.Cuts, sources [metric.Count]string, gauge func(*prometheus.Desc, float64, ...string)) {
+func (c *Collector) collectCuts(cuts coding.Cuts, sources [metric.Count]string, gauge func(*prometheus.Desc, float64, ...string)) {
 	for _, id := range metric.All() {
 		d := descCutOps
 		if id.IsBytes() {
 			d = descCutBytes
 		}
 		src := cmp.Or(sources[id], "seed")
-		gauge(d, cuts[id].Elevated, id.String(), level.Elevated.String(), src)
-		gauge(d, cuts[id].Critical, id.String(), level.Critical.String(), src)
+		gauge(d, cuts[id].Elevated, id.String(), coding.Elevated.String(), src)
+		gauge(d, cuts[id].Critical, id.String(), coding.Critical.String(), src)
 	}
 }
 
@@ -325,9 +325,9 @@ const (
 func rank(j *model.Summary) int {
 	r := rankNone
 	switch j.LiveLevels.Max() {
-	case level.Elevated:
+	case coding.Elevated:
 		r = rankElevated
-	case level.Critical:
+	case coding.Critical:
 		r = rankCritical
 	}
 	for _, f := range j.ActiveFlags {
@@ -372,7 +372,7 @@ func (c *Collector) collectJobs(s Snapshot, gauge func(*prometheus.Desc, float64
 		}
 	}
 	for l, n := range byLevel {
-		gauge(descRunning, float64(n), level.Level(l).String())
+		gauge(descRunning, float64(n), coding.Level(l).String())
 	}
 	slices.SortFunc(notable, func(a, b ranked) int {
 		return cmp.Or(cmp.Compare(b.rank, a.rank), cmp.Compare(a.job.ID, b.job.ID))
@@ -406,7 +406,7 @@ func (c *Collector) collectJobs(s Snapshot, gauge func(*prometheus.Desc, float64
 func seriesOf(j *model.Summary) int {
 	n := 1 // nodes
 	for _, l := range j.LiveLevels {
-		if l > level.Normal {
+		if l > coding.Normal {
 			n += 2
 		}
 	}
@@ -429,7 +429,7 @@ func seriesOf(j *model.Summary) int {
 // exported flag and the pattern scores from MinPatternScore up.
 func emitJob(j *model.Summary, ids []metric.ID, gauge func(*prometheus.Desc, float64, ...string)) {
 	for _, id := range ids {
-		if j.LiveLevels[id] == level.Normal {
+		if j.LiveLevels[id] == coding.Normal {
 			continue
 		}
 		d := descJobOps

@@ -21,8 +21,8 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/coding"
 	"sluice/pkg/export"
-	"sluice/pkg/level"
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
 )
@@ -39,19 +39,19 @@ func fixed() export.Snapshot {
 	storm := model.Summary{JobMeta: model.JobMeta{ID: "81234", User: "dorvane", Name: "quill-index", Start: t0.Add(-10 * time.Minute)}, State: "running", NodesSeen: 64}
 	storm.Live[metric.Creates] = 2500
 	storm.Live[metric.StatOps] = 15000
-	storm.LiveLevels[metric.Creates] = level.Critical
-	storm.LiveLevels[metric.StatOps] = level.Critical
+	storm.LiveLevels[metric.Creates] = coding.Critical
+	storm.LiveLevels[metric.StatOps] = coding.Critical
 	storm.ActiveFlags = []model.Flag{
-		{ID: "81234/critical:creates/1", Job: "81234", Reason: "critical:creates", Metric: metric.Creates, Level: level.Critical,
+		{ID: "81234/critical:creates/1", Job: "81234", Reason: "critical:creates", Metric: metric.Creates, Level: coding.Critical,
 			Score: 1, Severity: "warning", Summary: "creates 2.5k/s per node > critical cut 1k/s", Value: 2500, Cut: 1000, Since: t0},
-		{ID: "81234/pattern:metadata_storm/1", Job: "81234", Reason: "pattern:metadata_storm", Metric: metric.Creates, Level: level.Critical,
+		{ID: "81234/pattern:metadata_storm/1", Job: "81234", Reason: "pattern:metadata_storm", Metric: metric.Creates, Level: coding.Critical,
 			Pattern: "metadata_storm", Title: "Metadata storm", Score: 0.91, Severity: "critical",
 			Summary: "Metadata storm (score 0.91) on 64 nodes", Since: t0.Add(-3 * time.Minute)},
 	}
 	storm.PatternScores = map[string]float64{"metadata_storm": 0.91, "stat_polling": 0.5, "small_write_flood": 0.12}
 	stream := model.Summary{JobMeta: model.JobMeta{ID: "81230", User: "ambrel", Name: "tidepool-assim"}, State: "running", NodesSeen: 4}
 	stream.Live[metric.WriteBytes] = 1.5e9
-	stream.LiveLevels[metric.WriteBytes] = level.Elevated
+	stream.LiveLevels[metric.WriteBytes] = coding.Elevated
 	stream.ActiveFlags = []model.Flag{{ID: "81230/pattern:heavy_streaming/1", Job: "81230", Reason: "pattern:heavy_streaming", Metric: metric.WriteBytes,
 		Pattern: "heavy_streaming", Title: "Heavy streaming", Score: 0.77, Severity: "info", Summary: "Heavy streaming (score 0.77) on 4 nodes",
 		Since: t0.Add(-5 * time.Minute), Silenced: true}}
@@ -73,7 +73,7 @@ func fixed() export.Snapshot {
 			Sources: []model.AgentSource{{Name: "lustre", Instances: 1, MicrosPerRead: 19, OK: false, Malformed: 3}}},
 	}
 	return export.Snapshot{
-		Ingest: in, Jobs: []model.Summary{idle, stream, hushed, storm}, Cuts: level.DefaultCuts(),
+		Ingest: in, Jobs: []model.Summary{idle, stream, hushed, storm}, Cuts: coding.DefaultCuts(),
 		Watermark: t0, Now: t0.Add(2 * time.Second), Nodes: 70, MaxJobSeries: 100, Agents: agents,
 		Patterns: []export.PatternInfo{{Name: "metadata_storm", Title: "Metadata storm", Severity: "critical",
 			Advice: "Consider contacting the user about one file per task.\n  Follow your site's policy before acting on a job."}},
@@ -273,10 +273,10 @@ func TestJobsLeaveWhenNormalOrEnded(t *testing.T) {
 	present := func() bool { return jobIDs((gather(t, s)))["81230"] }
 	require.True(t, present())
 
-	s.Jobs[1].LiveLevels = level.Levels{}
+	s.Jobs[1].LiveLevels = coding.Levels{}
 	assert.False(t, present(), "back to normal: gone at the next scrape")
 
-	s.Jobs[1].LiveLevels[metric.WriteBytes] = level.Critical
+	s.Jobs[1].LiveLevels[metric.WriteBytes] = coding.Critical
 	require.True(t, present())
 	s.Jobs[1].State = "ended"
 	assert.False(t, present(), "an ended entry is skipped")
@@ -288,24 +288,24 @@ func TestCapOrder(t *testing.T) {
 	// Most severe first: flag severity critical > warning > info > highest
 	// level critical > elevated; equal ranks by job id. The snapshot lists
 	// them scrambled; a flag's own level and a silenced flag do not count.
-	job := func(id string, l level.Level, severities ...string) model.Summary {
+	job := func(id string, l coding.Level, severities ...string) model.Summary {
 		j := model.Summary{JobMeta: model.JobMeta{ID: id}, State: "running"}
 		j.LiveLevels[metric.Opens] = l
 		for _, sev := range severities {
-			j.ActiveFlags = append(j.ActiveFlags, model.Flag{Reason: "pattern:" + sev, Pattern: sev, Severity: sev, Level: level.Critical})
+			j.ActiveFlags = append(j.ActiveFlags, model.Flag{Reason: "pattern:" + sev, Pattern: sev, Severity: sev, Level: coding.Critical})
 		}
 		return j
 	}
-	silenced := job("a-silenced", level.Elevated, "critical")
+	silenced := job("a-silenced", coding.Elevated, "critical")
 	silenced.ActiveFlags[0].Silenced = true
-	cleared := job("a-cleared", level.Elevated, "critical")
+	cleared := job("a-cleared", coding.Elevated, "critical")
 	cleared.ActiveFlags[0].Cleared = t0
 	want := []string{"j-crit-flag", "k-crit-flag", "h-warn-flag", "b-info-flag", "z-unknown-flag", "a-crit-level", "a-cleared", "a-elevated", "a-silenced", "c-elevated"}
 	jobs := []model.Summary{
-		job("c-elevated", level.Elevated), job("b-info-flag", level.Normal, "info"), job("a-crit-level", level.Critical),
-		job("k-crit-flag", level.Normal, "info", "critical"), silenced, job("h-warn-flag", level.Critical, "warning"),
-		job("a-elevated", level.Elevated), job("z-unknown-flag", level.Normal, "bogus"), cleared, job("j-crit-flag", level.Elevated, "critical"),
-		job("a-normal", level.Normal),
+		job("c-elevated", coding.Elevated), job("b-info-flag", coding.Normal, "info"), job("a-crit-level", coding.Critical),
+		job("k-crit-flag", coding.Normal, "info", "critical"), silenced, job("h-warn-flag", coding.Critical, "warning"),
+		job("a-elevated", coding.Elevated), job("z-unknown-flag", coding.Normal, "bogus"), cleared, job("j-crit-flag", coding.Elevated, "critical"),
+		job("a-normal", coding.Normal),
 	}
 	per := seriesByJob(gather(t, export.Snapshot{Jobs: jobs, MaxJobSeries: 1 << 30}))
 	for n := 0; n <= len(want); n++ {
@@ -346,12 +346,12 @@ func manyJobs(n int) []model.Summary {
 			}
 			continue
 		case k < 97:
-			j.LiveLevels[metric.Opens] = level.Elevated
+			j.LiveLevels[metric.Opens] = coding.Elevated
 		case k == 97:
-			j.LiveLevels[metric.Creates] = level.Critical
+			j.LiveLevels[metric.Creates] = coding.Critical
 		default:
 			sev := severities[(2*(i/100)+k-98)%3]
-			j.LiveLevels[metric.Creates] = level.Critical
+			j.LiveLevels[metric.Creates] = coding.Critical
 			j.ActiveFlags = []model.Flag{
 				{Reason: "critical:creates", Severity: "warning", Score: 1, Summary: "creates 2.5k/s per node > critical cut 1k/s", Since: t0},
 				{Reason: "pattern:metadata_storm", Pattern: "metadata_storm", Severity: sev, Score: 0.91, Summary: "Metadata storm (score 0.91) on 64 nodes", Since: t0},

@@ -37,7 +37,7 @@ import (
 	"fmt"
 	"slices"
 
-	"sluice/pkg/grade"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 	"sluice/pkg/pattern"
 	"sluice/pkg/similarity"
@@ -116,7 +116,7 @@ type Job struct {
 	hists   []*similarity.Histograms // by Library.lasts
 	windows int
 	scores  []Score
-	window  [metric.Count]grade.Grade
+	window  [metric.Count]coding.Grade
 }
 
 // NewJob returns a job's fresh state.

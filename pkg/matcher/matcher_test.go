@@ -10,12 +10,10 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
-	"sluice/pkg/grade"
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/matcher"
 	"sluice/pkg/metric"
 	"sluice/pkg/pattern"
-	"sluice/pkg/signature"
 )
 
 func parse(t testing.TB, name, text string) *pattern.Pattern {
@@ -35,8 +33,8 @@ func example(t testing.TB) *pattern.Pattern {
 }
 
 // windowOf codes write_bytes, write_ops, creates and syncs; the rest idle.
-func windowOf(wb, wo, cr, sy grade.Grade) pattern.WindowView {
-	var g signature.Grades
+func windowOf(wb, wo, cr, sy coding.Grade) pattern.WindowView {
+	var g coding.Grades
 	g[metric.WriteBytes], g[metric.WriteOps], g[metric.Creates], g[metric.Syncs] = wb, wo, cr, sy
 	return pattern.WindowView{Grades: g, Nodes: 1}
 }
@@ -54,7 +52,7 @@ func TestSellersFindsTheExampleInsideAJob(t *testing.T) {
 	}
 	// The example, window by window: "116611" "114411" "005500" "004400".
 	var last matcher.Score
-	for _, w := range [][4]grade.Grade{{1, 1, 0, 0}, {1, 1, 0, 0}, {6, 4, 5, 4}, {6, 4, 5, 4}, {1, 1, 0, 0}, {1, 1, 0, 0}} {
+	for _, w := range [][4]coding.Grade{{1, 1, 0, 0}, {1, 1, 0, 0}, {6, 4, 5, 4}, {6, 4, 5, 4}, {1, 1, 0, 0}, {1, 1, 0, 0}} {
 		last = job.Window(windowOf(w[0], w[1], w[2], w[3]))[0]
 	}
 	assert.InDelta(t, 1, last.Score, 1e-12)
@@ -85,7 +83,7 @@ func TestRuleKOfNAndLive(t *testing.T) {
 	require.NoError(t, err)
 	job := lib.NewJob()
 	crit := pattern.WindowView{Nodes: 4}
-	crit.Levels[metric.Creates] = level.Critical
+	crit.Levels[metric.Creates] = coding.Critical
 	calm := pattern.WindowView{Nodes: 4}
 
 	s := job.Window(crit)[0]
@@ -132,8 +130,8 @@ func TestReplayGivesTheSameState(t *testing.T) {
 func randomView(r *rand.Rand) pattern.WindowView {
 	v := pattern.WindowView{Nodes: 1 + r.IntN(64), BusiestShare: r.Float64(), NodeSpread: 2 * r.Float64()}
 	for i := range v.Grades {
-		v.Grades[i] = grade.Grade(r.IntN(grade.Count))
-		v.Levels[i] = level.Level(max(0, int(v.Grades[i])-4))
+		v.Grades[i] = coding.Grade(r.IntN(coding.GradeCount))
+		v.Levels[i] = coding.Level(max(0, int(v.Grades[i])-4))
 		v.Rates[i] = r.ExpFloat64() * 1e3
 	}
 	return v
@@ -151,9 +149,9 @@ func library100(t testing.TB) *matcher.Library {
 			Example: &pattern.Example{Method: methods[i%3]}}
 		n := 6 + r.IntN(7)
 		for _, id := range r.Perm(int(metric.Count))[:3+r.IntN(3)] {
-			gs := make([]grade.Grade, n)
+			gs := make([]coding.Grade, n)
 			for k := range gs {
-				gs[k] = grade.Grade(r.IntN(grade.Count))
+				gs[k] = coding.Grade(r.IntN(coding.GradeCount))
 			}
 			p.Example.Metrics = append(p.Example.Metrics, metric.ID(id))
 			p.Example.Grades = append(p.Example.Grades, gs)

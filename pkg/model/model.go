@@ -17,9 +17,8 @@ package model
 import (
 	"time"
 
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
-	"sluice/pkg/signature"
 )
 
 // JobMeta is what the scheduler hooks tell about a job.
@@ -49,9 +48,9 @@ type Window struct {
 	Nodes int       `json:"nodes"` // nodes that reported in the window
 	// Rates is the mean over reporting nodes of each node's rate
 	// (bytes/s or ops/s), indexed by metric.ID.
-	Rates  metric.Rates     `json:"rates"`
-	Levels level.Levels     `json:"levels"`
-	Grades signature.Grades `json:"grades"`
+	Rates  metric.Rates  `json:"rates"`
+	Levels coding.Levels `json:"levels"`
+	Grades coding.Grades `json:"grades"`
 	// BusiestShare is the busiest node's share of the job's data bytes
 	// (read plus write) in the window, 0 to 1; 1 for a one-node job and 0
 	// when no bytes moved. NodeSpread is the coefficient of variation of
@@ -68,11 +67,11 @@ type Window struct {
 // Pattern, Title, Score, Severity, Advice and Drivers set; its Metric is
 // the first driver's.
 type Flag struct {
-	ID     string      `json:"id"`
-	Job    string      `json:"job"`
-	Reason string      `json:"reason"` // e.g. "critical:creates" or "pattern:metadata_storm"
-	Metric metric.ID   `json:"metric"`
-	Level  level.Level `json:"level"`
+	ID     string       `json:"id"`
+	Job    string       `json:"job"`
+	Reason string       `json:"reason"` // e.g. "critical:creates" or "pattern:metadata_storm"
+	Metric metric.ID    `json:"metric"`
+	Level  coding.Level `json:"level"`
 	// Pattern is the matched pattern's name; empty on a critical-I/O flag.
 	Pattern string `json:"pattern,omitempty"`
 	// Title is the pattern's short title, e.g. "Metadata storm".
@@ -109,12 +108,12 @@ type Flag struct {
 // Driver is one metric behind a pattern flag: its per-node rate, level and
 // grade in the window that raised it, and the cut points in force.
 type Driver struct {
-	Metric   metric.ID   `json:"metric"`
-	Rate     float64     `json:"rate"`
-	Level    level.Level `json:"level"`
-	Grade    uint8       `json:"grade"`
-	Elevated float64     `json:"elevated_cut"`
-	Critical float64     `json:"critical_cut"`
+	Metric   metric.ID    `json:"metric"`
+	Rate     float64      `json:"rate"`
+	Level    coding.Level `json:"level"`
+	Grade    uint8        `json:"grade"`
+	Elevated float64      `json:"elevated_cut"`
+	Critical float64      `json:"critical_cut"`
 }
 
 // Active reports whether the flag has not been cleared.
@@ -123,12 +122,12 @@ func (f Flag) Active() bool { return f.Cleared.IsZero() }
 // Summary is a running or recently ended job as the API lists it.
 type Summary struct {
 	JobMeta
-	State      string           `json:"state"` // "running" or "ended"
-	NodesSeen  int              `json:"nodes_seen"`
-	LastSample time.Time        `json:"last_sample,omitzero"`
-	Live       metric.Rates     `json:"live"` // live-window per-node rates
-	LiveLevels level.Levels     `json:"live_levels"`
-	LiveGrades signature.Grades `json:"live_grades"`
+	State      string        `json:"state"` // "running" or "ended"
+	NodesSeen  int           `json:"nodes_seen"`
+	LastSample time.Time     `json:"last_sample,omitzero"`
+	Live       metric.Rates  `json:"live"` // live-window per-node rates
+	LiveLevels coding.Levels `json:"live_levels"`
+	LiveGrades coding.Grades `json:"live_grades"`
 	// Signature is each metric's signature in compact text form
 	// (signature.Signature.Text), keyed by metric name.
 	Signature   map[string]string `json:"signature"`

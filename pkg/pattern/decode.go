@@ -12,8 +12,7 @@ import (
 
 	"go.yaml.in/yaml/v3"
 
-	"sluice/pkg/grade"
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 )
 
@@ -417,16 +416,16 @@ func (d *decoder) operand(c *Condition, n *yaml.Node, field string) {
 			d.fail(n, field, "%v; want normal, elevated or critical", err)
 			return
 		}
-		if c.Op == LevelAtLeast && c.Level == level.Normal || c.Op == LevelAtMost && c.Level == level.Critical {
+		if c.Op == LevelAtLeast && c.Level == coding.Normal || c.Op == LevelAtMost && c.Level == coding.Critical {
 			d.fail(n, field, "%s %s always holds; drop the condition", c.Op, c.Level)
 		}
 	case GradeAtLeast, GradeAtMost:
-		g, ok := d.integer(n, field, 0, int(grade.Top))
+		g, ok := d.integer(n, field, 0, int(coding.GradeTop))
 		if !ok {
 			return
 		}
-		c.Grade = grade.Grade(g)
-		if c.Op == GradeAtLeast && c.Grade == grade.Idle || c.Op == GradeAtMost && c.Grade == grade.Top {
+		c.Grade = coding.Grade(g)
+		if c.Op == GradeAtLeast && c.Grade == coding.GradeIdle || c.Op == GradeAtMost && c.Grade == coding.GradeTop {
 			d.fail(n, field, "%s %d always holds; drop the condition", c.Op, g)
 		}
 	case Below, Above:
@@ -531,7 +530,7 @@ func (d *decoder) example(n *yaml.Node) *Example {
 			d.fail(k, field, "%s is not in example.metrics", id)
 		}
 	}
-	e.Grades = make([][]grade.Grade, len(e.Metrics))
+	e.Grades = make([][]coding.Grade, len(e.Metrics))
 	var first metric.ID
 	firstLen := -1
 	for t, id := range e.Metrics {
@@ -547,7 +546,7 @@ func (d *decoder) example(n *yaml.Node) *Example {
 			d.fail(vn, field, "want a quoted string of grade digits (e.g. \"566666\"), got %s", describe(vn))
 			continue
 		}
-		gs, err := grade.Parse(vn.Value)
+		gs, err := coding.ParseGrades(vn.Value)
 		switch {
 		case err != nil:
 			d.fail(vn, field, "%v", err)

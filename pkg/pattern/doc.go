@@ -68,8 +68,8 @@
 //	{derived: Q, below: X}          Q < X, strictly (X > 0)
 //	{derived: Q, above: X}          Q > X, strictly
 //
-// M is one of the twelve metrics (package metric), levels are those of
-// package level and grades those of package grade (0 idle, 1 <= p50, 2 <=
+// M is one of the twelve metrics (package metric), levels and grades are
+// those of package coding (0 idle, 1 <= p50, 2 <=
 // p75, 3 <= p90, 4 <= p99, 5 elevated, 6 critical). A comparison that
 // always holds (level: normal, grade_at_least: 0, ...) or never holds
 // (below: 0, a share above 1) is refused. The derived quantities, from the
@@ -110,7 +110,7 @@
 //	  last: 36                # ks only, optional: compare with the job's last 36 windows, 1..1008
 //
 // metrics lists distinct metrics; grades gives each of them, and only
-// them, a quoted string of grade digits as grade.Parse reads it (spaces
+// them, a quoted string of grade digits as coding.ParseGrades reads it (spaces
 // are ignored), all of the same length, 1 to 64 windows, oldest first.
 // Without last, ks compares with all of the job's windows.
 //

@@ -5,18 +5,17 @@ import (
 	"math"
 	"math/bits"
 
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
-	"sluice/pkg/signature"
 )
 
 // WindowView is what a rule sees of one closed (or live) window of a job.
 type WindowView struct {
 	// Levels is the window's level per metric.
-	Levels level.Levels
+	Levels coding.Levels
 	// Grades is the window's grade per metric.
-	Grades signature.Grades
+	Grades coding.Grades
 	// Rates is the window's per-node rate per metric: the mean over the
 	// job's nodes of each node's rate, in bytes/s or ops/s.
 	Rates metric.Rates

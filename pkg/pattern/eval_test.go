@@ -8,8 +8,7 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
-	"sluice/pkg/grade"
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 	"sluice/pkg/pattern"
 )
@@ -100,8 +99,8 @@ func TestQuantities(t *testing.T) {
 
 func TestConditionHolds(t *testing.T) {
 	var w pattern.WindowView
-	w.Levels[metric.Creates] = level.Critical
-	w.Levels[metric.ReadBytes] = level.Elevated
+	w.Levels[metric.Creates] = coding.Critical
+	w.Levels[metric.ReadBytes] = coding.Elevated
 	w.Grades[metric.StatOps] = 4
 	w.Rates[metric.WriteBytes] = 1e6
 	w.Rates[metric.WriteOps] = 100 // mean write 10000 B
@@ -110,11 +109,11 @@ func TestConditionHolds(t *testing.T) {
 		input pattern.Condition
 		want  bool
 	}{
-		{"level reached", pattern.Condition{Op: pattern.LevelAtLeast, Metric: metric.Creates, Level: level.Critical}, true},
-		{"level above", pattern.Condition{Op: pattern.LevelAtLeast, Metric: metric.Creates, Level: level.Elevated}, true},
-		{"level not reached", pattern.Condition{Op: pattern.LevelAtLeast, Metric: metric.ReadBytes, Level: level.Critical}, false},
-		{"level_at_most equal", pattern.Condition{Op: pattern.LevelAtMost, Metric: metric.ReadBytes, Level: level.Elevated}, true},
-		{"level_at_most exceeded", pattern.Condition{Op: pattern.LevelAtMost, Metric: metric.ReadBytes, Level: level.Normal}, false},
+		{"level reached", pattern.Condition{Op: pattern.LevelAtLeast, Metric: metric.Creates, Level: coding.Critical}, true},
+		{"level above", pattern.Condition{Op: pattern.LevelAtLeast, Metric: metric.Creates, Level: coding.Elevated}, true},
+		{"level not reached", pattern.Condition{Op: pattern.LevelAtLeast, Metric: metric.ReadBytes, Level: coding.Critical}, false},
+		{"level_at_most equal", pattern.Condition{Op: pattern.LevelAtMost, Metric: metric.ReadBytes, Level: coding.Elevated}, true},
+		{"level_at_most exceeded", pattern.Condition{Op: pattern.LevelAtMost, Metric: metric.ReadBytes, Level: coding.Normal}, false},
 		{"grade_at_least equal", pattern.Condition{Op: pattern.GradeAtLeast, Metric: metric.StatOps, Grade: 4}, true},
 		{"grade_at_least not reached", pattern.Condition{Op: pattern.GradeAtLeast, Metric: metric.StatOps, Grade: 5}, false},
 		{"grade_at_most equal", pattern.Condition{Op: pattern.GradeAtMost, Metric: metric.StatOps, Grade: 4}, true},
@@ -126,7 +125,7 @@ func TestConditionHolds(t *testing.T) {
 		{"undefined quantity holds neither way (below)", pattern.Condition{Op: pattern.Below, Quantity: pattern.MeanReadSize, Value: 1e9}, false},
 		{"undefined quantity holds neither way (above)", pattern.Condition{Op: pattern.Above, Quantity: pattern.MeanReadSize, Value: 1}, false},
 		{"zero condition", pattern.Condition{}, false},
-		{"invalid metric", pattern.Condition{Op: pattern.LevelAtMost, Metric: metric.Count, Level: level.Critical}, false},
+		{"invalid metric", pattern.Condition{Op: pattern.LevelAtMost, Metric: metric.Count, Level: coding.Critical}, false},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
@@ -136,7 +135,7 @@ func TestConditionHolds(t *testing.T) {
 }
 
 func TestConditionString(t *testing.T) {
-	assert.Equal(t, "creates level >= critical", pattern.Condition{Op: pattern.LevelAtLeast, Metric: metric.Creates, Level: level.Critical}.String())
+	assert.Equal(t, "creates level >= critical", pattern.Condition{Op: pattern.LevelAtLeast, Metric: metric.Creates, Level: coding.Critical}.String())
 	assert.Equal(t, "read_bytes level <= normal", pattern.Condition{Op: pattern.LevelAtMost, Metric: metric.ReadBytes}.String())
 	assert.Equal(t, "stat_ops grade >= 4", pattern.Condition{Op: pattern.GradeAtLeast, Metric: metric.StatOps, Grade: 4}.String())
 	assert.Equal(t, "mean_write_size < 65536 bytes", pattern.Condition{Op: pattern.Below, Quantity: pattern.MeanWriteSize, Value: 65536}.String())
@@ -145,18 +144,18 @@ func TestConditionString(t *testing.T) {
 
 func TestRuleHolds(t *testing.T) {
 	critical := func(id metric.ID) pattern.Condition {
-		return pattern.Condition{Op: pattern.LevelAtLeast, Metric: id, Level: level.Critical}
+		return pattern.Condition{Op: pattern.LevelAtLeast, Metric: id, Level: coding.Critical}
 	}
 	r := &pattern.Rule{
 		Hold:     pattern.Hold{K: 1, N: 1},
 		MinNodes: 2,
-		All:      []pattern.Condition{{Op: pattern.LevelAtMost, Metric: metric.ReadBytes, Level: level.Normal}},
+		All:      []pattern.Condition{{Op: pattern.LevelAtMost, Metric: metric.ReadBytes, Level: coding.Normal}},
 		Any:      []pattern.Condition{critical(metric.Creates), critical(metric.Removes)},
 	}
 	view := func(nodes int, crit ...metric.ID) pattern.WindowView {
 		w := pattern.WindowView{Nodes: nodes}
 		for _, id := range crit {
-			w.Levels[id] = level.Critical
+			w.Levels[id] = coding.Critical
 		}
 		return w
 	}
@@ -253,15 +252,15 @@ func TestThresholdAgreesWithMatched(t *testing.T) {
 // view builds a WindowView from per-node rates, with levels from the
 // default cut points and grades from a made-up but consistent baseline
 // whose five grade cuts are elevated/100, /20, /5, elevated and critical
-// (so grade 5 is elevated and grade 6 critical, as in package grade).
+// (so grade 5 is elevated and grade 6 critical, as in package coding).
 func view(r map[metric.ID]float64, nodes int, busiest float64) pattern.WindowView {
-	cuts := level.DefaultCuts()
+	cuts := coding.DefaultCuts()
 	w := pattern.WindowView{Rates: rates(r), Nodes: nodes, BusiestShare: busiest}
 	for id := range metric.Count {
 		c := cuts[id]
 		w.Levels[id] = cuts.Classify(id, w.Rates[id])
-		g := grade.Cuts{c.Elevated / 100, c.Elevated / 20, c.Elevated / 5, c.Elevated, c.Critical}
-		w.Grades[id] = g.Code(w.Rates[id], level.Idle(id, w.Rates[id]))
+		g := coding.GradeCuts{c.Elevated / 100, c.Elevated / 20, c.Elevated / 5, c.Elevated, c.Critical}
+		w.Grades[id] = g.Code(w.Rates[id], coding.IsIdle(id, w.Rates[id]))
 	}
 	return w
 }
@@ -327,17 +326,17 @@ func TestHoldsBetween(t *testing.T) {
 	r := &pattern.Rule{
 		Hold: pattern.Hold{K: 1, N: 1},
 		All: []pattern.Condition{
-			{Op: pattern.LevelAtLeast, Metric: metric.Creates, Level: level.Critical},
-			{Op: pattern.LevelAtMost, Metric: metric.WriteBytes, Level: level.Normal},
+			{Op: pattern.LevelAtLeast, Metric: metric.Creates, Level: coding.Critical},
+			{Op: pattern.LevelAtMost, Metric: metric.WriteBytes, Level: coding.Normal},
 		},
 	}
 	var low, high pattern.WindowView
-	low.Levels[metric.Creates], high.Levels[metric.Creates] = level.Critical, level.Critical
+	low.Levels[metric.Creates], high.Levels[metric.Creates] = coding.Critical, coding.Critical
 	assert.True(t, r.HoldsBetween(low, high))
-	high.Levels[metric.WriteBytes] = level.Critical // critical so far, diluted in low
+	high.Levels[metric.WriteBytes] = coding.Critical // critical so far, diluted in low
 	assert.True(t, r.Holds(low), "the low bound alone would match")
 	assert.False(t, r.HoldsBetween(low, high))
-	low.Levels[metric.Creates] = level.Elevated // critical only at the rate so far
-	high.Levels[metric.WriteBytes] = level.Normal
+	low.Levels[metric.Creates] = coding.Elevated // critical only at the rate so far
+	high.Levels[metric.WriteBytes] = coding.Normal
 	assert.False(t, r.HoldsBetween(low, high))
 }

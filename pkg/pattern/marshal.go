@@ -9,7 +9,7 @@ import (
 
 	"go.yaml.in/yaml/v3"
 
-	"sluice/pkg/grade"
+	"sluice/pkg/coding"
 )
 
 // Marshal writes p in the pattern file format, fields in the order the
@@ -113,11 +113,11 @@ func exampleNode(e *Example) *yaml.Node {
 	grades := mappingNode()
 	for i, id := range e.Metrics {
 		metrics.Content = append(metrics.Content, strNode(id.String()))
-		var gs []grade.Grade
+		var gs []coding.Grade
 		if i < len(e.Grades) {
 			gs = e.Grades[i]
 		}
-		g := strNode(grade.Format(gs))
+		g := strNode(coding.FormatGrades(gs))
 		g.Style = yaml.DoubleQuotedStyle
 		add(grades, id.String(), g)
 	}

@@ -9,8 +9,7 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
-	"sluice/pkg/grade"
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 	"sluice/pkg/pattern"
 )
@@ -45,8 +44,8 @@ func TestMarshalRoundTripExample(t *testing.T) {
 // TestMarshalLearned is what `patterns learn` does: build an example from
 // a signature and write it; the exact output is the format's reference.
 func TestMarshalLearned(t *testing.T) {
-	g := func(s string) []grade.Grade {
-		gs, err := grade.Parse(s)
+	g := func(s string) []coding.Grade {
+		gs, err := coding.ParseGrades(s)
 		require.NoError(t, err)
 		return gs
 	}
@@ -64,7 +63,7 @@ func TestMarshalLearned(t *testing.T) {
 		Example: &pattern.Example{
 			Method:  pattern.KS,
 			Metrics: []metric.ID{metric.Creates, metric.StatOps},
-			Grades:  [][]grade.Grade{g("0566"), g("1456")},
+			Grades:  [][]coding.Grade{g("0566"), g("1456")},
 			Last:    12,
 		},
 	}
@@ -103,7 +102,7 @@ func TestMarshalRule(t *testing.T) {
 				{Op: pattern.Below, Quantity: pattern.DataBytes, Value: 1e20},
 			},
 			Any: []pattern.Condition{
-				{Op: pattern.LevelAtLeast, Metric: metric.Creates, Level: level.Elevated},
+				{Op: pattern.LevelAtLeast, Metric: metric.Creates, Level: coding.Elevated},
 				{Op: pattern.GradeAtMost, Metric: metric.ReadBytes, Grade: 1},
 			},
 		},
@@ -126,7 +125,7 @@ func TestMarshalDefaults(t *testing.T) {
 	p := &pattern.Pattern{
 		Name: "zero_settings", Title: "t", Description: "d", Rationale: "r", Advice: "a",
 		Rule: &pattern.Rule{Hold: pattern.Hold{K: 1, N: 1}, All: []pattern.Condition{
-			{Op: pattern.LevelAtLeast, Metric: metric.Syncs, Level: level.Critical}}},
+			{Op: pattern.LevelAtLeast, Metric: metric.Syncs, Level: coding.Critical}}},
 	}
 	out, err := p.Marshal()
 	require.NoError(t, err)
@@ -145,7 +144,7 @@ func TestMarshalErrors(t *testing.T) {
 		return &pattern.Pattern{
 			Name: "valid_name", Title: "t", Description: "d", Rationale: "r", Advice: "a",
 			Rule: &pattern.Rule{Hold: pattern.Hold{K: 2, N: 3}, All: []pattern.Condition{
-				{Op: pattern.LevelAtLeast, Metric: metric.Syncs, Level: level.Critical}}},
+				{Op: pattern.LevelAtLeast, Metric: metric.Syncs, Level: coding.Critical}}},
 		}
 	}
 	tests := []struct {
@@ -159,11 +158,11 @@ func TestMarshalErrors(t *testing.T) {
 		{"bad name", func(p *pattern.Pattern) { p.Name = "Bad" }, `the output does not parse: Bad.yaml:2: name: "Bad" is not a valid name`},
 		{"empty advice", func(p *pattern.Pattern) { p.Advice = "" }, "advice: must not be empty"},
 		{"k above n", func(p *pattern.Pattern) { p.Rule.Hold.K = 4 }, "rule.hold.k: 4 is above n (3)"},
-		{"invalid level condition", func(p *pattern.Pattern) { p.Rule.All[0].Level = level.Normal }, "rule.all[0].level: level normal always holds"},
+		{"invalid level condition", func(p *pattern.Pattern) { p.Rule.All[0].Level = coding.Normal }, "rule.all[0].level: level normal always holds"},
 		{"example with uneven grades", func(p *pattern.Pattern) {
 			p.Rule = nil
 			p.Example = &pattern.Example{Metrics: []metric.ID{metric.Opens, metric.Closes},
-				Grades: [][]grade.Grade{{1, 2}, {1}}}
+				Grades: [][]coding.Grade{{1, 2}, {1}}}
 		}, "example.grades.closes: 1 windows, but opens has 2"},
 		{"example missing grades", func(p *pattern.Pattern) {
 			p.Rule = nil
@@ -191,13 +190,13 @@ func TestMarshalRoundTripRandom(t *testing.T) {
 	cond := func(minNodes int) pattern.Condition {
 		switch rng.IntN(6) {
 		case 0:
-			return pattern.Condition{Op: pattern.LevelAtLeast, Metric: metric.ID(rng.IntN(int(metric.Count))), Level: level.Level(1 + rng.IntN(2))}
+			return pattern.Condition{Op: pattern.LevelAtLeast, Metric: metric.ID(rng.IntN(int(metric.Count))), Level: coding.Level(1 + rng.IntN(2))}
 		case 1:
-			return pattern.Condition{Op: pattern.LevelAtMost, Metric: metric.ID(rng.IntN(int(metric.Count))), Level: level.Level(rng.IntN(2))}
+			return pattern.Condition{Op: pattern.LevelAtMost, Metric: metric.ID(rng.IntN(int(metric.Count))), Level: coding.Level(rng.IntN(2))}
 		case 2:
-			return pattern.Condition{Op: pattern.GradeAtLeast, Metric: metric.ID(rng.IntN(int(metric.Count))), Grade: grade.Grade(1 + rng.IntN(6))}
+			return pattern.Condition{Op: pattern.GradeAtLeast, Metric: metric.ID(rng.IntN(int(metric.Count))), Grade: coding.Grade(1 + rng.IntN(6))}
 		case 3:
-			return pattern.Condition{Op: pattern.GradeAtMost, Metric: metric.ID(rng.IntN(int(metric.Count))), Grade: grade.Grade(rng.IntN(6))}
+			return pattern.Condition{Op: pattern.GradeAtMost, Metric: metric.ID(rng.IntN(int(metric.Count))), Grade: coding.Grade(rng.IntN(6))}
 		}
 		qs := pattern.Quantities()
 		q := qs[rng.IntN(len(qs))]
@@ -240,9 +239,9 @@ func TestMarshalRoundTripRandom(t *testing.T) {
 			length := 1 + rng.IntN(64)
 			for _, id := range rng.Perm(int(metric.Count))[:1+rng.IntN(int(metric.Count))] {
 				e.Metrics = append(e.Metrics, metric.ID(id))
-				gs := make([]grade.Grade, length)
+				gs := make([]coding.Grade, length)
 				for j := range gs {
-					gs[j] = grade.Grade(rng.IntN(grade.Count))
+					gs[j] = coding.Grade(rng.IntN(coding.GradeCount))
 				}
 				e.Grades = append(e.Grades, gs)
 			}

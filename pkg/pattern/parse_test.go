@@ -13,8 +13,7 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
-	"sluice/pkg/grade"
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 	"sluice/pkg/pattern"
 )
@@ -295,12 +294,12 @@ rule:
 			Hold:     pattern.Hold{K: 2, N: 3},
 			MinNodes: 4,
 			All: []pattern.Condition{
-				{Op: pattern.LevelAtMost, Metric: metric.ReadBytes, Level: level.Normal},
+				{Op: pattern.LevelAtMost, Metric: metric.ReadBytes, Level: coding.Normal},
 				{Op: pattern.GradeAtLeast, Metric: metric.StatOps, Grade: 4},
 				{Op: pattern.Below, Quantity: pattern.MeanWriteSize, Value: 65536},
 			},
 			Any: []pattern.Condition{
-				{Op: pattern.LevelAtLeast, Metric: metric.Creates, Level: level.Critical},
+				{Op: pattern.LevelAtLeast, Metric: metric.Creates, Level: coding.Critical},
 				{Op: pattern.GradeAtMost, Metric: metric.Syncs, Grade: 2},
 				{Op: pattern.Above, Quantity: pattern.BusiestNodeShare, Value: 0.8},
 			},
@@ -338,8 +337,8 @@ func TestParseExampleFixture(t *testing.T) {
 	defer f.Close()
 	got, err := pattern.Parse("checkpoint_burst.yaml", f)
 	require.NoError(t, err)
-	g := func(s string) []grade.Grade {
-		gs, err := grade.Parse(s)
+	g := func(s string) []coding.Grade {
+		gs, err := coding.ParseGrades(s)
 		require.NoError(t, err)
 		return gs
 	}
@@ -351,12 +350,12 @@ func TestParseExampleFixture(t *testing.T) {
 	assert.Equal(t, &pattern.Example{
 		Method:  pattern.Sellers,
 		Metrics: []metric.ID{metric.WriteBytes, metric.WriteOps, metric.Creates, metric.Syncs},
-		Grades:  [][]grade.Grade{g("116611"), g("114411"), g("005500"), g("004400")},
+		Grades:  [][]coding.Grade{g("116611"), g("114411"), g("005500"), g("004400")},
 	}, got.Example)
 	assert.Equal(t, 6, got.Example.Len())
 	w := got.Example.Windows()
 	require.Len(t, w, 6)
-	assert.Equal(t, []grade.Grade{6, 4, 5, 4}, w[2], "window 2 in metrics order")
+	assert.Equal(t, []coding.Grade{6, 4, 5, 4}, w[2], "window 2 in metrics order")
 }
 
 func TestParseKSLast(t *testing.T) {

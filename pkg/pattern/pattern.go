@@ -4,8 +4,7 @@ import (
 	"fmt"
 	"strings"
 
-	"sluice/pkg/grade"
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 )
 
@@ -235,9 +234,9 @@ type Condition struct {
 	// Quantity is the subject of Below and Above.
 	Quantity Quantity
 	// Level is the operand of LevelAtLeast and LevelAtMost.
-	Level level.Level
+	Level coding.Level
 	// Grade is the operand of GradeAtLeast and GradeAtMost.
-	Grade grade.Grade
+	Grade coding.Grade
 	// Value is the operand of Below and Above.
 	Value float64
 }
@@ -270,7 +269,7 @@ type Example struct {
 	// Metrics are the metrics compared, in file order, without repeats.
 	Metrics []metric.ID
 	// Grades[i] is the grade sequence of Metrics[i].
-	Grades [][]grade.Grade
+	Grades [][]coding.Grade
 	// Last, for KS only, is how many of the job's latest windows are
 	// compared; 0 means all of them.
 	Last int
@@ -287,10 +286,10 @@ func (e *Example) Len() int {
 // Windows returns the example window by window, oldest first: entry i
 // holds the grades of window i in Metrics order (the layout
 // similarity.NewPattern takes, with the metric IDs as indexes).
-func (e *Example) Windows() [][]grade.Grade {
-	out := make([][]grade.Grade, e.Len())
+func (e *Example) Windows() [][]coding.Grade {
+	out := make([][]coding.Grade, e.Len())
 	for i := range out {
-		out[i] = make([]grade.Grade, len(e.Metrics))
+		out[i] = make([]coding.Grade, len(e.Metrics))
 		for t := range e.Metrics {
 			out[i][t] = e.Grades[t][i]
 		}
@@ -359,7 +358,7 @@ func Describe(p *Pattern) string {
 		}
 		b.WriteString("\n")
 		for i, id := range e.Metrics {
-			fmt.Fprintf(&b, "    %-12s %s\n", id.String()+":", grade.Format(e.Grades[i]))
+			fmt.Fprintf(&b, "    %-12s %s\n", id.String()+":", coding.FormatGrades(e.Grades[i]))
 		}
 	}
 	threshold := formatFloat(p.Threshold)

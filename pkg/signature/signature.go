@@ -21,7 +21,7 @@
 // # Caveats
 //
 // A Signature is not safe for concurrent use. Grades are site-relative (see
-// package grade): signatures coded against different baselines compare
+// package coding): signatures coded against different baselines compare
 // only approximately.
 package signature
 
@@ -32,34 +32,14 @@ import (
 	"strconv"
 	"strings"
 
-	"sluice/pkg/grade"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 )
 
-// Grades is one window's grade per metric, indexed by metric.ID.
-type Grades [metric.Count]grade.Grade
-
-// MarshalText writes the grades as a digit string in metric order, e.g.
-// "000000600400", so that JSON records stay short and readable.
-func (g Grades) MarshalText() ([]byte, error) { return []byte(grade.Format(g[:])), nil }
-
-// UnmarshalText reads the form MarshalText writes.
-func (g *Grades) UnmarshalText(b []byte) error {
-	gs, err := grade.Parse(string(b))
-	if err != nil {
-		return err
-	}
-	if len(gs) != len(g) {
-		return fmt.Errorf("grades %q: %d digits, want %d", b, len(gs), len(g))
-	}
-	copy(g[:], gs)
-	return nil
-}
-
 // Run is Count consecutive windows at one grade.
 type Run struct {
-	Grade grade.Grade `json:"grade"`
-	Count uint32      `json:"count"`
+	Grade coding.Grade `json:"grade"`
+	Count uint32       `json:"count"`
 }
 
 // Signature is one job's grade sequences, one per metric.
@@ -70,12 +50,12 @@ type Signature struct {
 	Windows int
 	// Live is the live window's grades, a provisional next entry; valid
 	// when HasLive.
-	Live    Grades
+	Live    coding.Grades
 	HasLive bool
 }
 
 // Append adds one closed window and drops the provisional live entry.
-func (s *Signature) Append(g Grades) {
+func (s *Signature) Append(g coding.Grades) {
 	for id, gr := range g {
 		runs := s.Runs[id]
 		if n := len(runs); n > 0 && runs[n-1].Grade == gr {
@@ -85,14 +65,14 @@ func (s *Signature) Append(g Grades) {
 		s.Runs[id] = append(runs, Run{Grade: gr, Count: 1})
 	}
 	s.Windows++
-	s.Live, s.HasLive = Grades{}, false
+	s.Live, s.HasLive = coding.Grades{}, false
 }
 
 // SetLive records the live window's grades as the provisional next entry.
-func (s *Signature) SetLive(g Grades) { s.Live, s.HasLive = g, true }
+func (s *Signature) SetLive(g coding.Grades) { s.Live, s.HasLive = g, true }
 
 // Build returns the signature of windows appended in order.
-func Build(windows []Grades) Signature {
+func Build(windows []coding.Grades) Signature {
 	var s Signature
 	for _, w := range windows {
 		s.Append(w)
@@ -101,8 +81,8 @@ func Build(windows []Grades) Signature {
 }
 
 // Sequence expands one metric's runs into one grade per closed window.
-func (s *Signature) Sequence(id metric.ID) []grade.Grade {
-	out := make([]grade.Grade, 0, s.Windows)
+func (s *Signature) Sequence(id metric.ID) []coding.Grade {
+	out := make([]coding.Grade, 0, s.Windows)
 	for _, r := range s.Runs[id] {
 		for range r.Count {
 			out = append(out, r.Grade)
@@ -245,7 +225,7 @@ func (d *decoder) live(s *Signature) {
 		return
 	}
 	for i := range s.Live {
-		if s.Live[i] = grade.Grade(d.b[i]); s.Live[i] >= grade.Count {
+		if s.Live[i] = coding.Grade(d.b[i]); s.Live[i] >= coding.GradeCount {
 			d.fail("live grade %d", d.b[i])
 			return
 		}
@@ -259,12 +239,12 @@ func (d *decoder) run(id metric.ID) Run {
 		d.fail("%s: truncated run", id)
 		return Run{}
 	}
-	g := grade.Grade(d.b[0])
+	g := coding.Grade(d.b[0])
 	d.b = d.b[1:]
 	c := d.uvarint()
 	switch {
 	case d.err != nil:
-	case g >= grade.Count:
+	case g >= coding.GradeCount:
 		d.fail("%s: grade %d", id, g)
 	case c == 0 || c > 1<<32-1:
 		d.fail("%s: run of %d windows", id, c)

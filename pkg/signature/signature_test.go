@@ -7,13 +7,13 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
-	"sluice/pkg/grade"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 	"sluice/pkg/signature"
 )
 
-func grades(first grade.Grade, rest ...grade.Grade) signature.Grades {
-	var g signature.Grades
+func grades(first coding.Grade, rest ...coding.Grade) coding.Grades {
+	var g coding.Grades
 	for i := range g {
 		g[i] = first
 	}
@@ -27,15 +27,15 @@ func grades(first grade.Grade, rest ...grade.Grade) signature.Grades {
 // stays idle.
 func TestAppendCollapsesRuns(t *testing.T) {
 	var s signature.Signature
-	for _, c := range []grade.Grade{0, 0, 5, 6, 6} {
-		var g signature.Grades
+	for _, c := range []coding.Grade{0, 0, 5, 6, 6} {
+		var g coding.Grades
 		g[metric.Creates] = c
 		s.Append(g)
 	}
 	assert.Equal(t, 5, s.Windows)
 	assert.Equal(t, []signature.Run{{0, 2}, {5, 1}, {6, 2}}, s.Runs[metric.Creates])
 	assert.Equal(t, []signature.Run{{0, 5}}, s.Runs[metric.ReadBytes])
-	assert.Equal(t, []grade.Grade{0, 0, 5, 6, 6}, s.Sequence(metric.Creates))
+	assert.Equal(t, []coding.Grade{0, 0, 5, 6, 6}, s.Sequence(metric.Creates))
 	assert.Equal(t, "0x2 5 6x2", s.Text(metric.Creates))
 
 	s.SetLive(grades(1))
@@ -47,13 +47,13 @@ func TestAppendCollapsesRuns(t *testing.T) {
 
 // randomWindows returns n windows whose grades change with probability
 // 1/3 per metric, so that runs of several lengths occur.
-func randomWindows(r *rand.Rand, n int) []signature.Grades {
-	out := make([]signature.Grades, n)
-	var cur signature.Grades
+func randomWindows(r *rand.Rand, n int) []coding.Grades {
+	out := make([]coding.Grades, n)
+	var cur coding.Grades
 	for i := range out {
 		for id := range cur {
 			if r.IntN(3) == 0 {
-				cur[id] = grade.Grade(r.IntN(grade.Count))
+				cur[id] = coding.Grade(r.IntN(coding.GradeCount))
 			}
 		}
 		out[i] = cur

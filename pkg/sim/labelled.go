@@ -67,8 +67,7 @@ import (
 	"slices"
 	"time"
 
-	"sluice/pkg/grade"
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 )
 
@@ -96,8 +95,8 @@ const (
 // Reference is what an injection is scaled by: the cut points and grade
 // cuts in force. Grades[m][2] is the p90 cut of metric m.
 type Reference struct {
-	Cuts   level.Cuts
-	Grades [metric.Count]grade.Cuts
+	Cuts   coding.Cuts
+	Grades [metric.Count]coding.GradeCuts
 }
 
 // critical returns metric id's critical cut.

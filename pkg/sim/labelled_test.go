@@ -7,14 +7,13 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 	"sluice/pkg/sim"
-	"sluice/pkg/tracker"
 )
 
 func reference() sim.Reference {
-	c := tracker.SeedCoding(level.DefaultCuts())
+	c := coding.Seed(coding.DefaultCuts())
 	return sim.Reference{Cuts: c.Levels, Grades: c.Grades}
 }
 

@@ -3,7 +3,7 @@
 //
 // # Basics
 //
-// A job's signature is, per metric, the sequence of grades ([grade.Grade])
+// A job's signature is, per metric, the sequence of grades ([coding.Grade])
 // of its closed windows; a job window is a full vector of [metric.Count]
 // grades indexed by [metric.ID]. A [Pattern] is a short example: m windows
 // over a subset of k metrics (its metric indexes, in the order its window
@@ -61,8 +61,8 @@
 // separate test, so the family's level is not α either. Use the critical
 // value as a threshold on a documented scale, not as an exact p-value.
 //
-// Job windows must hold valid grades (below [grade.Count]) for every metric
-// a pattern uses, as [grade.Cuts.Code] produces; shorter windows panic.
+// Job windows must hold valid grades (below [coding.GradeCount]) for every metric
+// a pattern uses, as [coding.GradeCuts.Code] produces; shorter windows panic.
 // No type is safe for concurrent use: the owner of a job serialises its
 // pushes.
 package similarity

@@ -1,6 +1,6 @@
 package similarity
 
-import "sluice/pkg/grade"
+import "sluice/pkg/coding"
 
 // Costs are the integer prices of the three edit operations turning a into
 // b (or a pattern into a stretch of text): Insert adds a symbol of b,
@@ -17,7 +17,7 @@ func unitCosts() Costs { return Costs{Insert: 1, Delete: 1, Substitute: 1} }
 // Levenshtein returns the edit distance between a and b with unit costs:
 // the least number of single-grade insertions, deletions and substitutions
 // that turn a into b. It allocates O(len(b)) and takes O(len(a)·len(b)).
-func Levenshtein(a, b []grade.Grade) int {
+func Levenshtein(a, b []coding.Grade) int {
 	return EditDistance(a, b, unitCosts())
 }
 

@@ -5,19 +5,19 @@ import (
 
 	"github.com/stretchr/testify/assert"
 
-	"sluice/pkg/grade"
+	"sluice/pkg/coding"
 	"sluice/pkg/similarity"
 )
 
 // letterGrades maps each letter of s to a grade by first appearance in
 // alphabet (at most seven letters), so Levenshtein on grades can be checked
 // against worked examples written in letters.
-func letterGrades(alphabet, s string) []grade.Grade {
-	out := make([]grade.Grade, 0, len(s))
+func letterGrades(alphabet, s string) []coding.Grade {
+	out := make([]coding.Grade, 0, len(s))
 	for _, r := range s {
 		for i, a := range alphabet {
 			if a == r {
-				out = append(out, grade.Grade(i))
+				out = append(out, coding.Grade(i))
 			}
 		}
 	}
@@ -60,7 +60,7 @@ func TestLevenshteinOnGrades(t *testing.T) {
 	assert.Equal(t, 3, similarity.Levenshtein(letterGrades(kitten, "kitten"), letterGrades(kitten, "sitting")))
 	const flaw = "flawn"
 	assert.Equal(t, 2, similarity.Levenshtein(letterGrades(flaw, "flaw"), letterGrades(flaw, "lawn")))
-	g, err := grade.Parse("0012566")
+	g, err := coding.ParseGrades("0012566")
 	assert.NoError(t, err)
 	assert.Equal(t, 0, similarity.Levenshtein(g, g))
 	assert.Equal(t, len(g), similarity.Levenshtein(g, nil))

@@ -6,13 +6,13 @@ import (
 
 	"github.com/stretchr/testify/require"
 
-	"sluice/pkg/grade"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 	"sluice/pkg/similarity"
 )
 
 // randGrade draws a grade below top+1.
-func randGrade(r *rand.Rand, top int) grade.Grade { return grade.Grade(r.IntN(top + 1)) }
+func randGrade(r *rand.Rand, top int) coding.Grade { return coding.Grade(r.IntN(top + 1)) }
 
 // randMetrics draws k distinct metric indexes in random order.
 func randMetrics(r *rand.Rand, k int) []int {
@@ -20,10 +20,10 @@ func randMetrics(r *rand.Rand, k int) []int {
 }
 
 // randWindows draws n windows of width grades below top+1.
-func randWindows(r *rand.Rand, n, width, top int) [][]grade.Grade {
-	out := make([][]grade.Grade, n)
+func randWindows(r *rand.Rand, n, width, top int) [][]coding.Grade {
+	out := make([][]coding.Grade, n)
 	for i := range out {
-		out[i] = make([]grade.Grade, width)
+		out[i] = make([]coding.Grade, width)
 		for t := range out[i] {
 			out[i][t] = randGrade(r, top)
 		}
@@ -40,7 +40,7 @@ func randPattern(t testing.TB, r *rand.Rand, m, k, top int) *similarity.Pattern 
 }
 
 // randText draws n full job windows.
-func randText(r *rand.Rand, n, top int) [][]grade.Grade {
+func randText(r *rand.Rand, n, top int) [][]coding.Grade {
 	return randWindows(r, n, int(metric.Count), top)
 }
 
@@ -48,9 +48,9 @@ func randText(r *rand.Rand, n, top int) [][]grade.Grade {
 // mustPattern(t, []int{0, 1}, "01", "66") is two windows over metrics 0, 1.
 func mustPattern(t testing.TB, metrics []int, windows ...string) *similarity.Pattern {
 	t.Helper()
-	ws := make([][]grade.Grade, len(windows))
+	ws := make([][]coding.Grade, len(windows))
 	for i, s := range windows {
-		g, err := grade.Parse(s)
+		g, err := coding.ParseGrades(s)
 		require.NoError(t, err)
 		ws[i] = g
 	}
@@ -61,8 +61,8 @@ func mustPattern(t testing.TB, metrics []int, windows ...string) *similarity.Pat
 
 // jobWindow returns a full window with the given grades at the given
 // metrics and 0 elsewhere.
-func jobWindow(metrics []int, gs ...grade.Grade) []grade.Grade {
-	w := make([]grade.Grade, metric.Count)
+func jobWindow(metrics []int, gs ...coding.Grade) []coding.Grade {
+	w := make([]coding.Grade, metric.Count)
 	for t, mi := range metrics {
 		w[mi] = gs[t]
 	}
@@ -70,8 +70,8 @@ func jobWindow(metrics []int, gs ...grade.Grade) []grade.Grade {
 }
 
 // column returns metric mi's grades over a text.
-func column(text [][]grade.Grade, mi int) []grade.Grade {
-	out := make([]grade.Grade, len(text))
+func column(text [][]coding.Grade, mi int) []coding.Grade {
+	out := make([]coding.Grade, len(text))
 	for j, w := range text {
 		out[j] = w[mi]
 	}

@@ -6,7 +6,7 @@ import (
 
 	"github.com/stretchr/testify/require"
 
-	"sluice/pkg/grade"
+	"sluice/pkg/coding"
 	"sluice/pkg/similarity"
 )
 
@@ -55,7 +55,7 @@ func newJob(t testing.TB, lib *library) *job {
 }
 
 // push feeds one closed window to every matcher and returns the best score.
-func (j *job) push(w []grade.Grade) float64 {
+func (j *job) push(w []coding.Grade) float64 {
 	best := 0.0
 	j.hist.Push(w)
 	for _, s := range j.sellers {

@@ -4,16 +4,16 @@ import (
 	"errors"
 	"math"
 
-	"sluice/pkg/grade"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 )
 
 // Histogram counts one metric's grades: entry g is the number of windows
 // of grade g.
-type Histogram [grade.Count]uint32
+type Histogram [coding.GradeCount]uint32
 
 // HistogramOf counts gs.
-func HistogramOf(gs []grade.Grade) Histogram {
+func HistogramOf(gs []coding.Grade) Histogram {
 	var h Histogram
 	for _, g := range gs {
 		h[g]++
@@ -78,9 +78,9 @@ var ErrLast = errors.New("similarity: negative number of windows")
 // [NewHistograms].
 type Histograms struct {
 	hist [metric.Count]Histogram
-	ring []grade.Grade // last·metric.Count grades, nil when counting all
-	next int           // ring slot the next window goes to
-	n    int           // windows counted
+	ring []coding.Grade // last·metric.Count grades, nil when counting all
+	next int            // ring slot the next window goes to
+	n    int            // windows counted
 }
 
 // NewHistograms returns empty histograms over the last windows (0: every
@@ -92,14 +92,14 @@ func NewHistograms(last int) (*Histograms, error) {
 	}
 	h := &Histograms{}
 	if last > 0 {
-		h.ring = make([]grade.Grade, last*int(metric.Count))
+		h.ring = make([]coding.Grade, last*int(metric.Count))
 	}
 	return h, nil
 }
 
 // Push counts the job's newest window (a full metric.Count vector of valid
 // grades), dropping the oldest when the last-n windows are full.
-func (h *Histograms) Push(window []grade.Grade) {
+func (h *Histograms) Push(window []coding.Grade) {
 	window = window[:metric.Count]
 	if h.ring != nil {
 		h.rotate(window)
@@ -111,7 +111,7 @@ func (h *Histograms) Push(window []grade.Grade) {
 }
 
 // rotate stores window in the ring, uncounting the window it replaces.
-func (h *Histograms) rotate(window []grade.Grade) {
+func (h *Histograms) rotate(window []coding.Grade) {
 	slot := h.ring[h.next*int(metric.Count) : (h.next+1)*int(metric.Count)]
 	if h.n == len(h.ring)/int(metric.Count) {
 		for mi, g := range slot {

@@ -11,18 +11,18 @@ import (
 	"github.com/stretchr/testify/require"
 	"gonum.org/v1/gonum/stat"
 
-	"sluice/pkg/grade"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 	"sluice/pkg/similarity"
 )
 
 // gonumKS is the reference: gonum's stat.KolmogorovSmirnov on the grades as
 // sorted float64 samples.
-func gonumKS(a, b []grade.Grade) float64 {
+func gonumKS(a, b []coding.Grade) float64 {
 	return stat.KolmogorovSmirnov(sortedFloats(a), nil, sortedFloats(b), nil)
 }
 
-func sortedFloats(gs []grade.Grade) []float64 {
+func sortedFloats(gs []coding.Grade) []float64 {
 	out := make([]float64, len(gs))
 	for i, g := range gs {
 		out[i] = float64(g)
@@ -31,12 +31,12 @@ func sortedFloats(gs []grade.Grade) []float64 {
 	return out
 }
 
-func randGrades(r *rand.Rand, n int) []grade.Grade {
-	lo := r.IntN(grade.Count)
-	hi := lo + r.IntN(grade.Count-lo)
-	out := make([]grade.Grade, n)
+func randGrades(r *rand.Rand, n int) []coding.Grade {
+	lo := r.IntN(coding.GradeCount)
+	hi := lo + r.IntN(coding.GradeCount-lo)
+	out := make([]coding.Grade, n)
 	for i := range out {
-		out[i] = grade.Grade(lo + r.IntN(hi-lo+1))
+		out[i] = coding.Grade(lo + r.IntN(hi-lo+1))
 	}
 	return out
 }
@@ -55,11 +55,11 @@ func TestKSAgainstGonum(t *testing.T) {
 
 // Hand-computed: a = {0, 0, 6, 6}, b = {6}: F_a(0..5) = 1/2, F_b = 0.
 func TestKSHandExample(t *testing.T) {
-	a := similarity.HistogramOf([]grade.Grade{0, 0, 6, 6})
-	b := similarity.HistogramOf([]grade.Grade{6})
+	a := similarity.HistogramOf([]coding.Grade{0, 0, 6, 6})
+	b := similarity.HistogramOf([]coding.Grade{6})
 	assert.Equal(t, 0.5, similarity.KS(&a, &b))
-	c := similarity.HistogramOf([]grade.Grade{1, 1, 2})
-	d := similarity.HistogramOf([]grade.Grade{3, 4})
+	c := similarity.HistogramOf([]coding.Grade{1, 1, 2})
+	d := similarity.HistogramOf([]coding.Grade{3, 4})
 	assert.Equal(t, 1.0, similarity.KS(&c, &d), "disjoint ranges")
 	assert.Equal(t, 0.0, similarity.KS(&c, &c))
 }

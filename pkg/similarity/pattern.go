@@ -4,7 +4,7 @@ import (
 	"errors"
 	"fmt"
 
-	"sluice/pkg/grade"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 )
 
@@ -16,15 +16,15 @@ var ErrPattern = errors.New("similarity: invalid pattern")
 // keep their per-job state apart ([NewSellers], [NewShape], [Pattern.KS]).
 type Pattern struct {
 	metrics []int
-	grades  []grade.Grade // m·k, window after window, metrics in pattern order
-	hist    []Histogram   // per pattern metric, over the m windows
+	grades  []coding.Grade // m·k, window after window, metrics in pattern order
+	hist    []Histogram    // per pattern metric, over the m windows
 	m, k    int
 }
 
 // NewPattern builds a pattern from its metric indexes (distinct, each below
 // metric.Count) and its windows, oldest first; windows[i][t] is the grade of
 // metric metrics[t] in window i. It copies its arguments.
-func NewPattern(metrics []int, windows [][]grade.Grade) (*Pattern, error) {
+func NewPattern(metrics []int, windows [][]coding.Grade) (*Pattern, error) {
 	if err := checkMetrics(metrics); err != nil {
 		return nil, err
 	}
@@ -33,7 +33,7 @@ func NewPattern(metrics []int, windows [][]grade.Grade) (*Pattern, error) {
 	}
 	p := &Pattern{
 		metrics: append([]int(nil), metrics...),
-		grades:  make([]grade.Grade, 0, len(windows)*len(metrics)),
+		grades:  make([]coding.Grade, 0, len(windows)*len(metrics)),
 		hist:    make([]Histogram, len(metrics)),
 		m:       len(windows),
 		k:       len(metrics),
@@ -65,12 +65,12 @@ func checkMetrics(metrics []int) error {
 }
 
 // addWindow appends window i, checking its width and grades.
-func (p *Pattern) addWindow(i int, w []grade.Grade) error {
+func (p *Pattern) addWindow(i int, w []coding.Grade) error {
 	if len(w) != p.k {
 		return fmt.Errorf("%w: window %d has %d grades, want one per metric (%d)", ErrPattern, i, len(w), p.k)
 	}
 	for t, g := range w {
-		if g >= grade.Count {
+		if g >= coding.GradeCount {
 			return fmt.Errorf("%w: window %d metric %d: %v is not a grade", ErrPattern, i, p.metrics[t], g)
 		}
 		p.hist[t][g]++
@@ -87,7 +87,7 @@ func (p *Pattern) Metrics() []int { return append([]int(nil), p.metrics...) }
 
 // pick copies the pattern's metrics of a full job window into dst and
 // returns the k grades.
-func (p *Pattern) pick(window []grade.Grade, dst *[metric.Count]grade.Grade) []grade.Grade {
+func (p *Pattern) pick(window []coding.Grade, dst *[metric.Count]coding.Grade) []coding.Grade {
 	for t, mi := range p.metrics {
 		dst[t] = window[mi]
 	}
@@ -96,7 +96,7 @@ func (p *Pattern) pick(window []grade.Grade, dst *[metric.Count]grade.Grade) []g
 
 // sub returns Σ_t |pattern[i][t] − g[t]|, the substitution cost of pattern
 // window i against g in units of 1/(6k) window.
-func (p *Pattern) sub(i int, g []grade.Grade) int {
+func (p *Pattern) sub(i int, g []coding.Grade) int {
 	row := p.grades[i*p.k : (i+1)*p.k]
 	g = g[:len(row)]
 	d := 0
@@ -108,7 +108,7 @@ func (p *Pattern) sub(i int, g []grade.Grade) int {
 
 // absDiff returns |a − b|, without a branch: grades are random enough
 // for a branch to be mispredicted half the time.
-func absDiff(a, b grade.Grade) int {
+func absDiff(a, b coding.Grade) int {
 	v := int(a) - int(b)
 	sign := v >> 63
 	return (v ^ sign) - sign

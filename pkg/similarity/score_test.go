@@ -8,7 +8,7 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
-	"sluice/pkg/grade"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 	"sluice/pkg/similarity"
 )
@@ -50,7 +50,7 @@ func TestScoreEnds(t *testing.T) {
 	p := mustPattern(t, metrics, "666", "666", "666")
 	tests := []struct {
 		name string
-		g    grade.Grade
+		g    coding.Grade
 		want float64
 	}{{"exact", 6, 1}, {"opposite", 0, 0}}
 	for _, tt := range tests {
@@ -91,7 +91,7 @@ func TestMemoryPerJob(t *testing.T) {
 	perJob := (int64(after.HeapAlloc) - int64(before.HeapAlloc)) / jobs
 	t.Logf("live heap per job with %d matchers: %d bytes", len(lib.sellers)+len(lib.ks)+len(lib.shapes), perJob)
 	assert.LessOrEqual(t, perJob, int64(64<<10))
-	w := make([]grade.Grade, metric.Count)
+	w := make([]coding.Grade, metric.Count)
 	for _, j := range all {
 		j.push(w)
 	}

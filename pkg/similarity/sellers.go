@@ -1,7 +1,7 @@
 package similarity
 
 import (
-	"sluice/pkg/grade"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 )
 
@@ -51,8 +51,8 @@ func (s *Sellers) unit() int { return 6 * s.p.k }
 // the least cost, in windows, of matching the whole pattern against a
 // stretch of windows ending with this one. It takes O(m·k) time and does
 // not allocate.
-func (s *Sellers) Push(window []grade.Grade) (best float64) {
-	var buf [metric.Count]grade.Grade
+func (s *Sellers) Push(window []coding.Grade) (best float64) {
+	var buf [metric.Count]coding.Grade
 	g := s.p.pick(window, &buf)
 	unit := s.unit()
 	s.n++
@@ -107,9 +107,9 @@ func editScore(cost float64, m int) float64 {
 // reports after each prefix of text: entry j is Last() after text[:j] was
 // pushed, so the result has len(text)+1 entries. It allocates the
 // (m+1)·(len(text)+1) matrix and is meant for tests and offline use.
-func SellersBatch(p *Pattern, text [][]grade.Grade) []Match {
+func SellersBatch(p *Pattern, text [][]coding.Grade) []Match {
 	d := newMatrix(p, len(text))
-	var buf [metric.Count]grade.Grade
+	var buf [metric.Count]coding.Grade
 	unit := 6 * p.k
 	for j := 1; j <= len(text); j++ {
 		g := p.pick(text[j-1], &buf)

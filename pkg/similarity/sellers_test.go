@@ -8,28 +8,28 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
-	"sluice/pkg/grade"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 	"sluice/pkg/similarity"
 )
 
 func TestNewPatternErrors(t *testing.T) {
-	ok := [][]grade.Grade{{1, 2}}
+	ok := [][]coding.Grade{{1, 2}}
 	tests := []struct {
 		name    string
 		metrics []int
-		windows [][]grade.Grade
+		windows [][]coding.Grade
 		wantErr bool
 	}{
 		{"valid", []int{0, 11}, ok, false},
-		{"no metrics", nil, [][]grade.Grade{{}}, true},
+		{"no metrics", nil, [][]coding.Grade{{}}, true},
 		{"no windows", []int{0, 1}, nil, true},
 		{"metric too large", []int{0, int(metric.Count)}, ok, true},
 		{"negative metric", []int{-1, 2}, ok, true},
 		{"duplicate metric", []int{3, 3}, ok, true},
-		{"window too narrow", []int{0, 1}, [][]grade.Grade{{1}}, true},
-		{"window too wide", []int{0, 1}, [][]grade.Grade{{1, 2, 3}}, true},
-		{"not a grade", []int{0, 1}, [][]grade.Grade{{1, grade.Count}}, true},
+		{"window too narrow", []int{0, 1}, [][]coding.Grade{{1}}, true},
+		{"window too wide", []int{0, 1}, [][]coding.Grade{{1, 2, 3}}, true},
+		{"not a grade", []int{0, 1}, [][]coding.Grade{{1, coding.GradeCount}}, true},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
@@ -57,7 +57,7 @@ func TestSellersHandExample(t *testing.T) {
 		{Cost: 0, Score: 1, Start: 1, End: 3},   // exact: windows 1 and 2
 		{Cost: 1, Score: 0.5, Start: 3, End: 4}, // the 0 deleted, "6" matched
 	}
-	for j, g := range []grade.Grade{0, 0, 6, 6} {
+	for j, g := range []coding.Grade{0, 0, 6, 6} {
 		cost := s.Push(jobWindow(metrics, g))
 		assert.Equal(t, want[j].Cost, cost, "cost after window %d", j)
 		assert.Equal(t, want[j], s.Last(), "after window %d", j)
@@ -84,7 +84,7 @@ func TestSellersSubstitutionCost(t *testing.T) {
 // bruteSellers is an independent reference: for each end e, the cheapest
 // weighted edit distance (in units of 1/(6k) window) of the pattern to
 // text[s:e] over every s, ties to the latest s.
-func bruteSellers(pat [][]grade.Grade, metrics []int, text [][]grade.Grade, e int) (cost, start int) {
+func bruteSellers(pat [][]coding.Grade, metrics []int, text [][]coding.Grade, e int) (cost, start int) {
 	cost, start = -1, -1
 	for s := 0; s <= e; s++ {
 		if c := weightedEdit(pat, metrics, text[s:e]); cost < 0 || c <= cost {
@@ -96,7 +96,7 @@ func bruteSellers(pat [][]grade.Grade, metrics []int, text [][]grade.Grade, e in
 
 // weightedEdit is the full-matrix edit distance of pat to text with
 // deletion and insertion 6k and substitution Σ|a−b|.
-func weightedEdit(pat [][]grade.Grade, metrics []int, text [][]grade.Grade) int {
+func weightedEdit(pat [][]coding.Grade, metrics []int, text [][]coding.Grade) int {
 	unit := 6 * len(metrics)
 	d := make([][]int, len(pat)+1)
 	for i := range d {
@@ -157,17 +157,17 @@ func TestSellersUnitCostAndLevenshteinBound(t *testing.T) {
 	unit := similarity.Costs{Insert: 1, Delete: 1, Substitute: 1}
 	for c := range 300 {
 		mi := r.IntN(int(metric.Count))
-		pat := make([]grade.Grade, 1+r.IntN(12))
+		pat := make([]coding.Grade, 1+r.IntN(12))
 		for i := range pat {
-			pat[i] = 6 * grade.Grade(r.IntN(2))
+			pat[i] = 6 * coding.Grade(r.IntN(2))
 		}
-		text := make([][]grade.Grade, r.IntN(50))
+		text := make([][]coding.Grade, r.IntN(50))
 		for j := range text {
-			text[j] = jobWindow([]int{mi}, 6*grade.Grade(r.IntN(2)))
+			text[j] = jobWindow([]int{mi}, 6*coding.Grade(r.IntN(2)))
 		}
-		windows := make([][]grade.Grade, len(pat))
+		windows := make([][]coding.Grade, len(pat))
 		for i, g := range pat {
-			windows[i] = []grade.Grade{g}
+			windows[i] = []coding.Grade{g}
 		}
 		p, err := similarity.NewPattern([]int{mi}, windows)
 		require.NoError(t, err)
@@ -188,11 +188,11 @@ func TestSellersBelowLevenshtein(t *testing.T) {
 	r := rand.New(rand.NewPCG(5, 6))
 	for c := range 300 {
 		mi := r.IntN(int(metric.Count))
-		pat := make([]grade.Grade, 1+r.IntN(12))
-		windows := make([][]grade.Grade, len(pat))
+		pat := make([]coding.Grade, 1+r.IntN(12))
+		windows := make([][]coding.Grade, len(pat))
 		for i := range pat {
 			pat[i] = randGrade(r, 6)
-			windows[i] = []grade.Grade{pat[i]}
+			windows[i] = []coding.Grade{pat[i]}
 		}
 		p, err := similarity.NewPattern([]int{mi}, windows)
 		require.NoError(t, err)

@@ -3,7 +3,7 @@ package similarity
 import (
 	"math"
 
-	"sluice/pkg/grade"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 )
 
@@ -14,7 +14,7 @@ import (
 // windows' k grades. Make it with [NewShape].
 type Shape struct {
 	p      *Pattern
-	ring   []grade.Grade // m·k grades; window slot head is the oldest
+	ring   []coding.Grade // m·k grades; window slot head is the oldest
 	head   int
 	n      int
 	lastSq int // squared distance at the newest window, once n ≥ m
@@ -24,7 +24,7 @@ type Shape struct {
 
 // NewShape returns a matcher for p with no windows pushed.
 func NewShape(p *Pattern) *Shape {
-	return &Shape{p: p, ring: make([]grade.Grade, p.m*p.k)}
+	return &Shape{p: p, ring: make([]coding.Grade, p.m*p.k)}
 }
 
 // Reset forgets every pushed window.
@@ -36,8 +36,8 @@ func (s *Shape) Reset() {
 // the Euclidean distance of the pattern to the last m windows; ok is false,
 // and dist 0, until m windows have been pushed. It takes O(m·k) time and
 // does not allocate.
-func (s *Shape) Push(window []grade.Grade) (dist float64, ok bool) {
-	var buf [metric.Count]grade.Grade
+func (s *Shape) Push(window []coding.Grade) (dist float64, ok bool) {
+	var buf [metric.Count]coding.Grade
 	k := s.p.k
 	copy(s.ring[s.head*k:(s.head+1)*k], s.p.pick(window, &buf))
 	s.head++
@@ -64,7 +64,7 @@ func (s *Shape) squared() int {
 }
 
 // sqDiff returns Σ (a[i] − b[i])² over equal-length a and b.
-func sqDiff(a, b []grade.Grade) int {
+func sqDiff(a, b []coding.Grade) int {
 	b = b[:len(a)]
 	d := 0
 	for i, x := range a {

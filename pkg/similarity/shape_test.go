@@ -9,7 +9,7 @@ import (
 	"github.com/stretchr/testify/require"
 	"gonum.org/v1/gonum/floats"
 
-	"sluice/pkg/grade"
+	"sluice/pkg/coding"
 	"sluice/pkg/similarity"
 )
 
@@ -85,7 +85,7 @@ func TestShapeAgainstGonum(t *testing.T) {
 
 // flatten lays windows out as numbers, window after window; metrics picks
 // from full job windows (nil: take pattern windows whole).
-func flatten(ws [][]grade.Grade, metrics []int) []float64 {
+func flatten(ws [][]coding.Grade, metrics []int) []float64 {
 	var out []float64
 	for _, w := range ws {
 		if metrics == nil {

@@ -38,6 +38,7 @@ import (
 	bolterr "go.etcd.io/bbolt/errors"
 
 	"sluice/pkg/baseline"
+	"sluice/pkg/coding"
 	"sluice/pkg/model"
 	"sluice/pkg/signature"
 	"sluice/pkg/tracker"
@@ -335,8 +336,8 @@ func loadSignature(tx *bolt.Tx, j *tracker.JobState) error {
 	return nil
 }
 
-func gradesOf(ws []model.Window) []signature.Grades {
-	gs := make([]signature.Grades, len(ws))
+func gradesOf(ws []model.Window) []coding.Grades {
+	gs := make([]coding.Grades, len(ws))
 	for i, w := range ws {
 		gs[i] = w.Grades
 	}

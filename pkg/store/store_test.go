@@ -10,8 +10,8 @@ import (
 	bolt "go.etcd.io/bbolt"
 
 	"sluice/pkg/baseline"
+	"sluice/pkg/coding"
 	"sluice/pkg/internal/storetest"
-	"sluice/pkg/level"
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
 	"sluice/pkg/store"
@@ -29,8 +29,8 @@ func TestRoundTrip(t *testing.T) {
 		Closed: 0,
 	}
 	job.LiveRates[metric.Creates] = 2500
-	job.LiveLevels[metric.Creates] = level.Critical
-	flag := model.Flag{ID: "81234/critical:creates/1", Job: "81234", Reason: "critical:creates", Metric: metric.Creates, Level: level.Critical, Value: 2500, Cut: 1000, Since: t0, Raised: t0}
+	job.LiveLevels[metric.Creates] = coding.Critical
+	flag := model.Flag{ID: "81234/critical:creates/1", Job: "81234", Reason: "critical:creates", Metric: metric.Creates, Level: coding.Critical, Value: 2500, Cut: 1000, Since: t0, Raised: t0}
 	job.Hyst[metric.Creates] = tracker.Hysteresis{Above: 3, Since: t0, Flag: &flag}
 	w0 := model.Window{Job: "81234", Index: 0, Start: t0, End: t0.Add(time.Minute), Nodes: 2}
 	w1 := model.Window{Job: "81234", Index: 1, Start: t0.Add(time.Minute), End: t0.Add(2 * time.Minute), Nodes: 2}

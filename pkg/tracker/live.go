@@ -7,10 +7,9 @@ import (
 	"slices"
 	"time"
 
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
-	"sluice/pkg/signature"
 )
 
 // EventKind says what changed.
@@ -58,8 +57,8 @@ func (t *Tracker) evaluate(j *JobState) {
 	}
 	j.LiveRates = meanRate(nodes)
 	j.LiveNodes = len(nodes)
-	var live signature.Grades
-	j.LiveLevels, live = t.coding.code(j.LiveRates)
+	var live coding.Grades
+	j.LiveLevels, live = t.coding.Code(j.LiveRates)
 	j.Signature.SetLive(live)
 	for i, r := range j.LiveRates {
 		t.step(j, metric.ID(i), r)
@@ -87,7 +86,7 @@ func (t *Tracker) step(j *JobState, id metric.ID, rate float64) {
 				ID:     fmt.Sprintf("%s/critical:%s/%d", j.Meta.ID, id, h.Since.Unix()),
 				Job:    j.Meta.ID,
 				Reason: "critical:" + id.String(),
-				Metric: id, Level: level.Critical,
+				Metric: id, Level: coding.Critical,
 				Value: rate, Peak: rate, Cut: cut,
 				Nodes: j.LiveNodes, Since: h.Since, Raised: now,
 				Score: 1, Severity: "warning",

@@ -209,7 +209,7 @@ func (t *Tracker) provisional(j *JobState) (low, high pattern.WindowView, ok boo
 	high = pattern.ViewOf(&hw)
 	sum, bal := meanOver(ow, t.opts.Window.Seconds())
 	low = pattern.WindowView{Rates: sum, Nodes: len(ow.Nodes)}
-	low.Levels, low.Grades = t.coding.code(sum)
+	low.Levels, low.Grades = t.coding.Code(sum)
 	low.BusiestShare, low.NodeSpread = bal.result()
 	return low, high, true
 }

@@ -7,7 +7,7 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/matcher"
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
@@ -58,7 +58,7 @@ func TestMetadataStormRaisesOnePatternFlag(t *testing.T) {
 	require.NotEmpty(t, f.Drivers)
 	assert.Equal(t, metric.Creates, f.Drivers[0].Metric)
 	assert.InDelta(t, 2000, f.Drivers[0].Rate, 1e-9)
-	assert.Equal(t, level.Critical, f.Drivers[0].Level)
+	assert.Equal(t, coding.Critical, f.Drivers[0].Level)
 	assert.Equal(t, 1000.0, f.Drivers[0].Critical)
 	// Window 0 closes at 1 min + grace; with it closed and the live window
 	// matching, the rule holds 2 of 3 during window 1.

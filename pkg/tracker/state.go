@@ -7,7 +7,7 @@ import (
 	"slices"
 	"time"
 
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/matcher"
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
@@ -31,7 +31,7 @@ type JobState struct {
 	LastSample time.Time     `json:"last_sample,omitzero"`
 	// LiveRates and LiveLevels are the result of the latest evaluation.
 	LiveRates  metric.Rates             `json:"live_rates"`
-	LiveLevels level.Levels             `json:"live_levels"`
+	LiveLevels coding.Levels            `json:"live_levels"`
 	LiveNodes  int                      `json:"live_nodes"`
 	Hyst       [metric.Count]Hysteresis `json:"hyst"`
 	Finished   bool                     `json:"finished,omitempty"`
@@ -159,7 +159,7 @@ func (t *Tracker) windowOf(job string, idx int, start, end time.Time, ow *OpenWi
 	w := model.Window{Job: job, Index: idx, Start: start, End: end, Nodes: len(ow.Nodes)}
 	var bal balance
 	w.Rates, bal = meanOver(ow, 0)
-	w.Levels, w.Grades = t.coding.code(w.Rates)
+	w.Levels, w.Grades = t.coding.Code(w.Rates)
 	w.BusiestShare, w.NodeSpread = bal.result()
 	return w
 }

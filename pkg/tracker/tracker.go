@@ -33,7 +33,7 @@ import (
 	"slices"
 	"time"
 
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/matcher"
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
@@ -51,8 +51,8 @@ type Options struct {
 	// still taken for it before it closes; zero means 15 seconds.
 	Grace time.Duration
 	// Cuts are the seed cut points, in force until SetCoding replaces
-	// them; the zero value means level.DefaultCuts().
-	Cuts level.Cuts
+	// them; the zero value means coding.DefaultCuts().
+	Cuts coding.Cuts
 	// RaiseAfter is how many consecutive live evaluations above a critical
 	// cut raise a flag; zero means 2.
 	RaiseAfter int
@@ -86,8 +86,8 @@ func (o Options) withDefaults() Options {
 	def(&o.Grace, 15*time.Second)
 	def(&o.Silent, 2*o.Window)
 	def(&o.KeepEnded, time.Hour)
-	if o.Cuts == (level.Cuts{}) {
-		o.Cuts = level.DefaultCuts()
+	if o.Cuts == (coding.Cuts{}) {
+		o.Cuts = coding.DefaultCuts()
 	}
 	o.RaiseAfter = cmp.Or(o.RaiseAfter, 2)
 	o.ClearAfter = cmp.Or(o.ClearAfter, 3)
@@ -130,7 +130,7 @@ type Counters struct {
 // Tracker holds every tracked job and node; see the package doc.
 type Tracker struct {
 	opts      Options
-	coding    Coding
+	coding    coding.Coding
 	jobs      map[string]*JobState
 	nodes     map[string]*SeqSet
 	watermark time.Time
@@ -150,7 +150,7 @@ func New(opts Options) (*Tracker, error) {
 	opts = opts.withDefaults()
 	return &Tracker{
 		opts:       opts,
-		coding:     SeedCoding(opts.Cuts),
+		coding:     coding.Seed(opts.Cuts),
 		jobs:       make(map[string]*JobState),
 		nodes:      make(map[string]*SeqSet),
 		dirtyJobs:  make(map[string]struct{}),
@@ -160,10 +160,10 @@ func New(opts Options) (*Tracker, error) {
 
 // SetCoding replaces the cut points and grade cuts that windows closing
 // from now on, and live evaluations, are coded against.
-func (t *Tracker) SetCoding(c Coding) { t.coding = c }
+func (t *Tracker) SetCoding(c coding.Coding) { t.coding = c }
 
 // Coding returns the coding in force.
-func (t *Tracker) Coding() Coding { return t.coding }
+func (t *Tracker) Coding() coding.Coding { return t.coding }
 
 // Options returns the options in force, defaults filled in.
 func (t *Tracker) Options() Options { return t.opts }

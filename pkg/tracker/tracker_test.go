@@ -8,7 +8,7 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 	"sluice/pkg/tracker"
 	"sluice/pkg/wire"
@@ -135,7 +135,7 @@ func flagEvents(tr *tracker.Tracker) (raised, cleared int) {
 }
 
 func TestHysteresisRaisesOnceAndClears(t *testing.T) {
-	cut := level.DefaultCuts()[metric.Creates].Critical
+	cut := coding.DefaultCuts()[metric.Creates].Critical
 	// Live window of one sample, so each evaluation sees one step's rate.
 	tr := newTracker(t, tracker.Options{Window: time.Hour, Live: 5 * time.Second, RaiseAfter: 2, ClearAfter: 3})
 	startJob(t, tr, "9", "n1")
@@ -293,7 +293,7 @@ func TestOscillationRaisesAtMostOneFlag(t *testing.T) {
 func TestWindowsAreCodedAgainstTheCodingInForce(t *testing.T) {
 	tr := newTracker(t, tracker.Options{Window: time.Minute, Live: 10 * time.Second, Grace: time.Second})
 	c := tr.Coding()
-	c.Levels[metric.Creates] = level.Cut{Elevated: 50, Critical: 100}
+	c.Levels[metric.Creates] = coding.Cut{Elevated: 50, Critical: 100}
 	c.Grades[metric.Creates] = [5]float64{2, 5, 10, 50, 100}
 	tr.SetCoding(c)
 	startJob(t, tr, "81234", "bw001", "bw002")
@@ -313,7 +313,7 @@ func TestWindowsAreCodedAgainstTheCodingInForce(t *testing.T) {
 		}
 	}
 	require.NotNil(t, w)
-	assert.Equal(t, level.Elevated, w.Window.Levels[metric.Creates])
+	assert.Equal(t, coding.Elevated, w.Window.Levels[metric.Creates])
 	assert.EqualValues(t, 5, w.Window.Grades[metric.Creates])
 	assert.EqualValues(t, 0, w.Window.Grades[metric.Syncs], "idle")
 	assert.InDelta(t, 0.75, w.Window.BusiestShare, 1e-12)

@@ -1,4 +1,4 @@
-package level_test
+package coding_test
 
 import (
 	"bytes"
@@ -12,12 +12,12 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
-	"sluice/pkg/level"
+	"sluice/pkg/coding"
 	"sluice/pkg/metric"
 )
 
 // testdata is the repository's fixture directory for this package.
-var testdata = filepath.Join("..", "..", "testdata", "level")
+var testdata = filepath.Join("..", "..", "testdata", "coding")
 
 func readFixture(t testing.TB, name string) []byte {
 	t.Helper()
@@ -27,16 +27,16 @@ func readFixture(t testing.TB, name string) []byte {
 }
 
 // uniform returns cuts with the same pair for every metric.
-func uniform(elevated, critical float64) level.Cuts {
-	var c level.Cuts
+func uniform(elevated, critical float64) coding.Cuts {
+	var c coding.Cuts
 	for i := range c {
-		c[i] = level.Cut{Elevated: elevated, Critical: critical}
+		c[i] = coding.Cut{Elevated: elevated, Critical: critical}
 	}
 	return c
 }
 
 func TestClassify(t *testing.T) {
-	cuts := level.DefaultCuts()
+	cuts := coding.DefaultCuts()
 	// The package doc: "A rate strictly above the critical cut is
 	// Critical, above the elevated cut Elevated, otherwise Normal", so a
 	// rate equal to a cut is not above it. The opens defaults are 200/2000
@@ -45,21 +45,21 @@ func TestClassify(t *testing.T) {
 		name   string
 		metric metric.ID
 		input  float64
-		want   level.Level
+		want   coding.Level
 	}{
-		{name: "zero", metric: metric.Opens, input: 0, want: level.Normal},
-		{name: "negative", metric: metric.Opens, input: -5, want: level.Normal},
-		{name: "just below elevated", metric: metric.Opens, input: math.Nextafter(200, 0), want: level.Normal},
-		{name: "equal to elevated", metric: metric.Opens, input: 200, want: level.Normal},
-		{name: "just above elevated", metric: metric.Opens, input: math.Nextafter(200, math.Inf(1)), want: level.Elevated},
-		{name: "equal to critical", metric: metric.Opens, input: 2000, want: level.Elevated},
-		{name: "just above critical", metric: metric.Opens, input: math.Nextafter(2000, math.Inf(1)), want: level.Critical},
-		{name: "infinite", metric: metric.Opens, input: math.Inf(1), want: level.Critical},
-		{name: "NaN is not above anything", metric: metric.Opens, input: math.NaN(), want: level.Normal},
-		{name: "bytes equal to critical", metric: metric.ReadBytes, input: 3e9, want: level.Elevated},
-		{name: "bytes above critical", metric: metric.ReadBytes, input: 3e9 + 1, want: level.Critical},
-		{name: "per-metric cuts: 250 opens/s is elevated", metric: metric.Opens, input: 250, want: level.Elevated},
-		{name: "per-metric cuts: 250 stat ops/s is normal", metric: metric.StatOps, input: 250, want: level.Normal},
+		{name: "zero", metric: metric.Opens, input: 0, want: coding.Normal},
+		{name: "negative", metric: metric.Opens, input: -5, want: coding.Normal},
+		{name: "just below elevated", metric: metric.Opens, input: math.Nextafter(200, 0), want: coding.Normal},
+		{name: "equal to elevated", metric: metric.Opens, input: 200, want: coding.Normal},
+		{name: "just above elevated", metric: metric.Opens, input: math.Nextafter(200, math.Inf(1)), want: coding.Elevated},
+		{name: "equal to critical", metric: metric.Opens, input: 2000, want: coding.Elevated},
+		{name: "just above critical", metric: metric.Opens, input: math.Nextafter(2000, math.Inf(1)), want: coding.Critical},
+		{name: "infinite", metric: metric.Opens, input: math.Inf(1), want: coding.Critical},
+		{name: "NaN is not above anything", metric: metric.Opens, input: math.NaN(), want: coding.Normal},
+		{name: "bytes equal to critical", metric: metric.ReadBytes, input: 3e9, want: coding.Elevated},
+		{name: "bytes above critical", metric: metric.ReadBytes, input: 3e9 + 1, want: coding.Critical},
+		{name: "per-metric cuts: 250 opens/s is elevated", metric: metric.Opens, input: 250, want: coding.Elevated},
+		{name: "per-metric cuts: 250 stat ops/s is normal", metric: metric.StatOps, input: 250, want: coding.Normal},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
@@ -72,8 +72,8 @@ func TestClassifyEqualCuts(t *testing.T) {
 	// elevated == critical is allowed by Validate; there is no Elevated band.
 	c := uniform(10, 10)
 	require.NoError(t, c.Validate())
-	assert.Equal(t, level.Normal, c.Classify(metric.Syncs, 10))
-	assert.Equal(t, level.Critical, c.Classify(metric.Syncs, 10.5))
+	assert.Equal(t, coding.Normal, c.Classify(metric.Syncs, 10))
+	assert.Equal(t, coding.Critical, c.Classify(metric.Syncs, 10.5))
 }
 
 func TestDefaultCuts(t *testing.T) {
@@ -81,7 +81,7 @@ func TestDefaultCuts(t *testing.T) {
 	// a node can sustain a few GB/s of streaming I/O, so 1 and 3 GB/s for
 	// bytes; the op counts are the table in DefaultCuts itself. Writing
 	// them out catches an accidental edit.
-	want := level.Cuts{
+	want := coding.Cuts{
 		metric.ReadBytes:   {Elevated: 1e9, Critical: 3e9},
 		metric.WriteBytes:  {Elevated: 1e9, Critical: 3e9},
 		metric.ReadOps:     {Elevated: 2000, Critical: 20000},
@@ -95,13 +95,13 @@ func TestDefaultCuts(t *testing.T) {
 		metric.Syncs:       {Elevated: 50, Critical: 500},
 		metric.OtherOps:    {Elevated: 1000, Critical: 10000},
 	}
-	got := level.DefaultCuts()
+	got := coding.DefaultCuts()
 	assert.Equal(t, want, got)
 	require.NoError(t, got.Validate())
 	for _, id := range metric.All() {
 		// Every seed cut must sit above the idle floor, or an idle node
 		// would be flagged.
-		assert.False(t, level.Idle(id, got[id].Elevated), "%s elevated cut is below the idle floor", id)
+		assert.False(t, coding.IsIdle(id, got[id].Elevated), "%s elevated cut is below the idle floor", id)
 	}
 }
 
@@ -125,31 +125,31 @@ func TestIdle(t *testing.T) {
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
-			assert.Equal(t, tt.want, level.Idle(tt.metric, tt.input))
+			assert.Equal(t, tt.want, coding.IsIdle(tt.metric, tt.input))
 		})
 	}
-	assert.Equal(t, 10e3, float64(level.IdleBytesPerSecond))
-	assert.Equal(t, 1.0, float64(level.IdleOpsPerSecond))
+	assert.Equal(t, 10e3, float64(coding.IdleBytesPerSecond))
+	assert.Equal(t, 1.0, float64(coding.IdleOpsPerSecond))
 }
 
 func TestValidate(t *testing.T) {
-	with := func(id metric.ID, cut level.Cut) level.Cuts {
-		c := level.DefaultCuts()
+	with := func(id metric.ID, cut coding.Cut) coding.Cuts {
+		c := coding.DefaultCuts()
 		c[id] = cut
 		return c
 	}
 	tests := []struct {
 		name    string
-		input   level.Cuts
+		input   coding.Cuts
 		wantErr string
 	}{
-		{name: "defaults", input: level.DefaultCuts()},
-		{name: "elevated equal to critical", input: with(metric.Syncs, level.Cut{Elevated: 5, Critical: 5})},
-		{name: "tiny positive", input: with(metric.Syncs, level.Cut{Elevated: 1e-300, Critical: 1e-300})},
-		{name: "zero value", input: level.Cuts{}, wantErr: "read_bytes must be positive"},
-		{name: "zero elevated", input: with(metric.Creates, level.Cut{Elevated: 0, Critical: 10}), wantErr: "creates must be positive"},
-		{name: "negative critical", input: with(metric.Removes, level.Cut{Elevated: 1, Critical: -10}), wantErr: "removes must be positive"},
-		{name: "elevated above critical", input: with(metric.OtherOps, level.Cut{Elevated: 11, Critical: 10}), wantErr: "other_ops: elevated 11 is above critical 10"},
+		{name: "defaults", input: coding.DefaultCuts()},
+		{name: "elevated equal to critical", input: with(metric.Syncs, coding.Cut{Elevated: 5, Critical: 5})},
+		{name: "tiny positive", input: with(metric.Syncs, coding.Cut{Elevated: 1e-300, Critical: 1e-300})},
+		{name: "zero value", input: coding.Cuts{}, wantErr: "read_bytes must be positive"},
+		{name: "zero elevated", input: with(metric.Creates, coding.Cut{Elevated: 0, Critical: 10}), wantErr: "creates must be positive"},
+		{name: "negative critical", input: with(metric.Removes, coding.Cut{Elevated: 1, Critical: -10}), wantErr: "removes must be positive"},
+		{name: "elevated above critical", input: with(metric.OtherOps, coding.Cut{Elevated: 11, Critical: 10}), wantErr: "other_ops: elevated 11 is above critical 10"},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
@@ -165,11 +165,11 @@ func TestValidate(t *testing.T) {
 }
 
 func TestValidateRejectsNaN(t *testing.T) {
-	c := level.DefaultCuts()
-	c[metric.Opens] = level.Cut{Elevated: math.NaN(), Critical: math.NaN()}
+	c := coding.DefaultCuts()
+	c[metric.Opens] = coding.Cut{Elevated: math.NaN(), Critical: math.NaN()}
 	require.Error(t, c.Validate(), "NaN is not a positive cut point")
 
-	_, err := level.LoadCuts(strings.NewReader("opens: {elevated: .nan, critical: .nan}\n"), level.DefaultCuts())
+	_, err := coding.LoadCuts(strings.NewReader("opens: {elevated: .nan, critical: .nan}\n"), coding.DefaultCuts())
 	require.Error(t, err)
 }
 
@@ -177,19 +177,19 @@ func TestLevelText(t *testing.T) {
 	tests := []struct {
 		name    string
 		input   string
-		want    level.Level
+		want    coding.Level
 		wantErr bool
 	}{
-		{name: "normal", input: "normal", want: level.Normal},
-		{name: "elevated", input: "elevated", want: level.Elevated},
-		{name: "critical", input: "critical", want: level.Critical},
+		{name: "normal", input: "normal", want: coding.Normal},
+		{name: "elevated", input: "elevated", want: coding.Elevated},
+		{name: "critical", input: "critical", want: coding.Critical},
 		{name: "case matters", input: "Critical", wantErr: true},
 		{name: "empty", input: "", wantErr: true},
 		{name: "out of range name", input: "level(3)", wantErr: true},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
-			var got level.Level
+			var got coding.Level
 			err := got.UnmarshalText([]byte(tt.input))
 			if tt.wantErr {
 				require.Error(t, err)
@@ -203,12 +203,12 @@ func TestLevelText(t *testing.T) {
 			assert.Equal(t, tt.input, string(text))
 		})
 	}
-	assert.Equal(t, "level(3)", level.Level(3).String())
-	assert.True(t, level.Normal < level.Elevated && level.Elevated < level.Critical, "levels are ordered by severity")
+	assert.Equal(t, "level(3)", coding.Level(3).String())
+	assert.True(t, coding.Normal < coding.Elevated && coding.Elevated < coding.Critical, "levels are ordered by severity")
 }
 
 func TestLevelsJSON(t *testing.T) {
-	ls := level.Levels{metric.WriteBytes: level.Critical, metric.Opens: level.Elevated}
+	ls := coding.Levels{metric.WriteBytes: coding.Critical, metric.Opens: coding.Elevated}
 	b, err := json.Marshal(ls)
 	require.NoError(t, err)
 	assert.JSONEq(t, `{"read_bytes":"normal","write_bytes":"critical","read_ops":"normal",
@@ -216,12 +216,12 @@ func TestLevelsJSON(t *testing.T) {
 		"removes":"normal","stat_ops":"normal","meta_updates":"normal","syncs":"normal",
 		"other_ops":"normal"}`, string(b))
 
-	var back level.Levels
+	var back coding.Levels
 	require.NoError(t, json.Unmarshal(b, &back))
 	assert.Equal(t, ls, back)
 
 	// A single Level is a JSON string too.
-	b, err = json.Marshal(level.Elevated)
+	b, err = json.Marshal(coding.Elevated)
 	require.NoError(t, err)
 	assert.Equal(t, `"elevated"`, string(b))
 }
@@ -230,10 +230,10 @@ func TestLevelsUnmarshalJSON(t *testing.T) {
 	tests := []struct {
 		name    string
 		input   string
-		want    level.Levels
+		want    coding.Levels
 		wantErr string
 	}{
-		{name: "missing names are normal", input: `{"syncs":"critical"}`, want: level.Levels{metric.Syncs: level.Critical}},
+		{name: "missing names are normal", input: `{"syncs":"critical"}`, want: coding.Levels{metric.Syncs: coding.Critical}},
 		{name: "unknown metric", input: `{"sync":"critical"}`, wantErr: `unknown metric "sync"`},
 		{name: "unknown level", input: `{"syncs":"severe"}`, wantErr: `unknown level "severe"`},
 		{name: "level as number", input: `{"syncs":2}`, wantErr: "levels"},
@@ -241,7 +241,7 @@ func TestLevelsUnmarshalJSON(t *testing.T) {
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
-			got := level.Levels{metric.Opens: level.Critical} // replaced, not merged
+			got := coding.Levels{metric.Opens: coding.Critical} // replaced, not merged
 			err := json.Unmarshal([]byte(tt.input), &got)
 			if tt.wantErr != "" {
 				require.Error(t, err)
@@ -255,15 +255,15 @@ func TestLevelsUnmarshalJSON(t *testing.T) {
 }
 
 func TestLevelsMax(t *testing.T) {
-	assert.Equal(t, level.Normal, level.Levels{}.Max())
-	assert.Equal(t, level.Elevated, level.Levels{metric.OtherOps: level.Elevated}.Max())
-	assert.Equal(t, level.Critical, level.Levels{metric.ReadBytes: level.Critical, metric.Opens: level.Elevated}.Max())
+	assert.Equal(t, coding.Normal, coding.Levels{}.Max())
+	assert.Equal(t, coding.Elevated, coding.Levels{metric.OtherOps: coding.Elevated}.Max())
+	assert.Equal(t, coding.Critical, coding.Levels{metric.ReadBytes: coding.Critical, metric.Opens: coding.Elevated}.Max())
 }
 
 func TestLoadCuts(t *testing.T) {
-	def := level.DefaultCuts()
-	with := func(pairs map[metric.ID]level.Cut) level.Cuts {
-		c := level.DefaultCuts()
+	def := coding.DefaultCuts()
+	with := func(pairs map[metric.ID]coding.Cut) coding.Cuts {
+		c := coding.DefaultCuts()
 		for id, cut := range pairs {
 			c[id] = cut
 		}
@@ -272,14 +272,14 @@ func TestLoadCuts(t *testing.T) {
 	tests := []struct {
 		name    string
 		input   string // fixture in testdata/level
-		want    level.Cuts
+		want    coding.Cuts
 		wantErr string
 	}{
-		{name: "override", input: "override.yaml", want: with(map[metric.ID]level.Cut{
+		{name: "override", input: "override.yaml", want: with(map[metric.ID]coding.Cut{
 			metric.Creates:    {Elevated: 50, Critical: 400},
 			metric.WriteBytes: {Elevated: 2e9, Critical: 5e9},
 		})},
-		{name: "elevated equal to critical", input: "equal.yaml", want: with(map[metric.ID]level.Cut{metric.Syncs: {Elevated: 10, Critical: 10}})},
+		{name: "elevated equal to critical", input: "equal.yaml", want: with(map[metric.ID]coding.Cut{metric.Syncs: {Elevated: 10, Critical: 10}})},
 		{name: "no overrides", input: "empty.yaml", want: def},
 		{name: "missing critical", input: "missing_critical.yaml", wantErr: "cut points for opens: give both elevated and critical"},
 		{name: "unknown metric", input: "unknown_metric.yaml", wantErr: `unknown metric "open"`},
@@ -290,7 +290,7 @@ func TestLoadCuts(t *testing.T) {
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
-			got, err := level.LoadCuts(bytes.NewReader(readFixture(t, tt.input)), def)
+			got, err := coding.LoadCuts(bytes.NewReader(readFixture(t, tt.input)), def)
 			if tt.wantErr != "" {
 				require.Error(t, err)
 				assert.Contains(t, err.Error(), tt.wantErr)
@@ -304,17 +304,17 @@ func TestLoadCuts(t *testing.T) {
 
 func TestLoadCutsBase(t *testing.T) {
 	base := uniform(7, 70)
-	got, err := level.LoadCuts(strings.NewReader(""), base)
+	got, err := coding.LoadCuts(strings.NewReader(""), base)
 	require.NoError(t, err, "empty input keeps the base")
 	assert.Equal(t, base, got)
 
-	got, err = level.LoadCuts(strings.NewReader("opens: {elevated: 1, critical: 2}"), base)
+	got, err = coding.LoadCuts(strings.NewReader("opens: {elevated: 1, critical: 2}"), base)
 	require.NoError(t, err)
-	assert.Equal(t, level.Cut{Elevated: 1, Critical: 2}, got[metric.Opens])
-	assert.Equal(t, level.Cut{Elevated: 7, Critical: 70}, got[metric.Closes], "other metrics keep the base")
+	assert.Equal(t, coding.Cut{Elevated: 1, Critical: 2}, got[metric.Opens])
+	assert.Equal(t, coding.Cut{Elevated: 7, Critical: 70}, got[metric.Closes], "other metrics keep the base")
 	assert.Equal(t, uniform(7, 70), base, "the caller's base is not modified")
 
-	_, err = level.LoadCuts(strings.NewReader(""), level.Cuts{})
+	_, err = coding.LoadCuts(strings.NewReader(""), coding.Cuts{})
 	require.Error(t, err, "the result is validated even with no overrides")
 }
 
@@ -330,7 +330,7 @@ func FuzzLoadCuts(f *testing.F) {
 	f.Add([]byte("? [a]\n: {}\n"))
 	f.Add([]byte("---\n---\ncreates: {elevated: 1, critical: 0}\n"))
 	f.Fuzz(func(t *testing.T, data []byte) {
-		got, err := level.LoadCuts(bytes.NewReader(data), level.DefaultCuts())
+		got, err := coding.LoadCuts(bytes.NewReader(data), coding.DefaultCuts())
 		if err != nil {
 			return
 		}

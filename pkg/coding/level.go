@@ -1,20 +1,4 @@
-// Package level classifies a per-node rate as normal, elevated or critical
-// against per-metric cut points.
-//
-// # Basics
-//
-// [Cuts] holds two cut points per metric. A rate strictly above the
-// critical cut is [Critical], above the elevated cut [Elevated], otherwise
-// [Normal]. [DefaultCuts] are rule-of-thumb seed values used until the
-// centre's learned baseline replaces them.
-//
-// # Caveats
-//
-// The defaults are common practice, not measurements of any system: a
-// compute node sustaining under about 1 metadata op/s or about 10 kB/s is not
-// I/O-relevant, and a node can sustain a few GB/s of streaming I/O. Sites
-// should override them (or let the baseline learn them).
-package level
+package coding
 
 import (
 	"encoding/json"
@@ -126,8 +110,8 @@ func (c Cuts) Classify(id metric.ID, rate float64) Level {
 	return Normal
 }
 
-// Idle reports whether rate is below the idle floor of metric id.
-func Idle(id metric.ID, rate float64) bool { return rate < Floor(id) }
+// IsIdle reports whether rate is below the idle floor of metric id.
+func IsIdle(id metric.ID, rate float64) bool { return rate < Floor(id) }
 
 // Floor is the idle floor of metric id: IdleBytesPerSecond for byte
 // metrics, IdleOpsPerSecond for the others.
