@@ -17,6 +17,7 @@ import (
 
 	"sluice/pkg/aggregate"
 	"sluice/pkg/metric"
+	"sluice/pkg/report"
 	"sluice/pkg/tracker"
 	"sluice/pkg/wire"
 )
@@ -38,7 +39,7 @@ func TestStormFlagsExplainAckSilenceLearn(t *testing.T) {
 	t0 := time.Now().Add(-10 * time.Minute).Truncate(time.Minute)
 	nodes := []string{"bw007", "bw008", "bw009", "bw010"}
 	for _, n := range nodes {
-		b := wire.AppendJobEvent(nil, &wire.JobEvent{Type: wire.JobStart, Job: "81234", Node: n, Nodes: nodes, User: "dorvane", Name: "quill-index", Time: t0})
+		b := wire.AppendJobEvent(nil, &report.JobEvent{Type: report.JobStart, Job: "81234", Node: n, Nodes: nodes, User: "dorvane", Name: "quill-index", Time: t0})
 		require.NoError(t, nc.Publish("sluice.default.job."+n, b))
 	}
 	for step := range 24 {
@@ -46,7 +47,7 @@ func TestStormFlagsExplainAckSilenceLearn(t *testing.T) {
 		for _, n := range nodes {
 			var v metric.Values
 			v[metric.Creates], v[metric.StatOps], v[metric.WriteBytes] = 20000, 30000, 100_000
-			b := wire.AppendSample(nil, &wire.Sample{Node: n, Seq: uint64(step + 1), Start: from, End: from.Add(10 * time.Second), Jobs: []string{"81234"}, Values: v})
+			b := wire.AppendSample(nil, &report.Sample{Node: n, Seq: uint64(step + 1), Start: from, End: from.Add(10 * time.Second), Jobs: []string{"81234"}, Values: v})
 			require.NoError(t, nc.Publish("sluice.default.sample."+n, b))
 		}
 		require.NoError(t, nc.Flush())

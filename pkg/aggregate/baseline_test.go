@@ -71,7 +71,7 @@ func post(t *testing.T, svc *aggregate.Service, body []byte) aggregate.ImportRes
 	return res
 }
 
-func report(t *testing.T, svc *aggregate.Service) aggregate.Baseline {
+func baselineReport(t *testing.T, svc *aggregate.Service) aggregate.Baseline {
 	t.Helper()
 	resp, err := http.Get("http://" + svc.HTTPAddr() + "/api/v1/baseline")
 	require.NoError(t, err)
@@ -95,7 +95,7 @@ func TestImportLearnsExportsAndSurvivesRestart(t *testing.T) {
 	clock := func() time.Time { return now }
 	path := filepath.Join(t.TempDir(), "a.db")
 	svc, stop := service(t, path, clock)
-	before := creates(report(t, svc))
+	before := creates(baselineReport(t, svc))
 	assert.Equal(t, "seed", before.Source)
 
 	good, values := historyCSV(now, 3, 1500)
@@ -115,7 +115,7 @@ func TestImportLearnsExportsAndSurvivesRestart(t *testing.T) {
 	// Windows below the idle floor (1 op/s, coding.Floor) are idle and left
 	// out of the quantiles, like the rate-0 rows.
 	active := slices.DeleteFunc(values, func(v float64) bool { return v < coding.Floor(metric.Creates) })
-	got := creates(report(t, svc))
+	got := creates(baselineReport(t, svc))
 	require.Equal(t, "learned", got.Source)
 	assert.EqualValues(t, len(active), got.Windows)
 	assert.EqualValues(t, 4500+4500-len(active), got.Idle)
@@ -129,7 +129,7 @@ func TestImportLearnsExportsAndSurvivesRestart(t *testing.T) {
 
 	again := post(t, svc, body)
 	assert.Equal(t, res.Days, again.Days)
-	assert.Equal(t, got, creates(report(t, svc)), "importing the same file twice is importing it once")
+	assert.Equal(t, got, creates(baselineReport(t, svc)), "importing the same file twice is importing it once")
 
 	metrics := scrapeText(t, svc)
 	assert.Contains(t, metrics, fmt.Sprintf(`sluice_cut_point_operations_per_second{level="critical",metric="creates",source="learned"} %g`, got.Critical))
@@ -143,12 +143,12 @@ func TestImportLearnsExportsAndSurvivesRestart(t *testing.T) {
 
 	fresh, _ := service(t, filepath.Join(t.TempDir(), "b.db"), clock)
 	post(t, fresh, export)
-	assert.Equal(t, got, creates(report(t, fresh)), "an export imported elsewhere gives the same cut points")
+	assert.Equal(t, got, creates(baselineReport(t, fresh)), "an export imported elsewhere gives the same cut points")
 
 	// The learned days are in the store: a restart learns the same.
 	stop()
 	restarted, _ := service(t, path, clock)
-	assert.Equal(t, got, creates(report(t, restarted)))
+	assert.Equal(t, got, creates(baselineReport(t, restarted)))
 }
 
 func scrapeText(t *testing.T, svc *aggregate.Service) string {

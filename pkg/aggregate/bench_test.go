@@ -17,6 +17,7 @@ import (
 	"sluice/pkg/bus"
 	"sluice/pkg/internal/natstest"
 	"sluice/pkg/metric"
+	"sluice/pkg/report"
 	"sluice/pkg/tracker"
 	"sluice/pkg/wire"
 )
@@ -51,7 +52,7 @@ func BenchmarkIngestThroughBroker(b *testing.B) {
 	sent := 0
 	for i := 0; sent < b.N; i++ {
 		for n := 0; n < nodes && sent < b.N; n++ {
-			s := wire.Sample{
+			s := report.Sample{
 				Node: fmt.Sprintf("bw%04d", n), Seq: uint64(i + 1),
 				Start: t0.Add(time.Duration(i) * 5 * time.Second), End: t0.Add(time.Duration(i+1) * 5 * time.Second),
 				Jobs: []string{fmt.Sprint(81000 + n%jobs)},

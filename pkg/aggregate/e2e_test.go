@@ -24,6 +24,7 @@ import (
 	"sluice/pkg/metric"
 	smodel "sluice/pkg/model"
 	"sluice/pkg/nodeagent"
+	"sluice/pkg/report"
 	"sluice/pkg/sim"
 	"sluice/pkg/source"
 	"sluice/pkg/source/lustre"
@@ -336,8 +337,8 @@ func TestMalformedMessagesAreCountedNotFatal(t *testing.T) {
 func TestHeartbeatsBecomeAgentCost(t *testing.T) {
 	r := newRig(t)
 	for i, cpu := range []float64{10, 10.05} { // 0.05 s of CPU over 10 s: 0.5% of a core
-		hb := wire.Heartbeat{Node: "bw001", Time: t0.Add(time.Duration(i) * 10 * time.Second), Version: "dev", Interval: step,
-			CPUSeconds: cpu, RSSBytes: 15 << 20, Sources: []wire.SourceCost{{Name: "lustre", Instances: 1, MicrosPerRead: 22, OK: true, Malformed: 2}}}
+		hb := report.Heartbeat{Node: "bw001", Time: t0.Add(time.Duration(i) * 10 * time.Second), Version: "dev", Interval: step,
+			CPUSeconds: cpu, RSSBytes: 15 << 20, Sources: []report.SourceCost{{Name: "lustre", Instances: 1, MicrosPerRead: 22, OK: true, Malformed: 2}}}
 		require.NoError(t, r.nc.Publish("sluice.default.beat.bw001", wire.AppendHeartbeat(nil, &hb)))
 	}
 	require.NoError(t, r.nc.Flush())

@@ -6,6 +6,7 @@ import (
 	"github.com/nats-io/nats.go"
 
 	"sluice/pkg/model"
+	"sluice/pkg/report"
 	"sluice/pkg/store"
 	"sluice/pkg/tracker"
 	"sluice/pkg/wire"
@@ -30,7 +31,7 @@ func trackerReason(err error) string {
 // per subscription, so the decoder and the reused sample are its own.
 func (s *Service) onSample() nats.MsgHandler {
 	var dec wire.Decoder
-	var smp wire.Sample
+	var smp report.Sample
 	return func(m *nats.Msg) {
 		if err := dec.DecodeSample(m.Data, &smp); err != nil {
 			s.reject(wire.KindSample, wire.Reason(err), err)
@@ -50,7 +51,7 @@ func (s *Service) onSample() nats.MsgHandler {
 }
 
 func (s *Service) onJobEvent() nats.MsgHandler {
-	var ev wire.JobEvent
+	var ev report.JobEvent
 	return func(m *nats.Msg) {
 		if err := wire.DecodeJobEvent(m.Data, &ev); err != nil {
 			s.reject(wire.KindJobEvent, wire.Reason(err), err)
@@ -67,7 +68,7 @@ func (s *Service) onJobEvent() nats.MsgHandler {
 
 func (s *Service) onHeartbeat() nats.MsgHandler {
 	return func(m *nats.Msg) {
-		var hb wire.Heartbeat
+		var hb report.Heartbeat
 		if err := wire.DecodeHeartbeat(m.Data, &hb); err != nil {
 			s.reject(wire.KindHeartbeat, wire.Reason(err), err)
 			return
@@ -81,7 +82,7 @@ func (s *Service) onHeartbeat() nats.MsgHandler {
 
 // agentOf turns a heartbeat into the node's agent status; prev, the
 // status from the node's previous heartbeat, gives the CPU share.
-func agentOf(hb *wire.Heartbeat, prev model.Agent) model.Agent {
+func agentOf(hb *report.Heartbeat, prev model.Agent) model.Agent {
 	a := model.Agent{
 		Node: hb.Node, Version: hb.Version, LastSeen: hb.Time, Interval: hb.Interval,
 		CPUSeconds: hb.CPUSeconds, RSSBytes: hb.RSSBytes, Queued: hb.Queued, Dropped: hb.Dropped,

@@ -11,7 +11,7 @@
 // coding from its cuts with coding.Assemble, as the aggregator does (learned
 // metrics take the learned cuts and grade cuts, the others the seed
 // coding). It then generates the labelled jobs, scaled by those cuts, and
-// replays them interleaved, as agents would send them: one wire.Sample per
+// replays them interleaved, as agents would send them: one report.Sample per
 // node per minute, start and end events, Tick after every minute. Every
 // pattern flag raised is recorded against the job's label.
 //
@@ -45,9 +45,9 @@ import (
 	"sluice/pkg/matcher"
 	"sluice/pkg/metric"
 	"sluice/pkg/pattern"
+	"sluice/pkg/report"
 	"sluice/pkg/sim"
 	"sluice/pkg/tracker"
-	"sluice/pkg/wire"
 )
 
 // The targets every built-in pattern is held to.
@@ -333,7 +333,7 @@ func replay(tr *tracker.Tracker, jobs []sim.LabelledJob, starts []time.Time, o O
 		next    int
 		samples int
 		now     = o.Start
-		sample  wire.Sample
+		sample  report.Sample
 	)
 	collect := func() {
 		for _, e := range tr.Drain() {
@@ -346,7 +346,7 @@ func replay(tr *tracker.Tracker, jobs []sim.LabelledJob, starts []time.Time, o O
 		for next < len(jobs) && !starts[next].After(now) {
 			j := &jobs[next]
 			r := &running{j: j, s: j.Stream(), start: starts[next], seq: make([]uint64, j.Nodes), idList: []string{j.ID}}
-			err := tr.JobEvent(&wire.JobEvent{Type: wire.JobStart, Job: j.ID, Node: j.NodeNames[0], Time: r.start,
+			err := tr.JobEvent(&report.JobEvent{Type: report.JobStart, Job: j.ID, Node: j.NodeNames[0], Time: r.start,
 				User: j.User, Account: j.Account, Name: j.Name, Nodes: j.NodeNames})
 			if err != nil {
 				return nil, 0, fmt.Errorf("eval: job %s start: %w", j.ID, err)
@@ -363,7 +363,7 @@ func replay(tr *tracker.Tracker, jobs []sim.LabelledJob, starts []time.Time, o O
 			}
 			for k, v := range vals {
 				r.seq[k]++
-				sample = wire.Sample{Node: r.j.NodeNames[k], Seq: r.seq[k], Start: now, End: end, Jobs: r.idList, Values: v}
+				sample = report.Sample{Node: r.j.NodeNames[k], Seq: r.seq[k], Start: now, End: end, Jobs: r.idList, Values: v}
 				if err := tr.Sample(&sample); err != nil {
 					return nil, 0, fmt.Errorf("eval: job %s: %w", r.j.ID, err)
 				}
@@ -371,7 +371,7 @@ func replay(tr *tracker.Tracker, jobs []sim.LabelledJob, starts []time.Time, o O
 			}
 			r.step++
 			if r.step == r.j.Steps() {
-				err := tr.JobEvent(&wire.JobEvent{Type: wire.JobEnd, Job: r.j.ID, Node: r.j.NodeNames[0], Time: end})
+				err := tr.JobEvent(&report.JobEvent{Type: report.JobEnd, Job: r.j.ID, Node: r.j.NodeNames[0], Time: end})
 				if err != nil {
 					return nil, 0, fmt.Errorf("eval: job %s end: %w", r.j.ID, err)
 				}
@@ -387,7 +387,7 @@ func replay(tr *tracker.Tracker, jobs []sim.LabelledJob, starts []time.Time, o O
 	// A node outside every job moves the watermark on so that the last
 	// jobs' windows close and the jobs end.
 	for i := range 3 {
-		sample = wire.Sample{Node: "bw-idle", Seq: uint64(i + 1), Start: now, End: now.Add(o.Step)}
+		sample = report.Sample{Node: "bw-idle", Seq: uint64(i + 1), Start: now, End: now.Add(o.Step)}
 		if err := tr.Sample(&sample); err != nil {
 			return nil, 0, fmt.Errorf("eval: %w", err)
 		}

@@ -37,8 +37,8 @@ import (
 	"sluice/pkg/jobstate"
 	"sluice/pkg/mapping"
 	"sluice/pkg/metric"
+	"sluice/pkg/report"
 	"sluice/pkg/source"
-	"sluice/pkg/wire"
 )
 
 // Version is the agent's build version, reported in heartbeats.
@@ -262,7 +262,7 @@ func (a *Agent) saveSeq() error {
 // since the previous Collect. The first call only sets the base: ok is
 // false. Source errors other than missing data are returned joined, with
 // the sample built from the sources that could be read.
-func (a *Agent) Collect(ctx context.Context) (s wire.Sample, ok bool, err error) {
+func (a *Agent) Collect(ctx context.Context) (s report.Sample, ok bool, err error) {
 	now := a.cfg.Now()
 	var errs []error
 	split := perJob{values: map[string]*metric.Values{}}
@@ -299,7 +299,7 @@ func (a *Agent) Collect(ctx context.Context) (s wire.Sample, ok bool, err error)
 	start := a.last
 	a.last = now
 	if start.IsZero() {
-		return wire.Sample{}, false, errors.Join(errs...)
+		return report.Sample{}, false, errors.Join(errs...)
 	}
 	a.seq++
 	s.Node, s.Seq, s.Start, s.End = a.cfg.Node, a.seq, start, now
@@ -348,15 +348,15 @@ func (a *Agent) records() []jobstate.Record {
 
 // Costs returns, per source kind, the mean read time, the instance count
 // at the last read and the malformed lines skipped so far.
-func (a *Agent) Costs() []wire.SourceCost {
-	out := make([]wire.SourceCost, 0, len(a.cfg.Sources))
+func (a *Agent) Costs() []report.SourceCost {
+	out := make([]report.SourceCost, 0, len(a.cfg.Sources))
 	for _, src := range a.cfg.Sources {
 		c := a.costs[src.Name()]
 		var micros float64
 		if c.reads > 0 {
 			micros = float64(c.total.Microseconds()) / float64(c.reads)
 		}
-		out = append(out, wire.SourceCost{Name: src.Name(), Instances: uint32(c.instances), MicrosPerRead: micros, OK: c.ok, Malformed: c.malformed})
+		out = append(out, report.SourceCost{Name: src.Name(), Instances: uint32(c.instances), MicrosPerRead: micros, OK: c.ok, Malformed: c.malformed})
 	}
 	return out
 }

@@ -20,6 +20,7 @@ import (
 	"sluice/pkg/jobstate"
 	"sluice/pkg/metric"
 	"sluice/pkg/nodeagent"
+	"sluice/pkg/report"
 	"sluice/pkg/source"
 	"sluice/pkg/source/jobio"
 	"sluice/pkg/source/lustre"
@@ -168,16 +169,16 @@ func TestSampleNamesJobsRunningInTheInterval(t *testing.T) {
 func TestRunPublishesSamplesAndJobEvents(t *testing.T) {
 	srv := natstest.Start(t)
 	nc := natstest.Connect(t, srv.URL())
-	samples := make(chan wire.Sample, 16)
-	events := make(chan wire.JobEvent, 16)
+	samples := make(chan report.Sample, 16)
+	events := make(chan report.JobEvent, 16)
 	_, err := nc.Subscribe("sluice.default.>", func(m *nats.Msg) {
 		switch k, _ := wire.Peek(m.Data); k {
 		case wire.KindSample:
-			var s wire.Sample
+			var s report.Sample
 			require.NoError(t, wire.DecodeSample(m.Data, &s))
 			samples <- s
 		case wire.KindJobEvent:
-			var e wire.JobEvent
+			var e report.JobEvent
 			require.NoError(t, wire.DecodeJobEvent(m.Data, &e))
 			events <- e
 		}
@@ -200,7 +201,7 @@ func TestRunPublishesSamplesAndJobEvents(t *testing.T) {
 	go func() { done <- a.Run(ctx) }()
 
 	e := <-events
-	assert.Equal(t, wire.JobStart, e.Type)
+	assert.Equal(t, report.JobStart, e.Type)
 	assert.Equal(t, "81230", e.Job)
 	assert.Equal(t, "tidepool-assim", e.Name)
 	var seqs []uint64

@@ -12,6 +12,7 @@ import (
 
 	"sluice/pkg/bus"
 	"sluice/pkg/jobstate"
+	"sluice/pkg/report"
 	"sluice/pkg/wire"
 )
 
@@ -49,7 +50,7 @@ func JobStart(ctx context.Context, cfg HookConfig, r jobstate.Record) error {
 	if err := dir.Put(r); err != nil {
 		return err
 	}
-	if !r.StartSent && publishEvent(ctx, cfg, EventOf(r, wire.JobStart, cfg.Node)) {
+	if !r.StartSent && publishEvent(ctx, cfg, EventOf(r, report.JobStart, cfg.Node)) {
 		r.StartSent = true
 		return dir.Put(r)
 	}
@@ -72,7 +73,7 @@ func JobEnd(ctx context.Context, cfg HookConfig, id string, end time.Time, exit 
 	if err := dir.Put(r); err != nil {
 		return err
 	}
-	if !r.EndSent && publishEvent(ctx, cfg, EventOf(r, wire.JobEnd, cfg.Node)) {
+	if !r.EndSent && publishEvent(ctx, cfg, EventOf(r, report.JobEnd, cfg.Node)) {
 		r.EndSent = true
 		return dir.Put(r)
 	}
@@ -87,7 +88,7 @@ func (cfg HookConfig) dir() (*jobstate.Dir, error) {
 }
 
 // publishEvent reports whether the event reached the broker.
-func publishEvent(ctx context.Context, cfg HookConfig, e wire.JobEvent) bool {
+func publishEvent(ctx context.Context, cfg HookConfig, e report.JobEvent) bool {
 	if cfg.NATSURL == "" {
 		return false
 	}

@@ -6,7 +6,7 @@ import (
 
 	"sluice/pkg/mapping"
 	"sluice/pkg/metric"
-	"sluice/pkg/wire"
+	"sluice/pkg/report"
 )
 
 // JobLister is a source that also discovers the jobs on the node (from
@@ -103,7 +103,7 @@ func (p *perJob) target(job string, node *metric.Values) *metric.Values {
 // running job, the per-job sources' values for the metrics they measure and
 // the node's values for the rest (which the filesystem client cannot split).
 // An exclusive node, or one without per-job sources, gets no split.
-func (p *perJob) blocks(jobs []string, node metric.Values, table mapping.Table) []wire.JobValues {
+func (p *perJob) blocks(jobs []string, node metric.Values, table mapping.Table) []report.JobValues {
 	if len(jobs) < 2 || len(p.sources) == 0 {
 		return nil
 	}
@@ -113,7 +113,7 @@ func (p *perJob) blocks(jobs []string, node metric.Values, table mapping.Table) 
 			covered[id] = true
 		}
 	}
-	out := make([]wire.JobValues, 0, len(jobs))
+	out := make([]report.JobValues, 0, len(jobs))
 	for _, job := range jobs {
 		v := node
 		own := p.values[job]
@@ -125,7 +125,7 @@ func (p *perJob) blocks(jobs []string, node metric.Values, table mapping.Table) 
 				}
 			}
 		}
-		out = append(out, wire.JobValues{Job: job, Values: v})
+		out = append(out, report.JobValues{Job: job, Values: v})
 	}
 	return out
 }

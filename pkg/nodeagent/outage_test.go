@@ -19,6 +19,7 @@ import (
 
 	"sluice/pkg/internal/natstest"
 	"sluice/pkg/nodeagent"
+	"sluice/pkg/report"
 	"sluice/pkg/source"
 	"sluice/pkg/source/lustre"
 	"sluice/pkg/wire"
@@ -46,7 +47,7 @@ func collect(t *testing.T, brokerURL string) *collector {
 		defer c.mu.Unlock()
 		switch k, _ := wire.Peek(m.Data); k {
 		case wire.KindSample:
-			var s wire.Sample
+			var s report.Sample
 			switch {
 			case wire.DecodeSample(m.Data, &s) != nil:
 			case c.seen[s.Seq]:
@@ -56,7 +57,7 @@ func collect(t *testing.T, brokerURL string) *collector {
 				c.seqs = append(c.seqs, s.Seq)
 			}
 		case wire.KindHeartbeat:
-			var h wire.Heartbeat
+			var h report.Heartbeat
 			if wire.DecodeHeartbeat(m.Data, &h) == nil {
 				c.dropped = h.Dropped
 				c.beats++

@@ -13,6 +13,7 @@ import (
 
 	"sluice/pkg/bus"
 	"sluice/pkg/jobstate"
+	"sluice/pkg/report"
 	"sluice/pkg/wire"
 )
 
@@ -131,11 +132,11 @@ func (a *Agent) syncJobs(nc *nats.Conn) {
 			continue // nothing to do
 		}
 		if !r.StartSent {
-			a.queueEvent(r, wire.JobStart)
+			a.queueEvent(r, report.JobStart)
 			r.StartSent = true
 		}
 		if !r.End.IsZero() && !r.EndSent {
-			a.queueEvent(r, wire.JobEnd)
+			a.queueEvent(r, report.JobEnd)
 			r.EndSent = true
 		}
 		if r.EndSent && !r.Running(a.last) {
@@ -150,25 +151,25 @@ func (a *Agent) syncJobs(nc *nats.Conn) {
 	}
 }
 
-func (a *Agent) queueEvent(r jobstate.Record, t wire.EventType) {
+func (a *Agent) queueEvent(r jobstate.Record, t report.EventType) {
 	e := EventOf(r, t, a.cfg.Node)
 	a.queue.push(a.subj.Job(a.cfg.Node), wire.AppendJobEvent(nil, &e))
 }
 
 // EventOf builds the job event for a record.
-func EventOf(r jobstate.Record, t wire.EventType, node string) wire.JobEvent {
-	e := wire.JobEvent{
+func EventOf(r jobstate.Record, t report.EventType, node string) report.JobEvent {
+	e := report.JobEvent{
 		Type: t, Job: r.ID, Node: node, User: r.User, Account: r.Account, Name: r.Name,
 		Nodes: r.Nodes, Time: r.Start,
 	}
-	if t == wire.JobEnd {
+	if t == report.JobEnd {
 		e.Time, e.ExitCode = r.End, r.ExitCode
 	}
 	return e
 }
 
 func (a *Agent) heartbeat(nc *nats.Conn, self *process.Process) {
-	hb := wire.Heartbeat{
+	hb := report.Heartbeat{
 		Node: a.cfg.Node, Time: a.cfg.Now(), Version: Version, Interval: a.cfg.Interval,
 		Queued: uint32(a.queue.len()), Dropped: a.queue.dropped, Sources: a.Costs(),
 	}

@@ -10,9 +10,9 @@ import (
 
 	"sluice/pkg/internal/storetest"
 	"sluice/pkg/metric"
+	"sluice/pkg/report"
 	"sluice/pkg/store"
 	"sluice/pkg/tracker"
-	"sluice/pkg/wire"
 )
 
 // TestSignatureRebuiltFromWindowsEqualsIncremental runs randomized jobs
@@ -38,7 +38,7 @@ func TestSignatureRebuiltFromWindowsEqualsIncremental(t *testing.T) {
 						v[id] = uint64(r.ExpFloat64() * 1e4 * float64(r.IntN(1000)))
 					}
 				}
-				require.NoError(t, tr.Sample(&wire.Sample{Node: fmt.Sprintf("bw%03d", n+1), Seq: seq, Start: from, End: from.Add(10 * time.Second), Jobs: []string{job}, Values: v}))
+				require.NoError(t, tr.Sample(&report.Sample{Node: fmt.Sprintf("bw%03d", n+1), Seq: seq, Start: from, End: from.Add(10 * time.Second), Jobs: []string{job}, Values: v}))
 			}
 			tr.Tick()
 			persist(t, s, tr)

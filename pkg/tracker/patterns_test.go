@@ -12,8 +12,8 @@ import (
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
 	"sluice/pkg/pattern"
+	"sluice/pkg/report"
 	"sluice/pkg/tracker"
-	"sluice/pkg/wire"
 )
 
 func builtinLibrary(t *testing.T) *matcher.Library {
@@ -82,6 +82,6 @@ func TestMetadataStormRaisesOnePatternFlag(t *testing.T) {
 	assert.Equal(t, 1, cleared)
 }
 
-func jobEnd(id string, at time.Time) *wire.JobEvent {
-	return &wire.JobEvent{Type: wire.JobEnd, Job: id, Node: "bw007", Time: at}
+func jobEnd(id string, at time.Time) *report.JobEvent {
+	return &report.JobEvent{Type: report.JobEnd, Job: id, Node: "bw007", Time: at}
 }

@@ -37,7 +37,7 @@ import (
 	"sluice/pkg/matcher"
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
-	"sluice/pkg/wire"
+	"sluice/pkg/report"
 )
 
 // Options configures a Tracker. The zero value of each field means the
@@ -176,7 +176,7 @@ func (t *Tracker) Watermark() time.Time { return t.watermark }
 
 // Sample applies one sample. Applying the same (node, seq) twice returns
 // ErrDuplicate and changes nothing.
-func (t *Tracker) Sample(s *wire.Sample) error {
+func (t *Tracker) Sample(s *report.Sample) error {
 	if s.Node == "" || s.End.Before(s.Start) || s.End.Sub(s.Start) > t.opts.Window {
 		return fmt.Errorf("%w: node %q %s..%s", ErrBadInterval, s.Node, s.Start, s.End)
 	}
@@ -217,7 +217,7 @@ type attribution struct {
 
 // attributions gives each job its share: its own per-job values where the
 // agent split them, else the node's values.
-func attributions(s *wire.Sample) []attribution {
+func attributions(s *report.Sample) []attribution {
 	out := make([]attribution, 0, len(s.Jobs)+len(s.PerJob))
 	split := make(map[string]bool, len(s.PerJob))
 	for _, pj := range s.PerJob {
@@ -232,7 +232,7 @@ func attributions(s *wire.Sample) []attribution {
 	return out
 }
 
-func (t *Tracker) apply(id string, s *wire.Sample, v metric.Values) error {
+func (t *Tracker) apply(id string, s *report.Sample, v metric.Values) error {
 	j := t.jobs[id]
 	if j == nil {
 		if len(t.jobs) >= t.opts.MaxJobs {
@@ -271,7 +271,7 @@ func (t *Tracker) newJob(meta model.JobMeta) *JobState {
 // JobEvent applies a job start or end reported by one of the job's nodes.
 // Events are idempotent: each node's prolog and epilog may report the same
 // job.
-func (t *Tracker) JobEvent(e *wire.JobEvent) error {
+func (t *Tracker) JobEvent(e *report.JobEvent) error {
 	if e.Job == "" {
 		return fmt.Errorf("%w: job event without job id", ErrBadInterval)
 	}
@@ -294,7 +294,7 @@ func (t *Tracker) JobEvent(e *wire.JobEvent) error {
 		}
 	}
 	slices.Sort(m.Nodes)
-	if e.Type == wire.JobEnd && (m.End.IsZero() || e.Time.Before(m.End)) {
+	if e.Type == report.JobEnd && (m.End.IsZero() || e.Time.Before(m.End)) {
 		m.End = e.Time
 		m.Exit = e.ExitCode
 	}

@@ -10,8 +10,8 @@ import (
 
 	"sluice/pkg/coding"
 	"sluice/pkg/metric"
+	"sluice/pkg/report"
 	"sluice/pkg/tracker"
-	"sluice/pkg/wire"
 )
 
 var t0 = time.Date(2026, 3, 2, 14, 0, 0, 0, time.UTC)
@@ -24,8 +24,8 @@ func newTracker(t *testing.T, o tracker.Options) *tracker.Tracker {
 }
 
 // sample builds node's sample number seq covering [t0+from, t0+to).
-func sample(node string, seq uint64, from, to time.Duration, jobs []string, v metric.Values) *wire.Sample {
-	return &wire.Sample{Node: node, Seq: seq, Start: t0.Add(from), End: t0.Add(to), Jobs: jobs, Values: v}
+func sample(node string, seq uint64, from, to time.Duration, jobs []string, v metric.Values) *report.Sample {
+	return &report.Sample{Node: node, Seq: seq, Start: t0.Add(from), End: t0.Add(to), Jobs: jobs, Values: v}
 }
 
 func vals(pairs ...any) metric.Values {
@@ -38,7 +38,7 @@ func vals(pairs ...any) metric.Values {
 
 func startJob(t *testing.T, tr *tracker.Tracker, id string, nodes ...string) {
 	t.Helper()
-	require.NoError(t, tr.JobEvent(&wire.JobEvent{Type: wire.JobStart, Job: id, Node: nodes[0], Nodes: nodes, Time: t0, User: "ambrel"}))
+	require.NoError(t, tr.JobEvent(&report.JobEvent{Type: report.JobStart, Job: id, Node: nodes[0], Nodes: nodes, Time: t0, User: "ambrel"}))
 }
 
 func TestWindowIsMeanOfNodeRates(t *testing.T) {
@@ -180,7 +180,7 @@ func TestJobEndClosesWindowsAndClearsFlags(t *testing.T) {
 	startJob(t, tr, "5", "n1")
 	require.NoError(t, tr.Sample(sample("n1", 1, 0, 10*time.Second, []string{"5"}, vals(metric.StatOps, 500000))))
 	tr.Tick()
-	require.NoError(t, tr.JobEvent(&wire.JobEvent{Type: wire.JobEnd, Job: "5", Node: "n1", Time: t0.Add(12 * time.Second)}))
+	require.NoError(t, tr.JobEvent(&report.JobEvent{Type: report.JobEnd, Job: "5", Node: "n1", Time: t0.Add(12 * time.Second)}))
 	// The last interval, ending after the job end but within the grace.
 	require.NoError(t, tr.Sample(sample("n1", 2, 10*time.Second, 15*time.Second, []string{"5"}, metric.Values{})))
 	// A sample of another node moves the watermark past end + grace.
@@ -205,7 +205,7 @@ func TestJobEndClosesWindowsAndClearsFlags(t *testing.T) {
 func TestSharedNodeUsesPerJobSplitWhenGiven(t *testing.T) {
 	tr := newTracker(t, tracker.Options{Window: time.Minute, Live: 10 * time.Second})
 	s := sample("n1", 1, 0, 10*time.Second, []string{"a", "b"}, vals(metric.Opens, 100))
-	s.PerJob = []wire.JobValues{{Job: "a", Values: vals(metric.Opens, 30)}}
+	s.PerJob = []report.JobValues{{Job: "a", Values: vals(metric.Opens, 30)}}
 	require.NoError(t, tr.Sample(s))
 	tr.Tick()
 	a, _ := tr.Job("a")
@@ -219,7 +219,7 @@ func TestRestoreResumesExactly(t *testing.T) {
 	opts := tracker.Options{Window: time.Minute, Live: 20 * time.Second, Grace: time.Second, RaiseAfter: 1}
 	a := newTracker(t, opts)
 	startJob(t, a, "3", "n1", "n2")
-	var samples []*wire.Sample
+	var samples []*report.Sample
 	for i := range 20 {
 		from := time.Duration(i) * 5 * time.Second
 		for _, n := range []string{"n1", "n2"} {

@@ -3,6 +3,7 @@ package wire_test
 import (
 	"testing"
 
+	"sluice/pkg/report"
 	"sluice/pkg/wire"
 )
 
@@ -20,7 +21,7 @@ func BenchmarkAppendSample(b *testing.B) {
 
 func BenchmarkDecodeSample(b *testing.B) {
 	msg := wire.AppendSample(nil, typicalSample())
-	var s wire.Sample
+	var s report.Sample
 	b.SetBytes(int64(len(msg)))
 	b.ReportAllocs()
 	for b.Loop() {
@@ -35,7 +36,7 @@ func BenchmarkDecodeSample(b *testing.B) {
 func BenchmarkDecoderDecodeSample(b *testing.B) {
 	msg := wire.AppendSample(nil, typicalSample())
 	var d wire.Decoder
-	var s wire.Sample
+	var s report.Sample
 	b.SetBytes(int64(len(msg)))
 	b.ReportAllocs()
 	for b.Loop() {
@@ -47,7 +48,7 @@ func BenchmarkDecoderDecodeSample(b *testing.B) {
 
 func BenchmarkDecodeSamplePerJob(b *testing.B) {
 	msg := wire.AppendSample(nil, sharedSample())
-	var s wire.Sample
+	var s report.Sample
 	b.SetBytes(int64(len(msg)))
 	b.ReportAllocs()
 	for b.Loop() {
@@ -59,7 +60,7 @@ func BenchmarkDecodeSamplePerJob(b *testing.B) {
 
 func BenchmarkDecodeJobEvent(b *testing.B) {
 	msg := wire.AppendJobEvent(nil, typicalJobEvent())
-	var e wire.JobEvent
+	var e report.JobEvent
 	b.SetBytes(int64(len(msg)))
 	b.ReportAllocs()
 	for b.Loop() {
@@ -71,7 +72,7 @@ func BenchmarkDecodeJobEvent(b *testing.B) {
 
 func BenchmarkDecodeHeartbeat(b *testing.B) {
 	msg := wire.AppendHeartbeat(nil, typicalHeartbeat())
-	var h wire.Heartbeat
+	var h report.Heartbeat
 	b.SetBytes(int64(len(msg)))
 	b.ReportAllocs()
 	for b.Loop() {

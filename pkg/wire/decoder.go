@@ -1,5 +1,7 @@
 package wire
 
+import "sluice/pkg/report"
+
 // DefaultMaxStrings is the number of distinct strings a [Decoder] keeps
 // when MaxStrings is zero: enough for the node names and running job ids of
 // a large centre.
@@ -24,13 +26,15 @@ type Decoder struct {
 }
 
 // DecodeSample is [DecodeSample] with interned strings.
-func (d *Decoder) DecodeSample(b []byte, s *Sample) error { return decodeSample(b, s, d) }
+func (d *Decoder) DecodeSample(b []byte, s *report.Sample) error { return decodeSample(b, s, d) }
 
 // DecodeJobEvent is [DecodeJobEvent] with interned strings.
-func (d *Decoder) DecodeJobEvent(b []byte, e *JobEvent) error { return decodeJobEvent(b, e, d) }
+func (d *Decoder) DecodeJobEvent(b []byte, e *report.JobEvent) error { return decodeJobEvent(b, e, d) }
 
 // DecodeHeartbeat is [DecodeHeartbeat] with interned strings.
-func (d *Decoder) DecodeHeartbeat(b []byte, h *Heartbeat) error { return decodeHeartbeat(b, h, d) }
+func (d *Decoder) DecodeHeartbeat(b []byte, h *report.Heartbeat) error {
+	return decodeHeartbeat(b, h, d)
+}
 
 // Len returns the number of strings the intern table holds.
 func (d *Decoder) Len() int { return len(d.strs) }

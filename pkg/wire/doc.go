@@ -186,7 +186,7 @@
 // Start is sent with End = Start; times outside the nanosecond range
 // (before 1677-09-21 or after 2262-04-11 UTC) are clamped to its ends. An
 // unknown job event type is written as is and rejected on decode. The
-// Validate methods report every such case; call them where the data comes
+// Validate functions report every such case; call them where the data comes
 // from outside the agent.
 //
 // Times lose their location and monotonic reading; compare them with

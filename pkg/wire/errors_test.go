@@ -11,6 +11,7 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/report"
 	"sluice/pkg/wire"
 )
 
@@ -139,7 +140,7 @@ func TestDecodeSampleErrors(t *testing.T) {
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
 			t.Parallel()
-			var s wire.Sample
+			var s report.Sample
 			err := wire.DecodeSample(tt.input, &s)
 			require.ErrorIs(t, err, tt.wantErr)
 			assert.Contains(t, err.Error(), "sample")
@@ -153,23 +154,23 @@ func TestDecodeSampleLenient(t *testing.T) {
 	tests := []struct {
 		name  string
 		input []byte
-		want  wire.Sample
+		want  report.Sample
 	}{
 		{
 			name:  "minimal",
 			input: cat(hdrSample, str("n"), sampleAfterNode()),
-			want:  wire.Sample{Node: "n", Seq: 1, Start: normTime(timeUnix(0)), End: normTime(timeUnix(0))},
+			want:  report.Sample{Node: "n", Seq: 1, Start: normTime(timeUnix(0)), End: normTime(timeUnix(0))},
 		},
 		{
 			name:  "non-minimal varint and zero value under a set bit",
 			input: cat(hdrSample, str("n"), []byte{0x81, 0x00}, zz(0), uv(0), uv(0), uv(0b11), uv(0), uv(7), uv(0)),
-			want:  wire.Sample{Node: "n", Seq: 1, Start: normTime(timeUnix(0)), End: normTime(timeUnix(0)), Values: [12]uint64{1: 7}},
+			want:  report.Sample{Node: "n", Seq: 1, Start: normTime(timeUnix(0)), End: normTime(timeUnix(0)), Values: [12]uint64{1: 7}},
 		},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
 			t.Parallel()
-			var got wire.Sample
+			var got report.Sample
 			require.NoError(t, wire.DecodeSample(tt.input, &got))
 			assert.Equal(t, tt.want, got)
 		})
@@ -207,7 +208,7 @@ func TestDecodeJobEventErrors(t *testing.T) {
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
 			t.Parallel()
-			var e wire.JobEvent
+			var e report.JobEvent
 			err := wire.DecodeJobEvent(tt.input, &e)
 			require.ErrorIs(t, err, tt.wantErr)
 			assert.Contains(t, err.Error(), "job_event")
@@ -248,7 +249,7 @@ func TestDecodeHeartbeatErrors(t *testing.T) {
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
 			t.Parallel()
-			var h wire.Heartbeat
+			var h report.Heartbeat
 			err := wire.DecodeHeartbeat(tt.input, &h)
 			require.ErrorIs(t, err, tt.wantErr)
 			assert.Contains(t, err.Error(), "heartbeat")
@@ -262,22 +263,22 @@ func TestDecodeHeartbeatErrors(t *testing.T) {
 func TestTruncation(t *testing.T) {
 	t.Parallel()
 	decoders := map[string]func([]byte) error{
-		"sample":    func(b []byte) error { return wire.DecodeSample(b, &wire.Sample{}) },
-		"job_event": func(b []byte) error { return wire.DecodeJobEvent(b, &wire.JobEvent{}) },
-		"heartbeat": func(b []byte) error { return wire.DecodeHeartbeat(b, &wire.Heartbeat{}) },
+		"sample":    func(b []byte) error { return wire.DecodeSample(b, &report.Sample{}) },
+		"job_event": func(b []byte) error { return wire.DecodeJobEvent(b, &report.JobEvent{}) },
+		"heartbeat": func(b []byte) error { return wire.DecodeHeartbeat(b, &report.Heartbeat{}) },
 	}
 	tests := []struct {
 		name  string
 		kind  string
 		input []byte
 	}{
-		{name: "zero sample", kind: "sample", input: wire.AppendSample(nil, &wire.Sample{})},
+		{name: "zero sample", kind: "sample", input: wire.AppendSample(nil, &report.Sample{})},
 		{name: "typical sample", kind: "sample", input: wire.AppendSample(nil, typicalSample())},
 		{name: "shared sample", kind: "sample", input: wire.AppendSample(nil, sharedSample())},
-		{name: "max sample", kind: "sample", input: wire.AppendSample(nil, &wire.Sample{Node: "n", Seq: math.MaxUint64, Values: allValues(math.MaxUint64), PerJob: []wire.JobValues{{Job: "j", Values: allValues(math.MaxUint64)}}})},
-		{name: "zero job event", kind: "job_event", input: wire.AppendJobEvent(nil, &wire.JobEvent{Type: wire.JobStart})},
+		{name: "max sample", kind: "sample", input: wire.AppendSample(nil, &report.Sample{Node: "n", Seq: math.MaxUint64, Values: allValues(math.MaxUint64), PerJob: []report.JobValues{{Job: "j", Values: allValues(math.MaxUint64)}}})},
+		{name: "zero job event", kind: "job_event", input: wire.AppendJobEvent(nil, &report.JobEvent{Type: report.JobStart})},
 		{name: "typical job event", kind: "job_event", input: wire.AppendJobEvent(nil, typicalJobEvent())},
-		{name: "zero heartbeat", kind: "heartbeat", input: wire.AppendHeartbeat(nil, &wire.Heartbeat{})},
+		{name: "zero heartbeat", kind: "heartbeat", input: wire.AppendHeartbeat(nil, &report.Heartbeat{})},
 		{name: "typical heartbeat", kind: "heartbeat", input: wire.AppendHeartbeat(nil, typicalHeartbeat())},
 	}
 	for _, tt := range tests {

@@ -10,6 +10,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"sluice/pkg/metric"
+	"sluice/pkg/report"
 	"sluice/pkg/wire"
 )
 
@@ -30,19 +31,19 @@ func seed(f *testing.F, encodings ...[]byte) {
 
 func FuzzDecodeSample(f *testing.F) {
 	seed(f,
-		wire.AppendSample(nil, &wire.Sample{}),
+		wire.AppendSample(nil, &report.Sample{}),
 		wire.AppendSample(nil, typicalSample()),
-		wire.AppendSample(nil, &wire.Sample{Node: "ü", Seq: math.MaxUint64, Start: time.Unix(0, math.MaxInt64), End: time.Unix(0, math.MaxInt64), Values: allValues(math.MaxUint64)}),
+		wire.AppendSample(nil, &report.Sample{Node: "ü", Seq: math.MaxUint64, Start: time.Unix(0, math.MaxInt64), End: time.Unix(0, math.MaxInt64), Values: allValues(math.MaxUint64)}),
 	)
 	f.Fuzz(func(t *testing.T, b []byte) {
-		var s1 wire.Sample
+		var s1 report.Sample
 		if err := wire.DecodeSample(b, &s1); err != nil {
 			require.NotEqual(t, "other", wire.Reason(err), "%v", err)
 			return
 		}
-		require.NoError(t, s1.Validate(), "a decoded sample is valid")
+		require.NoError(t, wire.ValidateSample(&s1), "a decoded sample is valid")
 		b2 := wire.AppendSample(nil, &s1)
-		var s2 wire.Sample
+		var s2 report.Sample
 		require.NoError(t, wire.DecodeSample(b2, &s2))
 		require.Equal(t, s1, s2)
 		require.Equal(t, b2, wire.AppendSample(nil, &s2), "encoding is canonical")
@@ -51,19 +52,19 @@ func FuzzDecodeSample(f *testing.F) {
 
 func FuzzDecodeJobEvent(f *testing.F) {
 	seed(f,
-		wire.AppendJobEvent(nil, &wire.JobEvent{Type: wire.JobStart}),
+		wire.AppendJobEvent(nil, &report.JobEvent{Type: report.JobStart}),
 		wire.AppendJobEvent(nil, typicalJobEvent()),
-		wire.AppendJobEvent(nil, &wire.JobEvent{Type: wire.JobEnd, Time: time.Unix(0, math.MinInt64+1), ExitCode: math.MinInt32, Nodes: []string{"", "ñ"}}),
+		wire.AppendJobEvent(nil, &report.JobEvent{Type: report.JobEnd, Time: time.Unix(0, math.MinInt64+1), ExitCode: math.MinInt32, Nodes: []string{"", "ñ"}}),
 	)
 	f.Fuzz(func(t *testing.T, b []byte) {
-		var e1 wire.JobEvent
+		var e1 report.JobEvent
 		if err := wire.DecodeJobEvent(b, &e1); err != nil {
 			require.NotEqual(t, "other", wire.Reason(err), "%v", err)
 			return
 		}
-		require.NoError(t, e1.Validate(), "a decoded job event is valid")
+		require.NoError(t, wire.ValidateJobEvent(&e1), "a decoded job event is valid")
 		b2 := wire.AppendJobEvent(nil, &e1)
-		var e2 wire.JobEvent
+		var e2 report.JobEvent
 		require.NoError(t, wire.DecodeJobEvent(b2, &e2))
 		require.Equal(t, e1, e2)
 		require.Equal(t, b2, wire.AppendJobEvent(nil, &e2), "encoding is canonical")
@@ -72,15 +73,15 @@ func FuzzDecodeJobEvent(f *testing.F) {
 
 // comparableHeartbeat replaces floats with their bits, so NaN equals NaN.
 type comparableHeartbeat struct {
-	h       wire.Heartbeat
+	h       report.Heartbeat
 	cpu     uint64
 	sources []uint64
 }
 
-func heartbeatKey(h wire.Heartbeat) comparableHeartbeat {
+func heartbeatKey(h report.Heartbeat) comparableHeartbeat {
 	k := comparableHeartbeat{cpu: math.Float64bits(h.CPUSeconds)}
 	h.CPUSeconds = 0
-	h.Sources = append([]wire.SourceCost(nil), h.Sources...)
+	h.Sources = append([]report.SourceCost(nil), h.Sources...)
 	for i := range h.Sources {
 		k.sources = append(k.sources, math.Float64bits(h.Sources[i].MicrosPerRead))
 		h.Sources[i].MicrosPerRead = 0
@@ -91,19 +92,19 @@ func heartbeatKey(h wire.Heartbeat) comparableHeartbeat {
 
 func FuzzDecodeHeartbeat(f *testing.F) {
 	seed(f,
-		wire.AppendHeartbeat(nil, &wire.Heartbeat{}),
+		wire.AppendHeartbeat(nil, &report.Heartbeat{}),
 		wire.AppendHeartbeat(nil, typicalHeartbeat()),
-		wire.AppendHeartbeat(nil, &wire.Heartbeat{CPUSeconds: math.NaN(), Queued: math.MaxUint32, Interval: math.MinInt64, Sources: []wire.SourceCost{{Instances: math.MaxUint32, MicrosPerRead: math.Inf(1), Malformed: math.MaxUint64}}}),
+		wire.AppendHeartbeat(nil, &report.Heartbeat{CPUSeconds: math.NaN(), Queued: math.MaxUint32, Interval: math.MinInt64, Sources: []report.SourceCost{{Instances: math.MaxUint32, MicrosPerRead: math.Inf(1), Malformed: math.MaxUint64}}}),
 	)
 	f.Fuzz(func(t *testing.T, b []byte) {
-		var h1 wire.Heartbeat
+		var h1 report.Heartbeat
 		if err := wire.DecodeHeartbeat(b, &h1); err != nil {
 			require.NotEqual(t, "other", wire.Reason(err), "%v", err)
 			return
 		}
-		require.NoError(t, h1.Validate(), "a decoded heartbeat is valid")
+		require.NoError(t, wire.ValidateHeartbeat(&h1), "a decoded heartbeat is valid")
 		b2 := wire.AppendHeartbeat(nil, &h1)
-		var h2 wire.Heartbeat
+		var h2 report.Heartbeat
 		require.NoError(t, wire.DecodeHeartbeat(b2, &h2))
 		require.Equal(t, heartbeatKey(h1), heartbeatKey(h2))
 		require.Equal(t, b2, wire.AppendHeartbeat(nil, &h2), "encoding is canonical")
@@ -119,7 +120,7 @@ func FuzzSampleRoundTrip(f *testing.F) {
 	f.Add("nœud\xff", uint64(math.MaxUint64), int64(math.MaxInt64), uint64(math.MaxUint64), "作業", "🚀", uint16(0xffff), uint64(math.MaxUint64), uint64(1), "x")
 	f.Add("n", uint64(7), int64(-1), uint64(1), "a", "b", uint16(0x801), uint64(1), uint64(0), "")
 	f.Fuzz(func(t *testing.T, node string, seq uint64, start int64, dur uint64, job1, job2 string, mask uint16, a, b uint64, perJob string) {
-		s := wire.Sample{Node: node, Seq: seq}
+		s := report.Sample{Node: node, Seq: seq}
 		if start != math.MinInt64 {
 			s.Start = time.Unix(0, start).UTC()
 		}
@@ -135,7 +136,7 @@ func FuzzSampleRoundTrip(f *testing.F) {
 			}
 		}
 		if perJob != "" {
-			jv := wire.JobValues{Job: perJob}
+			jv := report.JobValues{Job: perJob}
 			for i := range metric.Count {
 				if mask&(1<<(15-i)) != 0 {
 					jv.Values[i] = b<<i | a
@@ -145,10 +146,10 @@ func FuzzSampleRoundTrip(f *testing.F) {
 		}
 
 		enc := wire.AppendSample(nil, &s)
-		var got wire.Sample
+		var got report.Sample
 		require.NoError(t, wire.DecodeSample(enc, &got))
 		require.Equal(t, enc, wire.AppendSample(nil, &got), "clamping is idempotent")
-		if s.Validate() != nil {
+		if wire.ValidateSample(&s) != nil {
 			return
 		}
 		require.Equal(t, normSample(s), got)

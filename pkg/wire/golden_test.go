@@ -17,6 +17,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"sluice/pkg/metric"
+	"sluice/pkg/report"
 	"sluice/pkg/wire"
 )
 
@@ -74,21 +75,21 @@ func goldenMessages() []struct {
 			name:   "sample",
 			file:   "sample.golden",
 			encode: func() []byte { return wire.AppendSample(nil, sharedSample()) },
-			decode: func(b []byte) (any, error) { var s wire.Sample; err := wire.DecodeSample(b, &s); return s, err },
+			decode: func(b []byte) (any, error) { var s report.Sample; err := wire.DecodeSample(b, &s); return s, err },
 			want:   normSample(*sharedSample()),
 		},
 		{
 			name:   "job event",
 			file:   "job_event.golden",
 			encode: func() []byte { return wire.AppendJobEvent(nil, typicalJobEvent()) },
-			decode: func(b []byte) (any, error) { var e wire.JobEvent; err := wire.DecodeJobEvent(b, &e); return e, err },
+			decode: func(b []byte) (any, error) { var e report.JobEvent; err := wire.DecodeJobEvent(b, &e); return e, err },
 			want:   normJobEvent(*typicalJobEvent()),
 		},
 		{
 			name:   "heartbeat",
 			file:   "heartbeat.golden",
 			encode: func() []byte { return wire.AppendHeartbeat(nil, typicalHeartbeat()) },
-			decode: func(b []byte) (any, error) { var h wire.Heartbeat; err := wire.DecodeHeartbeat(b, &h); return h, err },
+			decode: func(b []byte) (any, error) { var h report.Heartbeat; err := wire.DecodeHeartbeat(b, &h); return h, err },
 			want:   normHeartbeat(*typicalHeartbeat()),
 		},
 	}
@@ -150,23 +151,23 @@ func docExample(t *testing.T, marker string) []byte {
 func TestDocLayout(t *testing.T) {
 	t.Parallel()
 	start := time.Unix(0, 1000).UTC()
-	sample := &wire.Sample{
+	sample := &report.Sample{
 		Node:   "cn01",
 		Seq:    300,
 		Start:  start,
 		End:    start.Add(10 * time.Second),
 		Jobs:   []string{"42", "é"},
 		Values: metric.Values{metric.ReadBytes: 4096, metric.WriteOps: 1, metric.Syncs: 3},
-		PerJob: []wire.JobValues{{Job: "42", Values: metric.Values{metric.ReadBytes: 4096}}},
+		PerJob: []report.JobValues{{Job: "42", Values: metric.Values{metric.ReadBytes: 4096}}},
 	}
-	heartbeat := &wire.Heartbeat{
+	heartbeat := &report.Heartbeat{
 		Node:       "cn01",
 		Time:       time.Unix(0, -1).UTC(),
 		Version:    "v1",
 		Interval:   10 * time.Second,
 		CPUSeconds: 1.5,
 		RSSBytes:   300,
-		Sources:    []wire.SourceCost{{Name: "lustre", Instances: 2, MicrosPerRead: 12.5, OK: true, Malformed: 3}},
+		Sources:    []report.SourceCost{{Name: "lustre", Instances: 2, MicrosPerRead: 12.5, OK: true, Malformed: 3}},
 	}
 	tests := []struct {
 		name   string
@@ -199,7 +200,7 @@ func TestDocLayout(t *testing.T) {
 				0x80, 0x20, // read_bytes 4096
 			},
 			encode: func() []byte { return wire.AppendSample(nil, sample) },
-			decode: func(b []byte) (any, error) { var s wire.Sample; err := wire.DecodeSample(b, &s); return s, err },
+			decode: func(b []byte) (any, error) { var s report.Sample; err := wire.DecodeSample(b, &s); return s, err },
 			value:  normSample(*sample),
 		},
 		{
@@ -223,7 +224,7 @@ func TestDocLayout(t *testing.T) {
 				0x03, // malformed 3
 			},
 			encode: func() []byte { return wire.AppendHeartbeat(nil, heartbeat) },
-			decode: func(b []byte) (any, error) { var h wire.Heartbeat; err := wire.DecodeHeartbeat(b, &h); return h, err },
+			decode: func(b []byte) (any, error) { var h report.Heartbeat; err := wire.DecodeHeartbeat(b, &h); return h, err },
 			value:  normHeartbeat(*heartbeat),
 		},
 	}

@@ -3,55 +3,15 @@ package wire
 import (
 	"slices"
 	"time"
+
+	"sluice/pkg/report"
 )
-
-// Heartbeat is what an agent publishes periodically about itself, so the
-// aggregator can tell a silent node from an idle one and export the agent's
-// own cost.
-type Heartbeat struct {
-	// Node is the node name as the agent knows itself.
-	Node string
-	// Time is when the heartbeat was taken.
-	Time time.Time
-	// Version is the agent's build version.
-	Version string
-	// Interval is the agent's sampling interval.
-	Interval time.Duration
-	// CPUSeconds is the agent process's CPU time (user+system) since it
-	// started, in seconds.
-	CPUSeconds float64
-	// RSSBytes is the agent's resident memory, in bytes.
-	RSSBytes uint64
-	// Queued counts samples waiting in the agent's outage queue.
-	Queued uint32
-	// Dropped counts samples dropped past the queue bound since the agent
-	// started.
-	Dropped uint64
-	// Sources holds one entry per source kind the agent reads.
-	Sources []SourceCost
-}
-
-// SourceCost is what reading one kind of source costs the agent.
-type SourceCost struct {
-	// Name is the source's kind, e.g. "lustre".
-	Name string
-	// Instances counts the source's instances found at the last read.
-	Instances uint32
-	// MicrosPerRead is the mean time one read of all instances takes, in
-	// microseconds.
-	MicrosPerRead float64
-	// OK reports whether the last read succeeded.
-	OK bool
-	// Malformed counts counter lines the source skipped as malformed since
-	// the agent started.
-	Malformed uint64
-}
 
 // AppendHeartbeat appends h encoded as a heartbeat message to dst and
 // returns the extended buffer. Fields outside the format's limits are
-// clamped as the package doc's Caveats describe; [Heartbeat.Validate]
+// clamped as the package doc's Caveats describe; [ValidateHeartbeat]
 // reports them.
-func AppendHeartbeat(dst []byte, h *Heartbeat) []byte {
+func AppendHeartbeat(dst []byte, h *report.Heartbeat) []byte {
 	dst = append(dst, Version1, byte(KindHeartbeat))
 	dst = appendString(dst, h.Node)
 	dst = appendVarint(dst, timeToNanos(h.Time))
@@ -75,11 +35,11 @@ func AppendHeartbeat(dst []byte, h *Heartbeat) []byte {
 
 // DecodeHeartbeat decodes the heartbeat message b into h, reusing the
 // capacity of h.Sources. On error h holds a partial decode.
-func DecodeHeartbeat(b []byte, h *Heartbeat) error {
+func DecodeHeartbeat(b []byte, h *report.Heartbeat) error {
 	return decodeHeartbeat(b, h, nil)
 }
 
-func decodeHeartbeat(b []byte, h *Heartbeat, in *Decoder) error {
+func decodeHeartbeat(b []byte, h *report.Heartbeat, in *Decoder) error {
 	if err := checkHeader(b, KindHeartbeat); err != nil {
 		return err
 	}
@@ -96,7 +56,7 @@ func decodeHeartbeat(b []byte, h *Heartbeat, in *Decoder) error {
 	n, hint := r.count("sources", 12)
 	h.Sources = slices.Grow(h.Sources[:0], hint)
 	for i := 0; i < n && r.err == nil; i++ {
-		h.Sources = append(h.Sources, SourceCost{
+		h.Sources = append(h.Sources, report.SourceCost{
 			Name:          r.str("source name"),
 			Instances:     r.uint32("source instances"),
 			MicrosPerRead: r.float("source micros per read"),
@@ -107,9 +67,9 @@ func decodeHeartbeat(b []byte, h *Heartbeat, in *Decoder) error {
 	return r.done()
 }
 
-// Validate reports whether h encodes exactly: an error wrapping
+// ValidateHeartbeat reports whether h encodes exactly: an error wrapping
 // [ErrMalformed] names the first field that [AppendHeartbeat] would clamp.
-func (h *Heartbeat) Validate() error {
+func ValidateHeartbeat(h *report.Heartbeat) error {
 	v := validator{kind: KindHeartbeat}
 	v.str("node", h.Node)
 	v.time("time", h.Time)

@@ -4,46 +4,14 @@ import (
 	"fmt"
 	"math"
 	"slices"
-	"time"
 
-	"sluice/pkg/metric"
+	"sluice/pkg/report"
 )
-
-// Sample is what an agent publishes once per interval: one node's metric
-// deltas, tagged with (Node, Seq) so the aggregator can drop duplicates
-// when a stream is replayed.
-type Sample struct {
-	// Node is the node name as the agent knows itself.
-	Node string
-	// Seq is the per-node sequence number: 1 for the first sample, +1 per
-	// sample, never reused across agent restarts.
-	Seq uint64
-	// Start is the interval's start (wall clock).
-	Start time.Time
-	// End is the interval's end; End >= Start.
-	End time.Time
-	// Jobs holds the ids of the jobs running on the node during the
-	// interval; it may be empty.
-	Jobs []string
-	// Values holds the node's deltas over the interval.
-	Values metric.Values
-	// PerJob optionally splits Values by job when several jobs share the
-	// node (for example from per-job cgroup counters).
-	PerJob []JobValues
-}
-
-// JobValues is one job's share of a sample's deltas.
-type JobValues struct {
-	// Job is the job id.
-	Job string
-	// Values holds the job's deltas over the sample's interval.
-	Values metric.Values
-}
 
 // AppendSample appends s encoded as a sample message to dst and returns the
 // extended buffer. Fields outside the format's limits are clamped as the
-// package doc's Caveats describe; [Sample.Validate] reports them.
-func AppendSample(dst []byte, s *Sample) []byte {
+// package doc's Caveats describe; [ValidateSample] reports them.
+func AppendSample(dst []byte, s *report.Sample) []byte {
 	dst = append(dst, Version1, byte(KindSample))
 	dst = appendString(dst, s.Node)
 	dst = appendUvarint(dst, s.Seq)
@@ -67,11 +35,11 @@ func AppendSample(dst []byte, s *Sample) []byte {
 // DecodeSample decodes the sample message b into s. It reuses the capacity
 // of s.Jobs and s.PerJob, so a subscriber that decodes into one Sample
 // allocates only the strings. On error s holds a partial decode.
-func DecodeSample(b []byte, s *Sample) error {
+func DecodeSample(b []byte, s *report.Sample) error {
 	return decodeSample(b, s, nil)
 }
 
-func decodeSample(b []byte, s *Sample, in *Decoder) error {
+func decodeSample(b []byte, s *report.Sample, in *Decoder) error {
 	if err := checkHeader(b, KindSample); err != nil {
 		return err
 	}
@@ -92,15 +60,15 @@ func decodeSample(b []byte, s *Sample, in *Decoder) error {
 	n, hint := r.count("per-job", 2)
 	s.PerJob = slices.Grow(s.PerJob[:0], hint)
 	for i := 0; i < n && r.err == nil; i++ {
-		s.PerJob = append(s.PerJob, JobValues{Job: r.str("per-job job")})
+		s.PerJob = append(s.PerJob, report.JobValues{Job: r.str("per-job job")})
 		r.values("per-job values", &s.PerJob[len(s.PerJob)-1].Values)
 	}
 	return r.done()
 }
 
-// Validate reports whether s encodes exactly: an error wrapping
+// ValidateSample reports whether s encodes exactly: an error wrapping
 // [ErrMalformed] names the first field that [AppendSample] would clamp.
-func (s *Sample) Validate() error {
+func ValidateSample(s *report.Sample) error {
 	v := validator{kind: KindSample}
 	v.str("node", s.Node)
 	v.time("start", s.Start)

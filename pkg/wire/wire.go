@@ -24,11 +24,11 @@ type Kind byte
 
 // The message kinds of wire format v1.
 const (
-	// KindSample is a [Sample]: a node's metric deltas over one interval.
+	// KindSample is a report.Sample: a node's metric deltas over one interval.
 	KindSample Kind = 1
-	// KindJobEvent is a [JobEvent]: a job started or ended.
+	// KindJobEvent is a report.JobEvent: a job started or ended.
 	KindJobEvent Kind = 2
-	// KindHeartbeat is a [Heartbeat]: the agent's own health and cost.
+	// KindHeartbeat is a report.Heartbeat: the agent's own health and cost.
 	KindHeartbeat Kind = 3
 )
 
