@@ -122,7 +122,7 @@ func TestCheckListsSourcesAndFailsWithoutData(t *testing.T) {
 	ms, err := os.ReadFile("../testdata/nfs/v4_2_single/mountstats")
 	require.NoError(t, err)
 	require.NoError(t, os.WriteFile(filepath.Join(nfsProc, "self", "mountstats"), ms, 0o644))
-	all := append(args, "--sources", "lustre,nfs,block", "--source.block.procfs", "../testdata/diskstats/v5_5_20fields", "--source.nfs.procfs", nfsProc)
+	all := append(args, "--sources", "lustre,nfs,block", "--source.block.procfs", "../testdata/block/v5_5_20fields", "--source.nfs.procfs", nfsProc)
 	out.Reset()
 	require.NoError(t, check(context.Background(), all, &out, &stderr))
 	assert.Regexp(t, `block\s+\d+\s+read_bytes write_bytes read_ops write_ops syncs\s+ok`, out.String())

@@ -9,7 +9,7 @@ import (
 	"strings"
 
 	"sluice/pkg/source"
-	"sluice/pkg/source/diskstats"
+	"sluice/pkg/source/block"
 	"sluice/pkg/source/jobio"
 	"sluice/pkg/source/lustre"
 	"sluice/pkg/source/nfs"
@@ -38,8 +38,8 @@ func (f *sourceFlags) register(fs *flag.FlagSet) {
 	fs.StringVar(&f.jobio.JobPattern, "source.jobio.job-pattern", jobio.DefaultJobPattern, "regular expression on cgroup paths (relative to the cgroup mount) whose first group is the job id; the default matches job_<id> layouts")
 	fs.IntVar(&f.jobio.MaxDepth, "source.jobio.max-depth", jobio.DefaultMaxDepth, "directory levels searched for job cgroups, and below each job cgroup for its processes")
 	fs.StringVar(&f.blockProc, "source.block.procfs", "/proc", "procfs mount point holding diskstats")
-	fs.StringVar(&f.blockInclude, "source.block.include", diskstats.DefaultInclude, "regular expression of block device names to read (whole disks by default: partitions would count twice)")
-	fs.StringVar(&f.blockExclude, "source.block.exclude", diskstats.DefaultExclude, "regular expression of block device names to leave out, applied after the include pattern")
+	fs.StringVar(&f.blockInclude, "source.block.include", block.DefaultInclude, "regular expression of block device names to read (whole disks by default: partitions would count twice)")
+	fs.StringVar(&f.blockExclude, "source.block.exclude", block.DefaultExclude, "regular expression of block device names to leave out, applied after the include pattern")
 }
 
 // build makes the selected sources. A selected source whose directory does
@@ -78,7 +78,7 @@ func (f *sourceFlags) build() ([]source.Source, error) {
 			if err := mustExist(filepath.Join(f.blockProc, "diskstats"), "block device statistics", "--source.block.procfs", "the procfs mount point"); err != nil {
 				return nil, err
 			}
-			src, err := diskstats.NewSource(f.blockProc, diskstats.Options{Include: f.blockInclude, Exclude: f.blockExclude}, nil)
+			src, err := block.NewSource(f.blockProc, block.Options{Include: f.blockInclude, Exclude: f.blockExclude}, nil)
 			if err != nil {
 				return nil, fmt.Errorf("--source.block.*: %w", err)
 			}

@@ -24,8 +24,8 @@
 // is that a reset is seen only when some metric's sum goes down; the
 // sources reset whole instances at once (writing to a Lustre stats file
 // clears every counter in it), so the sums fall with them. The only true
-// wrap-around the sources have is handled by the source (diskstats
-// millisecond fields), not here.
+// wrap-around the sources have is handled by the source (the block
+// source's millisecond fields), not here.
 package delta
 
 import "sluice/pkg/metric"

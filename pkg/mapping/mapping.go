@@ -73,7 +73,7 @@ var lustreDefault = map[string]metric.ID{
 	"mmap":            metric.OtherOps,
 }
 
-// blockDefault maps the block device source's counters (pkg/source/diskstats,
+// blockDefault maps the block device source's counters (pkg/source/block,
 // after Documentation/admin-guide/iostats.rst). Merged requests are already
 // inside reads and writes, sectors are inside the byte counts, and the
 // millisecond fields are time, which no metric holds. Block operations are

@@ -18,7 +18,7 @@ import (
 	"sluice/pkg/jobstate"
 	"sluice/pkg/nodeagent"
 	"sluice/pkg/source"
-	"sluice/pkg/source/diskstats"
+	"sluice/pkg/source/block"
 	"sluice/pkg/source/jobio"
 	"sluice/pkg/source/lustre"
 	"sluice/pkg/source/nfs"
@@ -232,13 +232,13 @@ func bumpMountstats(data []byte, i int, busy func(string) bool) []byte {
 
 // agent returns one agent interval over the node's files, checked.
 func (n *node) agent(b *testing.B) func() {
-	block, err := diskstats.NewSource(n.proc, diskstats.Options{}, nil)
+	disks, err := block.NewSource(n.proc, block.Options{}, nil)
 	require.NoError(b, err)
 	jobs, err := jobio.NewSource(jobio.Options{CgroupRoot: n.cgroup, ProcRoot: n.proc}, nil)
 	require.NoError(b, err)
 	a, err := nodeagent.New(nodeagent.Config{
 		Node: "bw001", StateDir: n.state,
-		Sources: []source.Source{lustre.NewSource(n.lustre, nil), nfs.NewSource(n.proc, nil), block, jobs},
+		Sources: []source.Source{lustre.NewSource(n.lustre, nil), nfs.NewSource(n.proc, nil), disks, jobs},
 	})
 	require.NoError(b, err)
 	ctx := context.Background()

@@ -1,4 +1,4 @@
-package diskstats_test
+package block_test
 
 import (
 	"bytes"
@@ -7,7 +7,7 @@ import (
 	"path/filepath"
 	"testing"
 
-	"sluice/pkg/source/diskstats"
+	"sluice/pkg/source/block"
 )
 
 // BenchmarkParse8Devices parses an eight-disk 5.5+ file from memory.
@@ -18,7 +18,7 @@ func BenchmarkParse8Devices(b *testing.B) {
 	b.ReportAllocs()
 	for b.Loop() {
 		r.Reset(data)
-		st, err := diskstats.Parse(r)
+		st, err := block.Parse(r)
 		if err != nil || len(st.Devices) != 8 {
 			b.Fatal(err, len(st.Devices))
 		}
@@ -30,7 +30,7 @@ func BenchmarkParse8Devices(b *testing.B) {
 // device.
 func BenchmarkSourceRead8Devices(b *testing.B) {
 	root := procRoot(b, bench8())
-	src := newSource(b, root, diskstats.Options{})
+	src := newSource(b, root, block.Options{})
 	ctx := context.Background()
 	b.ReportAllocs()
 	for b.Loop() {

@@ -1,4 +1,4 @@
-// Package diskstats reads the kernel's per-block-device I/O statistics,
+// Package block reads the kernel's per-block-device I/O statistics,
 // /proc/diskstats, and turns them into raw cumulative counters for the
 // agent.
 //
@@ -98,4 +98,4 @@
 //     reports physical disk I/O.
 //   - Each Source keeps the file open between reads; it must be used by
 //     one goroutine at a time, and [Source.Close] releases the file.
-package diskstats
+package block

@@ -1,4 +1,4 @@
-package diskstats_test
+package block_test
 
 import (
 	"context"
@@ -16,25 +16,25 @@ import (
 	"sluice/pkg/delta"
 	"sluice/pkg/mapping"
 	"sluice/pkg/source"
-	"sluice/pkg/source/diskstats"
+	"sluice/pkg/source/block"
 )
 
-var _ source.Source = (*diskstats.Source)(nil)
+var _ source.Source = (*block.Source)(nil)
 
 // all includes every device.
-var all = diskstats.Options{Include: ".*", Exclude: "^$"}
+var all = block.Options{Include: ".*", Exclude: "^$"}
 
 // newSource returns a Source on root, closed when the test ends.
-func newSource(t testing.TB, root string, opts diskstats.Options) *diskstats.Source {
+func newSource(t testing.TB, root string, opts block.Options) *block.Source {
 	t.Helper()
-	src, err := diskstats.NewSource(root, opts, nowFunc)
+	src, err := block.NewSource(root, opts, nowFunc)
 	require.NoError(t, err)
 	t.Cleanup(func() { require.NoError(t, src.Close()) })
 	return src
 }
 
 // read reads src once and fails the test on error.
-func read(t testing.TB, src *diskstats.Source) []source.Reading {
+func read(t testing.TB, src *block.Source) []source.Reading {
 	t.Helper()
 	rs, err := src.Read(context.Background())
 	require.NoError(t, err)
@@ -64,7 +64,7 @@ func byKey(t testing.TB, rs []source.Reading, k string) map[string]uint64 {
 
 func TestSourceMixedDefaults(t *testing.T) {
 	t.Parallel()
-	src := newSource(t, filepath.Dir(fixture("mixed")), diskstats.Options{})
+	src := newSource(t, filepath.Dir(fixture("mixed")), block.Options{})
 	require.Equal(t, "block", src.Name())
 	got := read(t, src)
 	require.Equal(t, []string{"block:sda", "block:sdb", "block:nvme0n1", "block:vda", "block:xvdb", "block:mmcblk0"}, keys(got))
@@ -94,18 +94,18 @@ func TestSourceIncludeExclude(t *testing.T) {
 	root := filepath.Dir(fixture("mixed"))
 	tests := []struct {
 		name    string
-		input   diskstats.Options
+		input   block.Options
 		want    []string // device names
 		wantErr error    // from Read
 	}{
 		{
 			name:  "defaults: whole disks",
-			input: diskstats.Options{},
+			input: block.Options{},
 			want:  []string{"sda", "sdb", "nvme0n1", "vda", "xvdb", "mmcblk0"},
 		},
 		{
 			name:  "everything but the default exclusions",
-			input: diskstats.Options{Include: ".*"},
+			input: block.Options{Include: ".*"},
 			want: []string{"sda", "sda1", "sda2", "sdb", "nvme0n1", "nvme0n1p1", "nvme0n1p2",
 				"vda", "vda1", "xvdb", "mmcblk0", "mmcblk0p1", "mmcblk0boot0"},
 		},
@@ -118,22 +118,22 @@ func TestSourceIncludeExclude(t *testing.T) {
 		},
 		{
 			name:  "device-mapper volumes only",
-			input: diskstats.Options{Include: `^dm-\d+$`, Exclude: "^$"},
+			input: block.Options{Include: `^dm-\d+$`, Exclude: "^$"},
 			want:  []string{"dm-0", "dm-1"},
 		},
 		{
 			name:  "default include, own exclude",
-			input: diskstats.Options{Exclude: "^(sd|mmc)"},
+			input: block.Options{Exclude: "^(sd|mmc)"},
 			want:  []string{"nvme0n1", "vda", "xvdb"},
 		},
 		{
 			name:  "partitions of sda",
-			input: diskstats.Options{Include: `^sda\d+$`},
+			input: block.Options{Include: `^sda\d+$`},
 			want:  []string{"sda1", "sda2"},
 		},
 		{
 			name:    "nothing matches",
-			input:   diskstats.Options{Include: "^hdz$"},
+			input:   block.Options{Include: "^hdz$"},
 			wantErr: source.ErrNoData,
 		},
 	}
@@ -161,16 +161,16 @@ func TestNewSourceBadPattern(t *testing.T) {
 	t.Parallel()
 	tests := []struct {
 		name    string
-		input   diskstats.Options
+		input   block.Options
 		wantErr string
 	}{
-		{name: "include", input: diskstats.Options{Include: "sd("}, wantErr: "include pattern"},
-		{name: "exclude", input: diskstats.Options{Exclude: "[loop"}, wantErr: "exclude pattern"},
+		{name: "include", input: block.Options{Include: "sd("}, wantErr: "include pattern"},
+		{name: "exclude", input: block.Options{Exclude: "[loop"}, wantErr: "exclude pattern"},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
 			t.Parallel()
-			src, err := diskstats.NewSource(t.TempDir(), tt.input, nowFunc)
+			src, err := block.NewSource(t.TempDir(), tt.input, nowFunc)
 			require.ErrorContains(t, err, tt.wantErr)
 			require.Nil(t, src)
 		})
@@ -224,7 +224,7 @@ func TestSourceCountersByLayout(t *testing.T) {
 func TestSourceWrap(t *testing.T) {
 	t.Parallel()
 	root := procRoot(t, string(readFixture(t, "wrap_1")))
-	src := newSource(t, root, diskstats.Options{})
+	src := newSource(t, root, block.Options{})
 	first := read(t, src)
 	// Until a wrap is seen the values are the raw ones.
 	require.Equal(t, uint64(4294967000), byKey(t, first, "block:sda")["read_ms"])
@@ -305,7 +305,7 @@ func mapped(rs []source.Reading) []delta.Instance {
 func TestSourceUnwrapLongRun(t *testing.T) {
 	t.Parallel()
 	root := t.TempDir()
-	src := newSource(t, root, diskstats.Options{})
+	src := newSource(t, root, block.Options{})
 	const step = 1500000000 // < 2^31
 	trueMs := uint64(3<<32 + 4000000000)
 	base := trueMs &^ (1<<32 - 1)
@@ -327,13 +327,13 @@ func TestSourceUnwrapLongRun(t *testing.T) {
 func TestSourceReset(t *testing.T) {
 	t.Parallel()
 	root := procRoot(t, string(readFixture(t, "reset_1")))
-	src := newSource(t, root, diskstats.Options{})
+	src := newSource(t, root, block.Options{})
 	tracker := delta.NewTracker()
 	tracker.Update(mapped(read(t, src)))
 
 	writeFile(t, root, string(readFixture(t, "reset_2")))
 	got := read(t, src)
-	raw, err := diskstats.Parse(strings.NewReader(string(readFixture(t, "reset_2"))))
+	raw, err := block.Parse(strings.NewReader(string(readFixture(t, "reset_2"))))
 	require.NoError(t, err)
 	for i, d := range raw.Devices {
 		c := got[i].Counters
@@ -359,7 +359,7 @@ func TestSourceReset(t *testing.T) {
 func TestSourceResetAfterWrap(t *testing.T) {
 	t.Parallel()
 	root := procRoot(t, string(readFixture(t, "wrap_1")))
-	src := newSource(t, root, diskstats.Options{})
+	src := newSource(t, root, block.Options{})
 	read(t, src)
 	writeFile(t, root, string(readFixture(t, "wrap_2")))
 	require.Equal(t, uint64(1<<32+704), byKey(t, read(t, src), "block:sda")["read_ms"])
@@ -421,7 +421,7 @@ func TestSourceMsDrops(t *testing.T) {
 		t.Run(tt.name, func(t *testing.T) {
 			t.Parallel()
 			root := procRoot(t, formatAll(dev(8, 0, "sda", tt.before...)))
-			src := newSource(t, root, diskstats.Options{})
+			src := newSource(t, root, block.Options{})
 			read(t, src)
 			writeFile(t, root, formatAll(dev(8, 0, "sda", tt.after...)))
 			got := byKey(t, read(t, src), "block:sda")
@@ -435,14 +435,14 @@ func TestSourceMsDrops(t *testing.T) {
 
 func TestSourceDevicesComeAndGo(t *testing.T) {
 	t.Parallel()
-	sda := func(readMs uint64) diskstats.Device {
+	sda := func(readMs uint64) block.Device {
 		return dev(8, 0, "sda", 10, 0, 80, readMs, 10, 0, 80, 0, 0, 1, 1)
 	}
-	sdb := func(reads, readMs uint64) diskstats.Device {
+	sdb := func(reads, readMs uint64) block.Device {
 		return dev(8, 16, "sdb", reads, 0, 8*reads, readMs, 0, 0, 0, 0, 0, 1, 1)
 	}
 	root := procRoot(t, formatAll(sda(1)))
-	src := newSource(t, root, diskstats.Options{})
+	src := newSource(t, root, block.Options{})
 	require.Equal(t, []string{"block:sda"}, keys(read(t, src)))
 
 	// sdb appears, then wraps.
@@ -470,7 +470,7 @@ func TestSourceDevicesComeAndGo(t *testing.T) {
 func TestSourceMissingFile(t *testing.T) {
 	t.Parallel()
 	root := t.TempDir()
-	src := newSource(t, root, diskstats.Options{})
+	src := newSource(t, root, block.Options{})
 	_, err := src.Read(context.Background())
 	require.ErrorIs(t, err, source.ErrNoData)
 	require.ErrorContains(t, err, filepath.Join(root, "diskstats"))
@@ -485,7 +485,7 @@ func TestSourceMissingFile(t *testing.T) {
 	require.ErrorIs(t, err, source.ErrNoData)
 
 	// A missing procRoot is no data too.
-	gone := newSource(t, filepath.Join(root, "nope"), diskstats.Options{})
+	gone := newSource(t, filepath.Join(root, "nope"), block.Options{})
 	_, err = gone.Read(context.Background())
 	require.ErrorIs(t, err, source.ErrNoData)
 }
@@ -513,28 +513,28 @@ func TestSourceInPlaceRewrite(t *testing.T) {
 	// And a longer one again.
 	writeFile(t, root, string(readFixture(t, "v5_5_20fields")))
 	require.Len(t, read(t, src), 5)
-	require.Equal(t, 1, diskstats.Opens(src), "one open for all reads")
+	require.Equal(t, 1, block.Opens(src), "one open for all reads")
 }
 
 func TestSourceReplacedFile(t *testing.T) {
 	t.Parallel()
 	root := procRoot(t, string(readFixture(t, "wrap_1")))
-	src := newSource(t, root, diskstats.Options{})
+	src := newSource(t, root, block.Options{})
 	read(t, src)
 	replaceFile(t, root, string(readFixture(t, "wrap_2")))
 	got := read(t, src)
-	require.Equal(t, 2, diskstats.Opens(src), "a file replaced by rename is reopened at once")
+	require.Equal(t, 2, block.Opens(src), "a file replaced by rename is reopened at once")
 	// The device state survives the reopen: the wrap is still seen.
 	require.Equal(t, uint64(1<<32+704), byKey(t, got, "block:sda")["read_ms"])
 	read(t, src)
-	require.Equal(t, 2, diskstats.Opens(src))
+	require.Equal(t, 2, block.Opens(src))
 }
 
 func TestSourceReadErrorReopens(t *testing.T) {
 	t.Parallel()
 	root := procRoot(t, string(readFixture(t, "wrap_1")))
 	path := filepath.Join(root, "diskstats")
-	src := newSource(t, root, diskstats.Options{})
+	src := newSource(t, root, block.Options{})
 	read(t, src)
 
 	// A directory where the file was: it opens, but reading fails (EISDIR).
@@ -544,14 +544,14 @@ func TestSourceReadErrorReopens(t *testing.T) {
 	require.Error(t, err)
 	require.False(t, errors.Is(err, source.ErrNoData), "%v", err)
 	require.ErrorContains(t, err, path)
-	require.Equal(t, 2, diskstats.Opens(src))
+	require.Equal(t, 2, block.Opens(src))
 
 	// The file is back: it is opened again, and the state from before the
 	// failed read is intact, so the wrap is still seen.
 	require.NoError(t, os.Remove(path))
 	writeFile(t, root, string(readFixture(t, "wrap_2")))
 	got := read(t, src)
-	require.Equal(t, 3, diskstats.Opens(src))
+	require.Equal(t, 3, block.Opens(src))
 	require.Equal(t, uint64(1<<32+704), byKey(t, got, "block:sda")["read_ms"])
 }
 
@@ -602,7 +602,7 @@ func TestSourceMalformed(t *testing.T) {
 func TestSourceReadingsAreNotReused(t *testing.T) {
 	t.Parallel()
 	root := procRoot(t, string(readFixture(t, "wrap_1")))
-	src := newSource(t, root, diskstats.Options{})
+	src := newSource(t, root, block.Options{})
 	first := read(t, src)
 	keep := make(map[string]uint64)
 	maps.Copy(keep, first[0].Counters)
@@ -620,7 +620,7 @@ func TestSourceLargeFile(t *testing.T) {
 		b.WriteString(format(dev(65, uint32(i), fmt.Sprintf("sd%c%c", 'a'+i/26%26, 'a'+i%26), uint64(i), 1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15, 16)))
 	}
 	require.Greater(t, b.Len(), 32<<10)
-	src := newSource(t, procRoot(t, b.String()), diskstats.Options{})
+	src := newSource(t, procRoot(t, b.String()), block.Options{})
 	got := read(t, src)
 	require.Equal(t, n, len(got))
 	require.Zero(t, got[0].Malformed)
@@ -632,7 +632,7 @@ func TestSourceCanceled(t *testing.T) {
 	t.Parallel()
 	ctx, cancel := context.WithCancel(context.Background())
 	cancel()
-	src := newSource(t, filepath.Dir(fixture("mixed")), diskstats.Options{})
+	src := newSource(t, filepath.Dir(fixture("mixed")), block.Options{})
 	_, err := src.Read(ctx)
 	require.ErrorIs(t, err, context.Canceled)
 }
@@ -640,11 +640,11 @@ func TestSourceCanceled(t *testing.T) {
 func TestSourceDefaults(t *testing.T) {
 	t.Parallel()
 	// Nil now means time.Now; the empty root (meaning /proc) is not read.
-	src, err := diskstats.NewSource(filepath.Dir(fixture("mixed")), diskstats.Options{}, nil)
+	src, err := block.NewSource(filepath.Dir(fixture("mixed")), block.Options{}, nil)
 	require.NoError(t, err)
 	defer src.Close()
 	got := read(t, src)
 	require.False(t, got[0].Time.IsZero())
-	_, err = diskstats.NewSource("", diskstats.Options{}, nil)
+	_, err = block.NewSource("", block.Options{}, nil)
 	require.NoError(t, err)
 }

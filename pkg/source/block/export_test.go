@@ -1,4 +1,4 @@
-package diskstats
+package block
 
 // Opens returns how many times s has opened its file, so that tests can
 // tell a kept descriptor from a reopened one.

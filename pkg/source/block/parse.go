@@ -1,4 +1,4 @@
-package diskstats
+package block
 
 import (
 	"bufio"
@@ -125,7 +125,7 @@ func Parse(r io.Reader) (Stats, error) {
 		case io.EOF:
 			return st, nil
 		default:
-			return st, fmt.Errorf("diskstats: reading: %w", err)
+			return st, fmt.Errorf("block: reading diskstats: %w", err)
 		}
 	}
 }

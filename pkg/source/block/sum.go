@@ -1,4 +1,4 @@
-package diskstats
+package block
 
 import (
 	"sluice/pkg/metric"

@@ -1,4 +1,4 @@
-package diskstats
+package block
 
 import (
 	"context"
@@ -28,7 +28,7 @@ const DefaultInclude = `^(sd[a-z]+|hd[a-z]+|vd[a-z]+|xvd[a-z]+|nvme\d+n\d+|mmcbl
 // nothing with DefaultInclude; it matters when Include is widened.
 const DefaultExclude = `^(loop|ram|zram|dm-|md|sr|fd)\d+`
 
-// SectorSize is the size of the sectors diskstats counts in, whatever the
+// SectorSize is the size of the sectors /proc/diskstats counts in, whatever the
 // device's logical or physical sector size (Documentation/block/stat.rst:
 // "the standard UNIX 512-byte sectors").
 const SectorSize = 512
@@ -121,7 +121,7 @@ func compile(what, expr, def string) (*regexp.Regexp, error) {
 	}
 	re, err := regexp.Compile(expr)
 	if err != nil {
-		return nil, fmt.Errorf("diskstats: %s pattern: %w", what, err)
+		return nil, fmt.Errorf("block: %s pattern: %w", what, err)
 	}
 	return re, nil
 }
@@ -143,7 +143,7 @@ func (s *Source) Close() error { return s.file.Close() }
 // wrapped; the per-device state is then left as it was.
 func (s *Source) Read(ctx context.Context) ([]source.Reading, error) {
 	if err := ctx.Err(); err != nil {
-		return nil, fmt.Errorf("diskstats: reading %s: %w", s.path, err)
+		return nil, fmt.Errorf("block: reading %s: %w", s.path, err)
 	}
 	data, err := s.load()
 	if err != nil {
@@ -194,9 +194,9 @@ func (s *Source) Read(ctx context.Context) ([]source.Reading, error) {
 	}
 	if len(readings) == 0 {
 		if st.Malformed > 0 {
-			return nil, fmt.Errorf("diskstats: %s: no device included and %d malformed lines", s.path, st.Malformed)
+			return nil, fmt.Errorf("block: %s: no device included and %d malformed lines", s.path, st.Malformed)
 		}
-		return nil, fmt.Errorf("diskstats: no device in %s matches the include and exclude patterns: %w", s.path, source.ErrNoData)
+		return nil, fmt.Errorf("block: no device in %s matches the include and exclude patterns: %w", s.path, source.ErrNoData)
 	}
 	readings[0].Malformed = st.Malformed
 	return readings, nil
@@ -207,9 +207,9 @@ func (s *Source) load() ([]byte, error) {
 	data, err := s.file.Load()
 	if err != nil {
 		if errors.Is(err, fs.ErrNotExist) {
-			return nil, fmt.Errorf("diskstats: %s: %w", s.path, source.ErrNoData)
+			return nil, fmt.Errorf("block: %s: %w", s.path, source.ErrNoData)
 		}
-		return nil, fmt.Errorf("diskstats: %w", err)
+		return nil, fmt.Errorf("block: %w", err)
 	}
 	return data, nil
 }

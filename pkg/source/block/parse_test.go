@@ -1,4 +1,4 @@
-package diskstats_test
+package block_test
 
 import (
 	"bytes"
@@ -12,22 +12,22 @@ import (
 	"github.com/prometheus/procfs/blockdevice"
 	"github.com/stretchr/testify/require"
 
-	"sluice/pkg/source/diskstats"
+	"sluice/pkg/source/block"
 )
 
 func TestParseFixtures(t *testing.T) {
 	t.Parallel()
 	tests := []struct {
 		name    string
-		input   string // fixture case under testdata/diskstats
-		want    diskstats.Stats
+		input   string // fixture case under testdata/block
+		want    block.Stats
 		wantErr bool
 	}{
 		{
 			// diskstats_show in block/genhd.c at v4.17: 11 statistics.
 			name:  "14 fields before 4.18",
 			input: "v4_17_14fields",
-			want: diskstats.Stats{Devices: []diskstats.Device{
+			want: block.Stats{Devices: []block.Device{
 				dev(8, 0, "sda", 184523, 3021, 9620418, 98231, 420311, 110250, 30211746, 1520443, 0, 401220, 1618690),
 				dev(8, 1, "sda1", 410, 0, 12630, 201, 2, 0, 2, 0, 0, 160, 201),
 				dev(8, 2, "sda2", 184020, 3021, 9604700, 97990, 420309, 110250, 30211744, 1520443, 0, 401010, 1618430),
@@ -40,7 +40,7 @@ func TestParseFixtures(t *testing.T) {
 			// 4.18 adds discards (iostats.rst "4.18+ diskstats").
 			name:  "18 fields from 4.18",
 			input: "v4_18_18fields",
-			want: diskstats.Stats{Devices: []diskstats.Device{
+			want: block.Stats{Devices: []block.Device{
 				dev(8, 0, "sda", 220301, 4010, 11230554, 120334, 500220, 140330, 41022310, 1822001, 0, 480110, 1942335, 0, 0, 0, 0),
 				dev(8, 1, "sda1", 220110, 4010, 11220034, 120300, 500210, 140330, 41022300, 1822001, 0, 480010, 1942301, 0, 0, 0, 0),
 				dev(259, 0, "nvme0n1", 902211, 1022, 80231110, 210334, 1200334, 402211, 150334022, 980221, 1, 620330, 1190555, 3022, 0, 402220304, 2201),
@@ -52,7 +52,7 @@ func TestParseFixtures(t *testing.T) {
 			// the order of iostats.rst "Field 1" to "Field 17".
 			name:  "20 fields from 5.5",
 			input: "v5_5_20fields",
-			want: diskstats.Stats{Devices: []diskstats.Device{
+			want: block.Stats{Devices: []block.Device{
 				{
 					Major: 259, Minor: 0, Name: "nvme0n1", Fields: 20,
 					ReadsCompleted: 1203344, ReadsMerged: 20112, SectorsRead: 98231004, ReadMs: 402233,
@@ -68,11 +68,11 @@ func TestParseFixtures(t *testing.T) {
 			}},
 		},
 		{
-			// See testdata/diskstats/malformed/README for each bad line.
+			// See testdata/block/malformed/README for each bad line.
 			name:  "malformed lines skipped and counted",
 			input: "malformed",
-			want: diskstats.Stats{
-				Devices: []diskstats.Device{
+			want: block.Stats{
+				Devices: []block.Device{
 					dev(8, 0, "sda", 4022, 110, 320110, 2201, 1022, 40, 80220, 1203, 0, 3300, 3404, 0, 0, 0, 0, 120, 0),
 					dev(8, 160, "sdk", 18446744073709551615, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0),
 					dev(8, 176, "sdl", 7, 0, 56, 3, 2, 0, 16, 1, 0, 4, 4, 0, 0, 0, 0),
@@ -85,7 +85,7 @@ func TestParseFixtures(t *testing.T) {
 			// Step 1 of the wrap sequence: ms fields just under 2^32.
 			name:  "wrap step 1",
 			input: "wrap_1",
-			want: diskstats.Stats{Devices: []diskstats.Device{
+			want: block.Stats{Devices: []block.Device{
 				dev(8, 0, "sda", 1000000, 5000, 80000000, 4294967000, 2000000, 90000, 160000000, 4294960000, 3, 4294967295, 4294961704, 0, 0, 0, 0, 500, 2000),
 				dev(8, 16, "sdb", 30000, 100, 2400000, 4294967000, 1000, 10, 80000, 0, 0, 1000000, 4294967000, 0, 0, 0, 0, 0, 0),
 				dev(259, 0, "nvme0n1", 5000000, 30000, 400000000, 123456, 7000000, 80000, 900000000, 2000000000, 0, 3000000, 2000123154, 800, 0, 4000000, 4294967290, 90000, 4294967000),
@@ -95,7 +95,7 @@ func TestParseFixtures(t *testing.T) {
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
 			t.Parallel()
-			got, err := diskstats.Parse(bytes.NewReader(readFixture(t, tt.input)))
+			got, err := block.Parse(bytes.NewReader(readFixture(t, tt.input)))
 			if tt.wantErr {
 				require.Error(t, err)
 				return
@@ -108,7 +108,7 @@ func TestParseFixtures(t *testing.T) {
 
 func TestParseMixed(t *testing.T) {
 	t.Parallel()
-	got, err := diskstats.Parse(bytes.NewReader(readFixture(t, "mixed")))
+	got, err := block.Parse(bytes.NewReader(readFixture(t, "mixed")))
 	require.NoError(t, err)
 	require.Zero(t, got.Malformed)
 	var names []string
@@ -138,12 +138,12 @@ func TestParseAgreesWithProcfs(t *testing.T) {
 			ref, err := fs.ProcDiskstats()
 			require.NoError(t, err)
 
-			got, err := diskstats.Parse(bytes.NewReader(readFixture(t, name)))
+			got, err := block.Parse(bytes.NewReader(readFixture(t, name)))
 			require.NoError(t, err)
 			require.Zero(t, got.Malformed)
 			require.Len(t, got.Devices, len(ref))
 			for i, r := range ref {
-				want := diskstats.Device{
+				want := block.Device{
 					Major: r.MajorNumber, Minor: r.MinorNumber, Name: r.DeviceName, Fields: r.IoStatsCount,
 					ReadsCompleted: r.ReadIOs, ReadsMerged: r.ReadMerges, SectorsRead: r.ReadSectors, ReadMs: r.ReadTicks,
 					WritesCompleted: r.WriteIOs, WritesMerged: r.WriteMerges, SectorsWritten: r.WriteSectors, WriteMs: r.WriteTicks,
@@ -169,27 +169,27 @@ func TestParseLines(t *testing.T) {
 	tests := []struct {
 		name    string
 		input   string
-		want    diskstats.Stats
+		want    block.Stats
 		wantErr bool
 	}{
-		{name: "empty", input: "", want: diskstats.Stats{Devices: []diskstats.Device{}}},
-		{name: "blank lines only", input: "\n  \n\t\r\n", want: diskstats.Stats{Devices: []diskstats.Device{}}},
-		{name: "one line", input: good, want: diskstats.Stats{Devices: []diskstats.Device{sda}}},
-		{name: "no trailing newline", input: strings.TrimSuffix(good, "\n"), want: diskstats.Stats{Devices: []diskstats.Device{sda}}},
-		{name: "line of 1024 bytes fits", input: pad(1024), want: diskstats.Stats{Devices: []diskstats.Device{sda}}},
-		{name: "line of 1025 bytes is malformed", input: pad(1025) + good, want: diskstats.Stats{Devices: []diskstats.Device{sda}, Malformed: 1}},
-		{name: "last line of 1024 bytes without newline", input: good + strings.TrimSuffix(pad(1025), "\n"), want: diskstats.Stats{Devices: []diskstats.Device{sda}, Malformed: 1}},
-		{name: "very long line counted once", input: strings.Repeat("x", 5000) + "\n" + good, want: diskstats.Stats{Devices: []diskstats.Device{sda}, Malformed: 1}},
-		{name: "minor over 2^32-1", input: "8 4294967296 sda 1 2 3 4 5 6 7 8 9 10 11\n", want: diskstats.Stats{Devices: []diskstats.Device{}, Malformed: 1}},
-		{name: "max major and minor", input: "4294967295 4294967295 x 0 0 0 0 0 0 0 0 0 0 0\n", want: diskstats.Stats{Devices: []diskstats.Device{dev(4294967295, 4294967295, "x", 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0)}}},
-		{name: "leading zeros", input: "008 000 sda 01 2 3 4 5 6 7 8 9 10 00000000000000000000011\n", want: diskstats.Stats{Devices: []diskstats.Device{sda}}},
-		{name: "twenty digits over 2^64-1", input: "8 0 sda 99999999999999999999 2 3 4 5 6 7 8 9 10 11\n", want: diskstats.Stats{Devices: []diskstats.Device{}, Malformed: 1}},
-		{name: "duplicates kept", input: good + good, want: diskstats.Stats{Devices: []diskstats.Device{sda, sda}}},
+		{name: "empty", input: "", want: block.Stats{Devices: []block.Device{}}},
+		{name: "blank lines only", input: "\n  \n\t\r\n", want: block.Stats{Devices: []block.Device{}}},
+		{name: "one line", input: good, want: block.Stats{Devices: []block.Device{sda}}},
+		{name: "no trailing newline", input: strings.TrimSuffix(good, "\n"), want: block.Stats{Devices: []block.Device{sda}}},
+		{name: "line of 1024 bytes fits", input: pad(1024), want: block.Stats{Devices: []block.Device{sda}}},
+		{name: "line of 1025 bytes is malformed", input: pad(1025) + good, want: block.Stats{Devices: []block.Device{sda}, Malformed: 1}},
+		{name: "last line of 1024 bytes without newline", input: good + strings.TrimSuffix(pad(1025), "\n"), want: block.Stats{Devices: []block.Device{sda}, Malformed: 1}},
+		{name: "very long line counted once", input: strings.Repeat("x", 5000) + "\n" + good, want: block.Stats{Devices: []block.Device{sda}, Malformed: 1}},
+		{name: "minor over 2^32-1", input: "8 4294967296 sda 1 2 3 4 5 6 7 8 9 10 11\n", want: block.Stats{Devices: []block.Device{}, Malformed: 1}},
+		{name: "max major and minor", input: "4294967295 4294967295 x 0 0 0 0 0 0 0 0 0 0 0\n", want: block.Stats{Devices: []block.Device{dev(4294967295, 4294967295, "x", 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0)}}},
+		{name: "leading zeros", input: "008 000 sda 01 2 3 4 5 6 7 8 9 10 00000000000000000000011\n", want: block.Stats{Devices: []block.Device{sda}}},
+		{name: "twenty digits over 2^64-1", input: "8 0 sda 99999999999999999999 2 3 4 5 6 7 8 9 10 11\n", want: block.Stats{Devices: []block.Device{}, Malformed: 1}},
+		{name: "duplicates kept", input: good + good, want: block.Stats{Devices: []block.Device{sda, sda}}},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
 			t.Parallel()
-			got, err := diskstats.Parse(strings.NewReader(tt.input))
+			got, err := block.Parse(strings.NewReader(tt.input))
 			if tt.wantErr {
 				require.Error(t, err)
 				return
@@ -197,9 +197,9 @@ func TestParseLines(t *testing.T) {
 			require.NoError(t, err)
 			require.Equal(t, tt.want, got)
 			// The Source's in-memory parser gives the same result.
-			buf := diskstats.ParseBuf([]byte(tt.input))
+			buf := block.ParseBuf([]byte(tt.input))
 			require.Equal(t, tt.want.Malformed, buf.Malformed)
-			require.Equal(t, tt.want.Devices, append([]diskstats.Device{}, buf.Devices...))
+			require.Equal(t, tt.want.Devices, append([]block.Device{}, buf.Devices...))
 		})
 	}
 }
@@ -213,18 +213,18 @@ func TestParseReadError(t *testing.T) {
 		strings.NewReader("8 0 sda 1 2 3 4 5 6 7 8 9 10 11\n8 16 sdb 1 2 3 4 5 6 7 8 9 10 1"),
 		iotest.ErrReader(boom),
 	)
-	got, err := diskstats.Parse(iotest.OneByteReader(r))
+	got, err := block.Parse(iotest.OneByteReader(r))
 	require.ErrorIs(t, err, boom)
 	require.ErrorContains(t, err, "diskstats")
-	require.Equal(t, diskstats.Stats{Devices: []diskstats.Device{dev(8, 0, "sda", 1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11)}}, got)
+	require.Equal(t, block.Stats{Devices: []block.Device{dev(8, 0, "sda", 1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11)}}, got)
 }
 
 func TestParseFormatRoundTrip(t *testing.T) {
 	t.Parallel()
 	for _, name := range wellFormed {
-		st, err := diskstats.Parse(bytes.NewReader(readFixture(t, name)))
+		st, err := block.Parse(bytes.NewReader(readFixture(t, name)))
 		require.NoError(t, err)
-		back, err := diskstats.Parse(strings.NewReader(formatAll(st.Devices...)))
+		back, err := block.Parse(strings.NewReader(formatAll(st.Devices...)))
 		require.NoError(t, err)
 		require.Equal(t, st, back, name)
 	}

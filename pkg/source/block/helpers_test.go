@@ -1,4 +1,4 @@
-package diskstats_test
+package block_test
 
 import (
 	"fmt"
@@ -10,11 +10,11 @@ import (
 
 	"github.com/stretchr/testify/require"
 
-	"sluice/pkg/source/diskstats"
+	"sluice/pkg/source/block"
 )
 
 // testdata is the repository's fixture directory for this source.
-var testdata = filepath.Join("..", "..", "..", "testdata", "diskstats")
+var testdata = filepath.Join("..", "..", "..", "testdata", "block")
 
 // wellFormed lists the fixture cases without malformed lines, which the
 // reference parser must read exactly as Parse does.
@@ -43,10 +43,10 @@ func readFixture(t testing.TB, name string) []byte {
 
 // dev builds a Device from its statistics in file order (fields 1 to 11,
 // 15 or 17), the way a line lists them.
-func dev(major, minor uint32, name string, v ...uint64) diskstats.Device {
+func dev(major, minor uint32, name string, v ...uint64) block.Device {
 	var a [17]uint64
 	copy(a[:], v)
-	return diskstats.Device{
+	return block.Device{
 		Major: major, Minor: minor, Name: name, Fields: 3 + len(v),
 		ReadsCompleted: a[0], ReadsMerged: a[1], SectorsRead: a[2], ReadMs: a[3],
 		WritesCompleted: a[4], WritesMerged: a[5], SectorsWritten: a[6], WriteMs: a[7],
@@ -58,7 +58,7 @@ func dev(major, minor uint32, name string, v ...uint64) diskstats.Device {
 
 // format prints d as diskstats_show does (block/genhd.c), with as many
 // statistics as d.Fields says.
-func format(d diskstats.Device) string {
+func format(d block.Device) string {
 	v := []uint64{
 		d.ReadsCompleted, d.ReadsMerged, d.SectorsRead, d.ReadMs,
 		d.WritesCompleted, d.WritesMerged, d.SectorsWritten, d.WriteMs,
@@ -76,7 +76,7 @@ func format(d diskstats.Device) string {
 }
 
 // formatAll prints devices as one file.
-func formatAll(devs ...diskstats.Device) string {
+func formatAll(devs ...block.Device) string {
 	var b strings.Builder
 	for _, d := range devs {
 		b.WriteString(format(d))
@@ -110,7 +110,7 @@ func replaceFile(t testing.TB, root, data string) {
 
 // bench8 is a 5.5+ file of eight whole disks, all included by default.
 func bench8() string {
-	var devs []diskstats.Device
+	var devs []block.Device
 	for i := range 4 {
 		n := uint64(i + 1)
 		devs = append(devs,

@@ -1,4 +1,4 @@
-package diskstats_test
+package block_test
 
 import (
 	"bytes"
@@ -9,10 +9,10 @@ import (
 
 	"github.com/stretchr/testify/require"
 
-	"sluice/pkg/source/diskstats"
+	"sluice/pkg/source/block"
 )
 
-// fuzzSeeds returns every diskstats file in testdata/diskstats.
+// fuzzSeeds returns every diskstats file in testdata/block.
 func fuzzSeeds(f *testing.F) [][]byte {
 	f.Helper()
 	var seeds [][]byte
@@ -35,7 +35,7 @@ func FuzzParse(f *testing.F) {
 	f.Add([]byte("8 0 sda 1 2 3 4 5 6 7 8 9 10 11\r\n\n8 0 sda 18446744073709551615 0 0 0 0 0 0 0 0 0 0"))
 	f.Add([]byte("8 0 sda 1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16 17 18\n8 4294967296 x 0 0 0 0 0 0 0 0 0 0 0\n"))
 	f.Fuzz(func(t *testing.T, data []byte) {
-		st, err := diskstats.Parse(bytes.NewReader(data))
+		st, err := block.Parse(bytes.NewReader(data))
 		require.NoError(t, err, "a bytes.Reader never fails")
 
 		lines := bytes.Count(data, []byte("\n"))
@@ -56,12 +56,12 @@ func FuzzParse(f *testing.F) {
 		}
 
 		// The Source's in-memory parser agrees with Parse.
-		buf := diskstats.ParseBuf(data)
+		buf := block.ParseBuf(data)
 		require.Equal(t, st.Malformed, buf.Malformed)
-		require.Equal(t, st.Devices, append([]diskstats.Device{}, buf.Devices...))
+		require.Equal(t, st.Devices, append([]block.Device{}, buf.Devices...))
 
 		// What was parsed prints back, as the kernel would, to the same.
-		back, err := diskstats.Parse(bytes.NewReader([]byte(formatAll(st.Devices...))))
+		back, err := block.Parse(bytes.NewReader([]byte(formatAll(st.Devices...))))
 		require.NoError(t, err)
 		require.Zero(t, back.Malformed)
 		require.Equal(t, st.Devices, back.Devices)
@@ -82,7 +82,7 @@ func FuzzUnwrap(f *testing.F) {
 		read, weighted := startRead%(1<<48), startWeighted%(1<<48)
 		baseRead, baseWeighted := read&^(mod-1), weighted&^(mod-1)
 		reads := uint64(1)
-		var u diskstats.Unwrapper
+		var u block.Unwrapper
 		for i := 0; ; i++ {
 			d := dev(8, 0, "sda", reads, 0, 8*reads, read%mod, 0, 0, 0, 0, 0, reads, weighted%mod)
 			got := u.Update(d)

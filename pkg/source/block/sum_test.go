@@ -1,4 +1,4 @@
-package diskstats_test
+package block_test
 
 import (
 	"os"
@@ -9,7 +9,7 @@ import (
 
 	"sluice/pkg/mapping"
 	"sluice/pkg/metric"
-	"sluice/pkg/source/diskstats"
+	"sluice/pkg/source/block"
 	"sluice/pkg/source/internal/sourcetest"
 )
 
@@ -33,10 +33,10 @@ func TestSumsEqualMappedCounters(t *testing.T) {
 		}
 		for name, table := range map[string]mapping.Table{"default": mapping.Default(), "every": every} {
 			t.Run(c.Name()+"/"+name, func(t *testing.T) {
-				opts := diskstats.Options{Include: ".*"}
-				plain, err := diskstats.NewSource(dir, opts, nil)
+				opts := block.Options{Include: ".*"}
+				plain, err := block.NewSource(dir, opts, nil)
 				require.NoError(t, err)
-				summing, err := diskstats.NewSource(dir, opts, nil)
+				summing, err := block.NewSource(dir, opts, nil)
 				require.NoError(t, err)
 				sourcetest.SumsMatch(t, table, plain, summing)
 			})
