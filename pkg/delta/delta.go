@@ -5,8 +5,8 @@
 //
 // The agent first maps each instance's raw counters onto the project's
 // metrics (summing the counters each metric takes), then hands the sums to
-// a [Tracker], which remembers the previous sums of every instance (by
-// reading key). [Tracker.Update] returns, per instance, the increase of
+// a [Differ], which remembers the previous sums of every instance (by
+// reading key). [Differ.Update] returns, per instance, the increase of
 // each metric since the previous reading. A changed epoch (for Lustre, a
 // new stats start_time) or any metric going down is a reset of the whole
 // instance: the delta is then the new value, which is what accumulated
@@ -52,45 +52,46 @@ type base struct {
 	gen    uint64 // the Update that last saw this instance
 }
 
-// Tracker keeps the previous sums per instance. It is not safe for
-// concurrent use; the agent loop owns it.
-type Tracker struct {
+// Differ keeps the previous sums per instance, to take each new reading's
+// difference from them. It is not safe for concurrent use; the agent loop
+// owns it.
+type Differ struct {
 	prev map[string]*base
 	gen  uint64
 }
 
-// NewTracker returns an empty tracker.
-func NewTracker() *Tracker {
-	return &Tracker{prev: make(map[string]*base)}
+// NewDiffer returns a Differ that has seen no instance yet.
+func NewDiffer() *Differ {
+	return &Differ{prev: make(map[string]*base)}
 }
 
 // Update records the instances' sums and returns one Delta per instance
 // that had a previous reading. Instances absent from insts are forgotten,
 // so an instance that comes back later starts afresh (a remount).
-func (t *Tracker) Update(insts []Instance) []Delta {
-	t.gen++
+func (d *Differ) Update(insts []Instance) []Delta {
+	d.gen++
 	out := make([]Delta, 0, len(insts))
 	for i := range insts {
 		in := &insts[i]
-		b, ok := t.prev[in.Key]
+		b, ok := d.prev[in.Key]
 		if !ok {
 			b = &base{}
-			t.prev[in.Key] = b
+			d.prev[in.Key] = b
 		} else {
 			out = append(out, b.diff(in))
 		}
-		b.gen, b.epoch, b.values = t.gen, in.Epoch, in.Values
+		b.gen, b.epoch, b.values = d.gen, in.Epoch, in.Values
 	}
-	for k, b := range t.prev {
-		if b.gen != t.gen {
-			delete(t.prev, k)
+	for k, b := range d.prev {
+		if b.gen != d.gen {
+			delete(d.prev, k)
 		}
 	}
 	return out
 }
 
 // Known reports how many instances have a base reading.
-func (t *Tracker) Known() int { return len(t.prev) }
+func (d *Differ) Known() int { return len(d.prev) }
 
 func (b *base) diff(in *Instance) Delta {
 	d := Delta{Key: in.Key, Values: in.Values, Reset: b.epoch != in.Epoch}

@@ -94,22 +94,22 @@ func TestUpdate(t *testing.T) {
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
-			tr := delta.NewTracker()
+			differ := delta.NewDiffer()
 			var got []delta.Delta
 			for _, step := range tt.steps {
-				got = tr.Update(step)
+				got = differ.Update(step)
 			}
 			assert.Equal(t, tt.want, got)
-			assert.Equal(t, tt.wantKnown, tr.Known())
+			assert.Equal(t, tt.wantKnown, differ.Known())
 		})
 	}
 }
 
 func TestRemountedInstanceComingBackStartsAfresh(t *testing.T) {
-	tr := delta.NewTracker()
-	tr.Update([]delta.Instance{inst("lustre:a", "", metric.Opens, 5)})
-	tr.Update(nil) // unmounted
-	got := tr.Update([]delta.Instance{inst("lustre:a", "", metric.Opens, 900)})
+	differ := delta.NewDiffer()
+	differ.Update([]delta.Instance{inst("lustre:a", "", metric.Opens, 5)})
+	differ.Update(nil) // unmounted
+	got := differ.Update([]delta.Instance{inst("lustre:a", "", metric.Opens, 900)})
 	assert.Empty(t, got, "no spike from a base that was forgotten")
 }
 
@@ -117,13 +117,13 @@ func FuzzNeverASpike(f *testing.F) {
 	f.Add(uint64(10), uint64(3), uint64(7), "e1", "e1")
 	f.Add(uint64(0), uint64(1<<63), uint64(1), "", "x")
 	f.Fuzz(func(t *testing.T, a, b, c uint64, e1, e2 string) {
-		tr := delta.NewTracker()
+		differ := delta.NewDiffer()
 		first := delta.Instance{Key: "k", Epoch: e1}
 		first.Values[metric.Opens], first.Values[metric.Creates] = a, b
 		second := delta.Instance{Key: "k", Epoch: e2}
 		second.Values[metric.Opens], second.Values[metric.Creates] = b, c
-		tr.Update([]delta.Instance{first})
-		for _, d := range tr.Update([]delta.Instance{second}) {
+		differ.Update([]delta.Instance{first})
+		for _, d := range differ.Update([]delta.Instance{second}) {
 			for i, v := range d.Values {
 				if v > second.Values[i] {
 					t.Fatalf("delta %s=%d exceeds the current value %d: a spike", metric.ID(i), v, second.Values[i])

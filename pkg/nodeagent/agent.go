@@ -94,7 +94,7 @@ type Agent struct {
 	subj   bus.Subjects
 	log    *slog.Logger
 	jobs   *jobstate.Dir
-	deltas map[string]*delta.Tracker // per source kind
+	deltas map[string]*delta.Differ // per source kind
 	costs  map[string]*cost
 	seq    uint64    // the last sequence number a sample took
 	saved  uint64    // the highest one the sequence file allows (see saveSeq)
@@ -168,11 +168,11 @@ func New(cfg Config) (*Agent, error) {
 	}
 	a := &Agent{
 		cfg: cfg, subj: subj, log: cfg.Logger.With("node", cfg.Node), jobs: jobs,
-		deltas: map[string]*delta.Tracker{}, costs: map[string]*cost{},
+		deltas: map[string]*delta.Differ{}, costs: map[string]*cost{},
 		queue: newQueue(cfg.QueueLimit), disagreed: map[string]bool{},
 	}
 	for _, s := range cfg.Sources {
-		a.deltas[s.Name()] = delta.NewTracker()
+		a.deltas[s.Name()] = delta.NewDiffer()
 		a.costs[s.Name()] = &cost{}
 		if sm, ok := s.(source.Summer); ok {
 			sm.SumWith(cfg.Mapping[s.Name()])

@@ -275,9 +275,9 @@ func TestSourceWrap(t *testing.T) {
 	}
 	// Through the agent's own path (default mapping, then deltas), a wrap
 	// is not a reset.
-	tracker := delta.NewTracker()
-	tracker.Update(mapped(first))
-	for _, d := range tracker.Update(mapped(second)) {
+	differ := delta.NewDiffer()
+	differ.Update(mapped(first))
+	for _, d := range differ.Update(mapped(second)) {
 		require.False(t, d.Reset, "a wrap is not a reset: %s", d.Key)
 	}
 
@@ -328,8 +328,8 @@ func TestSourceReset(t *testing.T) {
 	t.Parallel()
 	root := procRoot(t, string(readFixture(t, "reset_1")))
 	src := newSource(t, root, block.Options{})
-	tracker := delta.NewTracker()
-	tracker.Update(mapped(read(t, src)))
+	differ := delta.NewDiffer()
+	differ.Update(mapped(read(t, src)))
 
 	writeFile(t, root, string(readFixture(t, "reset_2")))
 	got := read(t, src)
@@ -347,7 +347,7 @@ func TestSourceReset(t *testing.T) {
 		require.Equal(t, d.ReadsCompleted, c["reads"])
 	}
 	require.Equal(t, uint64(12), byKey(t, got, "block:sda")["read_ms"])
-	deltas := tracker.Update(mapped(got))
+	deltas := differ.Update(mapped(got))
 	require.Len(t, deltas, 2)
 	for _, d := range deltas {
 		require.True(t, d.Reset, d.Key)

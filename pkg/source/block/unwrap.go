@@ -59,7 +59,7 @@ func isWrap(last, cur uint64) bool {
 // The rule: counts (u64 on 64-bit kernels) never wrap, so any count lower
 // than last time means the device was reset (removed and added again under
 // the same name): every field restarts from its raw value, and so falls,
-// which the agent's delta tracker takes as a reset. Otherwise a millisecond
+// which the agent's delta.Differ takes as a reset. Otherwise a millisecond
 // field that fell has wrapped when the fall is consistent with a 32-bit
 // wrap (isWrap), and 2^32 is added to it from now on; one that fell in any
 // other way is held at its last value (and grows from there), so an odd

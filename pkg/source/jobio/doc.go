@@ -44,8 +44,8 @@
 //	iostat.dios                  dios
 //
 // The values are totals the source maintains itself, starting at zero when
-// the job is first seen, and they never go down, so the agent's delta
-// tracker never sees a reset. A job's io.stat already includes its child
+// the job is first seen, and they never go down, so the agent's
+// delta.Differ never sees a reset. A job's io.stat already includes its child
 // cgroups (that roll-up is from memory in FORMATS.md, not checked in the
 // kernel source here), so only the job directory's own file is read.
 //

@@ -94,7 +94,7 @@ func TestRuleNewJobSetsBase(t *testing.T) {
 	read(t, src)
 
 	// Job 8 appears after read 1 with a process started since then: the
-	// first reading of a job is a base (the agent's delta tracker takes it
+	// first reading of a job is a base (the agent's delta.Differ takes it
 	// as one anyway), so its 400 is not counted.
 	job8 := "system.slice/slurmstepd.scope/job_8/step_0"
 	tr.mkdir(job8)
