@@ -5,18 +5,15 @@ import (
 	"errors"
 	"fmt"
 	"os"
-	"path/filepath"
 	"strings"
 	"testing"
 
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/jobstate"
 )
-
-// testdata is the repository's fixture directory for this package.
-var testdata = filepath.Join("..", "..", "testdata", "jobstate")
 
 func TestExpandHosts(t *testing.T) {
 	// The compact syntax is common practice (batch scheduler host lists),
@@ -131,7 +128,7 @@ func TestExpandHostsWhitespaceBeforeBracket(t *testing.T) {
 // hostListSeeds reads testdata/jobstate/hostlists.txt.
 func hostListSeeds(f *testing.F) []string {
 	f.Helper()
-	file, err := os.Open(filepath.Join(testdata, "hostlists.txt"))
+	file, err := os.Open(fixture.Path(f, "jobstate", "hostlists.txt"))
 	require.NoError(f, err)
 	defer file.Close()
 	var seeds []string

@@ -13,6 +13,7 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/jobstate"
 )
 
@@ -127,8 +128,7 @@ func sampleRecord(id string) jobstate.Record {
 func TestGetReadsTheFileFormat(t *testing.T) {
 	// testdata/jobstate/records/4242.1.json is a record as Put writes it.
 	d := openDir(t)
-	data, err := os.ReadFile(filepath.Join(testdata, "records", "4242.1.json"))
-	require.NoError(t, err)
+	data := fixture.Read(t, "jobstate", "records", "4242.1.json")
 	require.NoError(t, os.WriteFile(filepath.Join(d.Path(), "4242.1.json"), data, 0o644))
 
 	got, err := d.Get("4242.1")

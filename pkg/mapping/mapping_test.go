@@ -3,27 +3,17 @@ package mapping_test
 import (
 	"bytes"
 	"os"
-	"path/filepath"
 	"strings"
 	"testing"
 
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/mapping"
 	"sluice/pkg/metric"
 	"sluice/pkg/source/lustre"
 )
-
-// testdata is the repository's fixture directory for this package.
-var testdata = filepath.Join("..", "..", "testdata", "mapping")
-
-func readFixture(t testing.TB, name string) []byte {
-	t.Helper()
-	b, err := os.ReadFile(filepath.Join(testdata, name))
-	require.NoError(t, err)
-	return b
-}
 
 // defaultTable is the documented default table, written out literally in
 // Entries order (source, metric, counter). "<name>.sum" is the sum of a
@@ -166,7 +156,7 @@ func TestDefaultCountersExistInLustre(t *testing.T) {
 func TestDefaultMatchesLustreParser(t *testing.T) {
 	// The keys must be the ones the Lustre parser's Raw() emits. The want
 	// values are summed by hand from testdata/lustre/v2_16_header/stats.
-	f, err := os.Open(filepath.Join("..", "..", "testdata", "lustre", "v2_16_header", "stats"))
+	f, err := os.Open(fixture.Path(t, "lustre", "v2_16_header", "stats"))
 	require.NoError(t, err)
 	defer f.Close()
 	st, err := lustre.Parse(f)
@@ -226,7 +216,7 @@ func TestLoad(t *testing.T) {
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
-			got, err := mapping.Load(bytes.NewReader(readFixture(t, tt.input)), mapping.Default())
+			got, err := mapping.Load(bytes.NewReader(fixture.Read(t, "mapping", tt.input)), mapping.Default())
 			if tt.wantErr != "" {
 				require.Error(t, err)
 				assert.Contains(t, err.Error(), tt.wantErr)
@@ -272,14 +262,14 @@ func TestLoadInline(t *testing.T) {
 }
 
 func TestLoadUnknownSourceKind(t *testing.T) {
-	_, err := mapping.Load(bytes.NewReader(readFixture(t, "typo_source.yaml")), mapping.Default())
+	_, err := mapping.Load(bytes.NewReader(fixture.Read(t, "mapping", "typo_source.yaml")), mapping.Default())
 	require.Error(t, err, "an override for a source kind the base does not know should be rejected")
 	assert.Contains(t, err.Error(), "lustr")
 }
 
 func TestLoadLeavesBaseAlone(t *testing.T) {
 	base := mapping.Default()
-	got, err := mapping.Load(bytes.NewReader(readFixture(t, "override.yaml")), base)
+	got, err := mapping.Load(bytes.NewReader(fixture.Read(t, "mapping", "override.yaml")), base)
 	require.NoError(t, err)
 	assert.Equal(t, defaultTable, base.Entries(), "Load must not modify its base")
 	got["lustre"]["open"] = metric.Syncs
@@ -346,10 +336,10 @@ func TestEntriesOrder(t *testing.T) {
 }
 
 func FuzzLoad(f *testing.F) {
-	entries, err := os.ReadDir(testdata)
+	entries, err := os.ReadDir(fixture.Path(f, "mapping"))
 	require.NoError(f, err)
 	for _, e := range entries {
-		f.Add(readFixture(f, e.Name()))
+		f.Add(fixture.Read(f, "mapping", e.Name()))
 	}
 	f.Add([]byte("lustre: {open: ~, close: 5, seek: [1]}\n"))
 	f.Add([]byte("lustre: &a {open: opens}\nnfs: *a\n"))

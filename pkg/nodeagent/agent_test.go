@@ -16,6 +16,7 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/internal/natstest"
 	"sluice/pkg/jobstate"
 	"sluice/pkg/metric"
@@ -225,8 +226,7 @@ func TestRunPublishesSamplesAndJobEvents(t *testing.T) {
 // 34 counters (the 2.16 fixture): list, read, parse, delta, map, job list.
 func BenchmarkCollectOneMount(b *testing.B) {
 	root := b.TempDir()
-	data, err := os.ReadFile("../../testdata/lustre/v2_16_header/stats")
-	require.NoError(b, err)
+	data := fixture.Read(b, "lustre", "v2_16_header", "stats")
 	require.NoError(b, os.MkdirAll(filepath.Join(root, "scratch-ffff9a0c12345000"), 0o755))
 	require.NoError(b, os.WriteFile(filepath.Join(root, "scratch-ffff9a0c12345000", "stats"), data, 0o644))
 	state := b.TempDir()
@@ -308,7 +308,7 @@ func TestNextTick(t *testing.T) {
 // (testdata/jobio/shared_node).
 func TestSharedNodeSplitsPerJob(t *testing.T) {
 	tree := t.TempDir()
-	require.NoError(t, os.CopyFS(tree, os.DirFS("../../testdata/jobio/shared_node")))
+	require.NoError(t, os.CopyFS(tree, os.DirFS(fixture.Path(t, "jobio", "shared_node"))))
 	lroot, state := t.TempDir(), t.TempDir()
 	clk := &clock{t: t0}
 	writeStats(t, lroot, "scratch-ffff8f0000001000", map[string][2]uint64{"open": {100, 0}, "read_bytes": {10, 10 << 20}})

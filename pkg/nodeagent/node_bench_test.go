@@ -15,6 +15,7 @@ import (
 
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/jobstate"
 	"sluice/pkg/nodeagent"
 	"sluice/pkg/source"
@@ -42,7 +43,7 @@ type node struct {
 func buildNode(b *testing.B) node {
 	n := node{lustre: b.TempDir(), proc: b.TempDir(), cgroup: b.TempDir(), state: b.TempDir()}
 	for dir, from := range map[string]string{n.lustre: "lustre", n.proc: "proc", n.cgroup: "cgroup"} {
-		require.NoError(b, os.CopyFS(dir, os.DirFS(filepath.Join("..", "..", "testdata", "node", from))))
+		require.NoError(b, os.CopyFS(dir, os.DirFS(fixture.Path(b, "node", from))))
 		require.NoError(b, filepath.WalkDir(dir, func(path string, d fs.DirEntry, err error) error {
 			if err == nil && d.Type().IsRegular() && d.Name() != "stat" { // stat: read once per process, not per sample
 				n.files = append(n.files, path)

@@ -4,11 +4,13 @@ import (
 	"bytes"
 	"encoding/binary"
 	"io/fs"
+	"os"
 	"path/filepath"
 	"testing"
 
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/source/block"
 )
 
@@ -16,12 +18,13 @@ import (
 func fuzzSeeds(f *testing.F) [][]byte {
 	f.Helper()
 	var seeds [][]byte
-	err := filepath.WalkDir(testdata, func(path string, d fs.DirEntry, err error) error {
+	err := filepath.WalkDir(fixture.Path(f, "block"), func(path string, d fs.DirEntry, err error) error {
 		if err != nil || d.IsDir() || d.Name() != "diskstats" {
 			return err
 		}
-		seeds = append(seeds, readFixture(f, filepath.Base(filepath.Dir(path))))
-		return nil
+		b, err := os.ReadFile(path)
+		seeds = append(seeds, b)
+		return err
 	})
 	require.NoError(f, err)
 	require.NotEmpty(f, seeds)

@@ -13,9 +13,6 @@ import (
 	"sluice/pkg/source/block"
 )
 
-// testdata is the repository's fixture directory for this source.
-var testdata = filepath.Join("..", "..", "..", "testdata", "block")
-
 // wellFormed lists the fixture cases without malformed lines, which the
 // reference parser must read exactly as Parse does.
 var wellFormed = []string{
@@ -27,19 +24,6 @@ var wellFormed = []string{
 var fixedNow = time.Unix(1718000200, 0)
 
 func nowFunc() time.Time { return fixedNow }
-
-// fixture returns the path of the diskstats file of fixture case name.
-func fixture(name string) string {
-	return filepath.Join(testdata, name, "diskstats")
-}
-
-// readFixture returns the contents of fixture case name.
-func readFixture(t testing.TB, name string) []byte {
-	t.Helper()
-	b, err := os.ReadFile(fixture(name))
-	require.NoError(t, err)
-	return b
-}
 
 // dev builds a Device from its statistics in file order (fields 1 to 11,
 // 15 or 17), the way a line lists them.

@@ -4,7 +4,6 @@ import (
 	"bytes"
 	"errors"
 	"io"
-	"path/filepath"
 	"strings"
 	"testing"
 	"testing/iotest"
@@ -12,6 +11,7 @@ import (
 	"github.com/prometheus/procfs/blockdevice"
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/source/block"
 )
 
@@ -95,7 +95,7 @@ func TestParseFixtures(t *testing.T) {
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
 			t.Parallel()
-			got, err := block.Parse(bytes.NewReader(readFixture(t, tt.input)))
+			got, err := block.Parse(bytes.NewReader(fixture.Read(t, "block", tt.input, "diskstats")))
 			if tt.wantErr {
 				require.Error(t, err)
 				return
@@ -108,7 +108,7 @@ func TestParseFixtures(t *testing.T) {
 
 func TestParseMixed(t *testing.T) {
 	t.Parallel()
-	got, err := block.Parse(bytes.NewReader(readFixture(t, "mixed")))
+	got, err := block.Parse(bytes.NewReader(fixture.Read(t, "block", "mixed", "diskstats")))
 	require.NoError(t, err)
 	require.Zero(t, got.Malformed)
 	var names []string
@@ -132,13 +132,13 @@ func TestParseAgreesWithProcfs(t *testing.T) {
 	for _, name := range wellFormed {
 		t.Run(name, func(t *testing.T) {
 			t.Parallel()
-			dir := filepath.Dir(fixture(name))
+			dir := fixture.Path(t, "block", name)
 			fs, err := blockdevice.NewFS(dir, dir)
 			require.NoError(t, err)
 			ref, err := fs.ProcDiskstats()
 			require.NoError(t, err)
 
-			got, err := block.Parse(bytes.NewReader(readFixture(t, name)))
+			got, err := block.Parse(bytes.NewReader(fixture.Read(t, "block", name, "diskstats")))
 			require.NoError(t, err)
 			require.Zero(t, got.Malformed)
 			require.Len(t, got.Devices, len(ref))
@@ -222,7 +222,7 @@ func TestParseReadError(t *testing.T) {
 func TestParseFormatRoundTrip(t *testing.T) {
 	t.Parallel()
 	for _, name := range wellFormed {
-		st, err := block.Parse(bytes.NewReader(readFixture(t, name)))
+		st, err := block.Parse(bytes.NewReader(fixture.Read(t, "block", name, "diskstats")))
 		require.NoError(t, err)
 		back, err := block.Parse(strings.NewReader(formatAll(st.Devices...)))
 		require.NoError(t, err)

@@ -14,6 +14,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"sluice/pkg/delta"
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/mapping"
 	"sluice/pkg/source"
 	"sluice/pkg/source/block"
@@ -64,7 +65,7 @@ func byKey(t testing.TB, rs []source.Reading, k string) map[string]uint64 {
 
 func TestSourceMixedDefaults(t *testing.T) {
 	t.Parallel()
-	src := newSource(t, filepath.Dir(fixture("mixed")), block.Options{})
+	src := newSource(t, fixture.Path(t, "block", "mixed"), block.Options{})
 	require.Equal(t, "block", src.Name())
 	got := read(t, src)
 	require.Equal(t, []string{"block:sda", "block:sdb", "block:nvme0n1", "block:vda", "block:xvdb", "block:mmcblk0"}, keys(got))
@@ -91,7 +92,7 @@ func TestSourceMixedDefaults(t *testing.T) {
 
 func TestSourceIncludeExclude(t *testing.T) {
 	t.Parallel()
-	root := filepath.Dir(fixture("mixed"))
+	root := fixture.Path(t, "block", "mixed")
 	tests := []struct {
 		name    string
 		input   block.Options
@@ -198,7 +199,7 @@ func TestSourceCountersByLayout(t *testing.T) {
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
 			t.Parallel()
-			got := read(t, newSource(t, filepath.Dir(fixture(tt.input)), all))
+			got := read(t, newSource(t, fixture.Path(t, "block", tt.input), all))
 			require.NotEmpty(t, got)
 			for _, r := range got {
 				require.ElementsMatch(t, tt.want, slices.Collect(maps.Keys(r.Counters)), r.Key)
@@ -223,13 +224,13 @@ func TestSourceCountersByLayout(t *testing.T) {
 //	nvme0n1 weighted_ms 2000123154 -> 2000124762, no wrap: 100+900+12+596           = 1608
 func TestSourceWrap(t *testing.T) {
 	t.Parallel()
-	root := procRoot(t, string(readFixture(t, "wrap_1")))
+	root := procRoot(t, string(fixture.Read(t, "block", "wrap_1", "diskstats")))
 	src := newSource(t, root, block.Options{})
 	first := read(t, src)
 	// Until a wrap is seen the values are the raw ones.
 	require.Equal(t, uint64(4294967000), byKey(t, first, "block:sda")["read_ms"])
 
-	writeFile(t, root, string(readFixture(t, "wrap_2")))
+	writeFile(t, root, string(fixture.Read(t, "block", "wrap_2", "diskstats")))
 	second := read(t, src)
 	require.Equal(t, []string{"block:sda", "block:sdb", "block:nvme0n1"}, keys(second))
 
@@ -326,14 +327,14 @@ func TestSourceUnwrapLongRun(t *testing.T) {
 // restarts at 12 rather than becoming 2^32+12.
 func TestSourceReset(t *testing.T) {
 	t.Parallel()
-	root := procRoot(t, string(readFixture(t, "reset_1")))
+	root := procRoot(t, string(fixture.Read(t, "block", "reset_1", "diskstats")))
 	src := newSource(t, root, block.Options{})
 	differ := delta.NewDiffer()
 	differ.Update(mapped(read(t, src)))
 
-	writeFile(t, root, string(readFixture(t, "reset_2")))
+	writeFile(t, root, string(fixture.Read(t, "block", "reset_2", "diskstats")))
 	got := read(t, src)
-	raw, err := block.Parse(strings.NewReader(string(readFixture(t, "reset_2"))))
+	raw, err := block.Parse(strings.NewReader(string(fixture.Read(t, "block", "reset_2", "diskstats"))))
 	require.NoError(t, err)
 	for i, d := range raw.Devices {
 		c := got[i].Counters
@@ -358,12 +359,12 @@ func TestSourceReset(t *testing.T) {
 // gathered by earlier wraps.
 func TestSourceResetAfterWrap(t *testing.T) {
 	t.Parallel()
-	root := procRoot(t, string(readFixture(t, "wrap_1")))
+	root := procRoot(t, string(fixture.Read(t, "block", "wrap_1", "diskstats")))
 	src := newSource(t, root, block.Options{})
 	read(t, src)
-	writeFile(t, root, string(readFixture(t, "wrap_2")))
+	writeFile(t, root, string(fixture.Read(t, "block", "wrap_2", "diskstats")))
 	require.Equal(t, uint64(1<<32+704), byKey(t, read(t, src), "block:sda")["read_ms"])
-	writeFile(t, root, string(readFixture(t, "reset_2")))
+	writeFile(t, root, string(fixture.Read(t, "block", "reset_2", "diskstats")))
 	got := read(t, src)
 	require.Equal(t, uint64(12), byKey(t, got, "block:sda")["read_ms"])
 	require.Equal(t, uint64(8), byKey(t, got, "block:sda")["write_ms"])
@@ -476,7 +477,7 @@ func TestSourceMissingFile(t *testing.T) {
 	require.ErrorContains(t, err, filepath.Join(root, "diskstats"))
 
 	// The file appears later.
-	writeFile(t, root, string(readFixture(t, "mixed")))
+	writeFile(t, root, string(fixture.Read(t, "block", "mixed", "diskstats")))
 	require.Len(t, read(t, src), 6)
 
 	// It goes away while open.
@@ -492,7 +493,7 @@ func TestSourceMissingFile(t *testing.T) {
 
 func TestSourceInPlaceRewrite(t *testing.T) {
 	t.Parallel()
-	root := procRoot(t, string(readFixture(t, "v5_5_20fields")))
+	root := procRoot(t, string(fixture.Read(t, "block", "v5_5_20fields", "diskstats")))
 	path := filepath.Join(root, "diskstats")
 	before, err := os.Stat(path)
 	require.NoError(t, err)
@@ -511,17 +512,17 @@ func TestSourceInPlaceRewrite(t *testing.T) {
 	require.Zero(t, got[0].Malformed)
 
 	// And a longer one again.
-	writeFile(t, root, string(readFixture(t, "v5_5_20fields")))
+	writeFile(t, root, string(fixture.Read(t, "block", "v5_5_20fields", "diskstats")))
 	require.Len(t, read(t, src), 5)
 	require.Equal(t, 1, block.Opens(src), "one open for all reads")
 }
 
 func TestSourceReplacedFile(t *testing.T) {
 	t.Parallel()
-	root := procRoot(t, string(readFixture(t, "wrap_1")))
+	root := procRoot(t, string(fixture.Read(t, "block", "wrap_1", "diskstats")))
 	src := newSource(t, root, block.Options{})
 	read(t, src)
-	replaceFile(t, root, string(readFixture(t, "wrap_2")))
+	replaceFile(t, root, string(fixture.Read(t, "block", "wrap_2", "diskstats")))
 	got := read(t, src)
 	require.Equal(t, 2, block.Opens(src), "a file replaced by rename is reopened at once")
 	// The device state survives the reopen: the wrap is still seen.
@@ -532,7 +533,7 @@ func TestSourceReplacedFile(t *testing.T) {
 
 func TestSourceReadErrorReopens(t *testing.T) {
 	t.Parallel()
-	root := procRoot(t, string(readFixture(t, "wrap_1")))
+	root := procRoot(t, string(fixture.Read(t, "block", "wrap_1", "diskstats")))
 	path := filepath.Join(root, "diskstats")
 	src := newSource(t, root, block.Options{})
 	read(t, src)
@@ -549,7 +550,7 @@ func TestSourceReadErrorReopens(t *testing.T) {
 	// The file is back: it is opened again, and the state from before the
 	// failed read is intact, so the wrap is still seen.
 	require.NoError(t, os.Remove(path))
-	writeFile(t, root, string(readFixture(t, "wrap_2")))
+	writeFile(t, root, string(fixture.Read(t, "block", "wrap_2", "diskstats")))
 	got := read(t, src)
 	require.Equal(t, 3, block.Opens(src))
 	require.Equal(t, uint64(1<<32+704), byKey(t, got, "block:sda")["read_ms"])
@@ -565,7 +566,7 @@ func TestSourceMalformed(t *testing.T) {
 	}{
 		{
 			name:  "fixture: counted once, on the first reading",
-			input: string(readFixture(t, "malformed")),
+			input: string(fixture.Read(t, "block", "malformed", "diskstats")),
 			want:  []int{12, 0, 0, 0},
 		},
 		{
@@ -601,12 +602,12 @@ func TestSourceMalformed(t *testing.T) {
 
 func TestSourceReadingsAreNotReused(t *testing.T) {
 	t.Parallel()
-	root := procRoot(t, string(readFixture(t, "wrap_1")))
+	root := procRoot(t, string(fixture.Read(t, "block", "wrap_1", "diskstats")))
 	src := newSource(t, root, block.Options{})
 	first := read(t, src)
 	keep := make(map[string]uint64)
 	maps.Copy(keep, first[0].Counters)
-	writeFile(t, root, string(readFixture(t, "wrap_2")))
+	writeFile(t, root, string(fixture.Read(t, "block", "wrap_2", "diskstats")))
 	read(t, src)
 	require.Equal(t, keep, first[0].Counters)
 }
@@ -632,7 +633,7 @@ func TestSourceCanceled(t *testing.T) {
 	t.Parallel()
 	ctx, cancel := context.WithCancel(context.Background())
 	cancel()
-	src := newSource(t, filepath.Dir(fixture("mixed")), block.Options{})
+	src := newSource(t, fixture.Path(t, "block", "mixed"), block.Options{})
 	_, err := src.Read(ctx)
 	require.ErrorIs(t, err, context.Canceled)
 }
@@ -640,7 +641,7 @@ func TestSourceCanceled(t *testing.T) {
 func TestSourceDefaults(t *testing.T) {
 	t.Parallel()
 	// Nil now means time.Now; the empty root (meaning /proc) is not read.
-	src, err := block.NewSource(filepath.Dir(fixture("mixed")), block.Options{}, nil)
+	src, err := block.NewSource(fixture.Path(t, "block", "mixed"), block.Options{}, nil)
 	require.NoError(t, err)
 	defer src.Close()
 	got := read(t, src)

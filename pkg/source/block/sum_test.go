@@ -7,6 +7,7 @@ import (
 
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/mapping"
 	"sluice/pkg/metric"
 	"sluice/pkg/source/block"
@@ -24,10 +25,11 @@ func TestSumsEqualMappedCounters(t *testing.T) {
 		"sectors_read", "sectors_written"} {
 		every["block"][name] = metric.ID(i % int(metric.Count))
 	}
-	cases, err := os.ReadDir(testdata)
+	fixtures := fixture.Path(t, "block")
+	cases, err := os.ReadDir(fixtures)
 	require.NoError(t, err)
 	for _, c := range cases {
-		dir := filepath.Join(testdata, c.Name())
+		dir := filepath.Join(fixtures, c.Name())
 		if _, err := os.Stat(filepath.Join(dir, "diskstats")); err != nil {
 			continue
 		}

@@ -13,6 +13,7 @@ import (
 
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/source/jobio"
 )
 
@@ -21,7 +22,7 @@ import (
 func fuzzSeeds(f *testing.F, keep func(path string) bool) [][]byte {
 	f.Helper()
 	var seeds [][]byte
-	err := filepath.WalkDir(testdata, func(path string, d fs.DirEntry, err error) error {
+	err := filepath.WalkDir(fixture.Path(f, "jobio"), func(path string, d fs.DirEntry, err error) error {
 		if err != nil || d.IsDir() || d.Name() == "README" || !keep(path) {
 			return err
 		}

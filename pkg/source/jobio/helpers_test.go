@@ -16,9 +16,6 @@ import (
 	"sluice/pkg/source/jobio"
 )
 
-// testdata is the repository's fixture directory for this source.
-var testdata = filepath.Join("..", "..", "..", "testdata", "jobio")
-
 // fixedNow is the clock the Source tests inject.
 var fixedNow = time.Unix(1718000200, 0)
 

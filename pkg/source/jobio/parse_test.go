@@ -12,13 +12,14 @@ import (
 
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/source/jobio"
 )
 
 // openFixture opens testdata/jobio/<rel>.
 func openFixture(t *testing.T, rel string) *os.File {
 	t.Helper()
-	f, err := os.Open(filepath.Join(testdata, rel))
+	f, err := os.Open(fixture.Path(t, "jobio", rel))
 	require.NoError(t, err)
 	t.Cleanup(func() { f.Close() })
 	return f
@@ -257,7 +258,7 @@ func TestParseProcStatReadError(t *testing.T) {
 func TestParseSharedNodeFiles(t *testing.T) {
 	t.Parallel()
 	// Every io and stat file of the shared_node fixture parses cleanly.
-	root := filepath.Join(testdata, "shared_node")
+	root := fixture.Path(t, "jobio", "shared_node")
 	n := 0
 	err := filepath.WalkDir(root, func(path string, d os.DirEntry, err error) error {
 		if err != nil || d.IsDir() {

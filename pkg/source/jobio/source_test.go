@@ -9,6 +9,7 @@ import (
 
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/source"
 	"sluice/pkg/source/jobio"
 )
@@ -42,10 +43,10 @@ func copyTree(t testing.TB, src, dst string) {
 func TestSharedNode(t *testing.T) {
 	t.Parallel()
 	// testdata/jobio/shared_node: two jobs on one node; see its README.
-	fixture := filepath.Join(testdata, "shared_node")
+	node := fixture.Path(t, "jobio", "shared_node")
 	dir := t.TempDir()
-	copyTree(t, filepath.Join(fixture, "cgroup"), filepath.Join(dir, "cgroup"))
-	copyTree(t, filepath.Join(fixture, "proc"), filepath.Join(dir, "proc"))
+	copyTree(t, filepath.Join(node, "cgroup"), filepath.Join(dir, "cgroup"))
+	copyTree(t, filepath.Join(node, "proc"), filepath.Join(dir, "proc"))
 	src, err := jobio.NewSource(jobio.Options{CgroupRoot: filepath.Join(dir, "cgroup"), ProcRoot: filepath.Join(dir, "proc")}, nowFunc)
 	require.NoError(t, err)
 	t.Cleanup(func() { src.Close() })
@@ -65,7 +66,7 @@ func TestSharedNode(t *testing.T) {
 	}, got)
 
 	// Five seconds later (next/ written over the copy in place).
-	copyTree(t, filepath.Join(fixture, "next"), dir)
+	copyTree(t, filepath.Join(node, "next"), dir)
 	got, err = src.Read(context.Background())
 	require.NoError(t, err)
 	want := []source.Reading{
@@ -409,9 +410,7 @@ func TestMalformedCounted(t *testing.T) {
 	tr.setProcs(stepDir, 61)
 	// Two bad lines in cgroup.procs and the io_stat/malformed fixture (7).
 	tr.write(filepath.Join(tr.cgroup, stepDir, "cgroup.procs"), "61\nx\n-3\n")
-	b, err := os.ReadFile(filepath.Join(testdata, "io_stat", "malformed"))
-	require.NoError(t, err)
-	tr.setIOStat(jobDir, string(b))
+	tr.setIOStat(jobDir, string(fixture.Read(t, "jobio", "io_stat", "malformed")))
 	r := read(t, tr.source(jobio.Options{}))["7"]
 	require.Equal(t, 9, r.Malformed)
 }

@@ -11,6 +11,7 @@ import (
 
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/mapping"
 	"sluice/pkg/metric"
 	"sluice/pkg/source/internal/sourcetest"
@@ -30,9 +31,9 @@ func TestSumsEqualMappedCounters(t *testing.T) {
 		t.Run(name, func(t *testing.T) {
 			t.Parallel()
 			dir := t.TempDir()
-			fixture := filepath.Join(testdata, "shared_node")
-			copyTree(t, filepath.Join(fixture, "cgroup"), filepath.Join(dir, "cgroup"))
-			copyTree(t, filepath.Join(fixture, "proc"), filepath.Join(dir, "proc"))
+			node := fixture.Path(t, "jobio", "shared_node")
+			copyTree(t, filepath.Join(node, "cgroup"), filepath.Join(dir, "cgroup"))
+			copyTree(t, filepath.Join(node, "proc"), filepath.Join(dir, "proc"))
 			opts := jobio.Options{CgroupRoot: filepath.Join(dir, "cgroup"), ProcRoot: filepath.Join(dir, "proc")}
 			plain, err := jobio.NewSource(opts, nowFunc)
 			require.NoError(t, err)

@@ -5,13 +5,14 @@ import (
 	"context"
 	"testing"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/source/lustre"
 )
 
 // BenchmarkParse30 parses the 34-counter Lustre 2.16 fixture from memory
 // and builds the Raw map, the per-mount work of one agent interval.
 func BenchmarkParse30(b *testing.B) {
-	data := readFixture(b, "v2_16_header")
+	data := fixture.Read(b, "lustre", "v2_16_header", "stats")
 	r := bytes.NewReader(data)
 	b.SetBytes(int64(len(data)))
 	b.ReportAllocs()

@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"encoding/binary"
 	"io/fs"
+	"os"
 	"path/filepath"
 	"strconv"
 	"strings"
@@ -12,6 +13,7 @@ import (
 
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/source/lustre"
 )
 
@@ -19,14 +21,13 @@ import (
 func fuzzSeeds(f *testing.F) [][]byte {
 	f.Helper()
 	var seeds [][]byte
-	err := filepath.WalkDir(testdata, func(path string, d fs.DirEntry, err error) error {
-		if err != nil || d.IsDir() {
+	err := filepath.WalkDir(fixture.Path(f, "lustre"), func(path string, d fs.DirEntry, err error) error {
+		if err != nil || d.IsDir() || (d.Name() != "stats" && !strings.HasSuffix(d.Name(), ".golden")) {
 			return err
 		}
-		if d.Name() == "stats" || strings.HasSuffix(d.Name(), ".golden") {
-			seeds = append(seeds, mustRead(f, path))
-		}
-		return nil
+		b, err := os.ReadFile(path)
+		seeds = append(seeds, b)
+		return err
 	})
 	require.NoError(f, err)
 	require.NotEmpty(f, seeds)

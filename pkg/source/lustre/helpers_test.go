@@ -1,30 +1,8 @@
 package lustre_test
 
 import (
-	"os"
-	"path/filepath"
-	"testing"
-
-	"github.com/stretchr/testify/require"
-
 	"sluice/pkg/source/lustre"
 )
-
-// testdata is the repository's fixture directory for this source.
-var testdata = filepath.Join("..", "..", "..", "testdata", "lustre")
-
-// fixture returns the path of the stats file of fixture case name.
-func fixture(name string) string {
-	return filepath.Join(testdata, name, "stats")
-}
-
-// readFixture returns the contents of fixture case name.
-func readFixture(t testing.TB, name string) []byte {
-	t.Helper()
-	b, err := os.ReadFile(fixture(name))
-	require.NoError(t, err)
-	return b
-}
 
 // v216Counters are the counters of testdata/lustre/v2_16_header, which
 // follows llite_opcode_table in lustre/llite/lproc_llite.c at v2_16_0.
@@ -65,12 +43,4 @@ func v216Counters() []lustre.Counter {
 		{Name: "opencount", Samples: 42, Unit: "reqs", Fields: 4, Min: 1, Max: 6, Sum: 139, SumSq: 599},
 		{Name: "openclosetime", Samples: 40, Unit: "usecs", Fields: 4, Min: 900, Max: 7200000, Sum: 128843240, SumSq: 610450764432980},
 	}
-}
-
-// mustRead returns the contents of path.
-func mustRead(t testing.TB, path string) []byte {
-	t.Helper()
-	b, err := os.ReadFile(path)
-	require.NoError(t, err)
-	return b
 }

@@ -11,6 +11,7 @@ import (
 
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/source/lustre"
 )
 
@@ -175,7 +176,7 @@ func TestParseFixtures(t *testing.T) {
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
 			t.Parallel()
-			f, err := os.Open(fixture(tt.input))
+			f, err := os.Open(fixture.Path(t, "lustre", tt.input, "stats"))
 			require.NoError(t, err)
 			defer f.Close()
 			got, err := lustre.Parse(f)
@@ -323,7 +324,7 @@ func TestParseReadError(t *testing.T) {
 
 func TestParseOneByteReads(t *testing.T) {
 	t.Parallel()
-	data := readFixture(t, "v2_16_header")
+	data := fixture.Read(t, "lustre", "v2_16_header", "stats")
 	got, err := lustre.Parse(iotest.OneByteReader(strings.NewReader(string(data))))
 	require.NoError(t, err)
 	require.Equal(t, v216Counters(), got.Counters)
@@ -372,7 +373,7 @@ func TestRaw(t *testing.T) {
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
 			t.Parallel()
-			st, err := lustre.Parse(strings.NewReader(string(readFixture(t, tt.input))))
+			st, err := lustre.Parse(strings.NewReader(string(fixture.Read(t, "lustre", tt.input, "stats"))))
 			require.NoError(t, err)
 			require.Equal(t, tt.want, st.Raw())
 		})

@@ -9,6 +9,7 @@ import (
 
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/source/internal/sourcetest"
 )
 
@@ -16,7 +17,7 @@ import (
 // the next (its memo of lines and names): parsing b after a, and b again,
 // with one memo must give what a fresh Parse of b gives.
 func FuzzParseAfter(f *testing.F) {
-	files := sourcetest.Fixtures(f, filepath.Join("..", "..", "..", "testdata", "lustre", "*", "stats"))
+	files := sourcetest.Fixtures(f, filepath.Join(fixture.Path(f, "lustre"), "*", "stats"))
 	for i := range files {
 		f.Add(files[i], files[(i+1)%len(files)])
 	}

@@ -13,6 +13,7 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/source"
 	"sluice/pkg/source/lustre"
 )
@@ -29,7 +30,7 @@ func TestSourceTree(t *testing.T) {
 	// testdata/lustre/tree follows the llite directory of Lustre 2.12+
 	// (instance names from lustre/llite/llite_lib.c, files in 2.16 layout
 	// from lustre/obdclass/lprocfs_status.c); its README file is skipped.
-	src := lustre.NewSource(filepath.Join(testdata, "tree"), nowFunc)
+	src := lustre.NewSource(fixture.Path(t, "lustre", "tree"), nowFunc)
 	require.Equal(t, "lustre", src.Name())
 	got, err := src.Read(context.Background())
 	require.NoError(t, err)
@@ -62,7 +63,7 @@ func writeMount(t testing.TB, root, inst, fixtureCase string) {
 	t.Helper()
 	dir := filepath.Join(root, inst)
 	require.NoError(t, os.MkdirAll(dir, 0o755))
-	require.NoError(t, os.WriteFile(filepath.Join(dir, "stats"), readFixture(t, fixtureCase), 0o644))
+	require.NoError(t, os.WriteFile(filepath.Join(dir, "stats"), fixture.Read(t, "lustre", fixtureCase, "stats"), 0o644))
 }
 
 // keys returns the reading keys in order.
@@ -236,7 +237,7 @@ func TestSourceCanceled(t *testing.T) {
 	t.Parallel()
 	ctx, cancel := context.WithCancel(context.Background())
 	cancel()
-	_, err := lustre.NewSource(filepath.Join(testdata, "tree"), nowFunc).Read(ctx)
+	_, err := lustre.NewSource(fixture.Path(t, "lustre", "tree"), nowFunc).Read(ctx)
 	require.ErrorIs(t, err, context.Canceled)
 }
 

@@ -7,6 +7,7 @@ import (
 
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/mapping"
 	"sluice/pkg/metric"
 	"sluice/pkg/source/internal/sourcetest"
@@ -23,10 +24,11 @@ func TestSumsEqualMappedCounters(t *testing.T) {
 	extra["lustre"]["getattr.sum"] = metric.OtherOps // usecs: never summed
 	extra["lustre"]["no_such_counter"] = metric.OtherOps
 	root := t.TempDir()
-	cases, err := os.ReadDir(testdata)
+	fixtures := fixture.Path(t, "lustre")
+	cases, err := os.ReadDir(fixtures)
 	require.NoError(t, err)
 	for _, c := range cases {
-		if data, err := os.ReadFile(filepath.Join(testdata, c.Name(), "stats")); err == nil {
+		if data, err := os.ReadFile(filepath.Join(fixtures, c.Name(), "stats")); err == nil {
 			write(t, filepath.Join(root, c.Name(), "stats"), data)
 		}
 	}
@@ -51,7 +53,7 @@ func TestSumsEqualMappedCounters(t *testing.T) {
 // targets) must never change a sum.
 func TestSumsEqualMappedCountersOverReads(t *testing.T) {
 	t.Parallel()
-	files := sourcetest.ForthAndBack(sourcetest.Fixtures(t, filepath.Join(testdata, "*", "stats")))
+	files := sourcetest.ForthAndBack(sourcetest.Fixtures(t, filepath.Join(fixture.Path(t, "lustre"), "*", "stats")))
 	root := t.TempDir()
 	path := filepath.Join(root, "scratch-ffff9a0c12345000", "stats")
 	write(t, path, files[0])

@@ -12,6 +12,7 @@ import (
 
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/source/lustre"
 )
 
@@ -39,7 +40,7 @@ func nonZeroRaw(s lustre.Stats) map[string]uint64 {
 func TestWriteRoundTrip(t *testing.T) {
 	t.Parallel()
 	for _, name := range fixtureCases {
-		orig, err := lustre.Parse(bytes.NewReader(readFixture(t, name)))
+		orig, err := lustre.Parse(bytes.NewReader(fixture.Read(t, "lustre", name, "stats")))
 		require.NoError(t, err)
 		for _, f := range lustre.Formats() {
 			t.Run(name+"/"+f.String(), func(t *testing.T) {
@@ -69,7 +70,7 @@ func TestWriteGolden(t *testing.T) {
 			t.Parallel()
 			var buf bytes.Buffer
 			require.NoError(t, lustre.Write(&buf, st, f))
-			path := filepath.Join(testdata, "write_golden", "v"+strings.ReplaceAll(f.String(), ".", "_")+".golden")
+			path := filepath.Join(fixture.Path(t, "lustre", "write_golden"), "v"+strings.ReplaceAll(f.String(), ".", "_")+".golden")
 			if *update {
 				require.NoError(t, os.WriteFile(path, buf.Bytes(), 0o644))
 			}
@@ -220,7 +221,7 @@ func TestWriteReproducesFixtures(t *testing.T) {
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
 			t.Parallel()
-			want := readFixture(t, tt.input)
+			want := fixture.Read(t, "lustre", tt.input, "stats")
 			st, err := lustre.Parse(bytes.NewReader(want))
 			require.NoError(t, err)
 			var buf bytes.Buffer

@@ -7,6 +7,7 @@ import (
 	"os"
 	"testing"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/source/nfs"
 )
 
@@ -17,7 +18,7 @@ const bench2Mounts = "remount_1_before"
 // BenchmarkParse2Mounts parses the file from memory and builds both Raw
 // maps, without the Source's buffer reuse.
 func BenchmarkParse2Mounts(b *testing.B) {
-	data := readFixture(b, bench2Mounts)
+	data := fixture.Read(b, "nfs", bench2Mounts, "mountstats")
 	r := bytes.NewReader(data)
 	b.SetBytes(int64(len(data)))
 	b.ReportAllocs()
@@ -36,7 +37,7 @@ func BenchmarkParse2Mounts(b *testing.B) {
 // BenchmarkSourceRead2Mounts is one agent interval: pread the file on the
 // kept descriptor, parse into reused buffers, dedupe, build two readings.
 func BenchmarkSourceRead2Mounts(b *testing.B) {
-	data := readFixture(b, bench2Mounts)
+	data := fixture.Read(b, "nfs", bench2Mounts, "mountstats")
 	src, _ := newSource(b, data, &clock{t: t0})
 	ctx := context.Background()
 	b.SetBytes(int64(len(data)))
@@ -53,7 +54,7 @@ func BenchmarkSourceRead2Mounts(b *testing.B) {
 // open descriptor into a buffer, the way the Source does: the floor the
 // Source's cost compares with.
 func BenchmarkPreadBare2Mounts(b *testing.B) {
-	data := readFixture(b, bench2Mounts)
+	data := fixture.Read(b, "nfs", bench2Mounts, "mountstats")
 	_, path := procRoot(b, data)
 	f, err := os.Open(path)
 	if err != nil {

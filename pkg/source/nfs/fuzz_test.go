@@ -6,12 +6,13 @@ import (
 
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/source/nfs"
 )
 
 func FuzzParse(f *testing.F) {
 	for _, c := range allCases(f) {
-		f.Add(readFixture(f, c))
+		f.Add(fixture.Read(f, "nfs", c, "mountstats"))
 	}
 	f.Add([]byte("device a mounted on /b with fstype nfs statvers=1.1\n\tage:\t1\n\tbytes:\t1 2 3 4 5 6 7 8\n\tper-op statistics\n\tX: 1 2 3 4 5 6 7 8\n"))
 	f.Add([]byte("no device mounted on /x with fstype nfs4\n\timpl_id:\tname='a\ndevice\n\\\\\\0401\n"))

@@ -1,7 +1,6 @@
 package nfs_test
 
 import (
-	"os"
 	"path/filepath"
 	"slices"
 	"sort"
@@ -10,11 +9,9 @@ import (
 
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/source/nfs"
 )
-
-// testdata is the repository's fixture directory for this source.
-var testdata = filepath.Join("..", "..", "..", "testdata", "nfs")
 
 // wellFormed lists the fixture cases that follow the kernel's layout
 // exactly, so that procfs parses them too.
@@ -23,23 +20,10 @@ var wellFormed = []string{
 	"escaped", "nconnect", "remount_1_before", "remount_2_later", "remount_3_after",
 }
 
-// fixture returns the path of the mountstats file of fixture case name.
-func fixture(name string) string {
-	return filepath.Join(testdata, name, "mountstats")
-}
-
-// readFixture returns the contents of fixture case name.
-func readFixture(t testing.TB, name string) []byte {
-	t.Helper()
-	b, err := os.ReadFile(fixture(name))
-	require.NoError(t, err)
-	return b
-}
-
 // allCases lists every fixture case directory.
 func allCases(t testing.TB) []string {
 	t.Helper()
-	paths, err := filepath.Glob(filepath.Join(testdata, "*", "mountstats"))
+	paths, err := filepath.Glob(filepath.Join(fixture.Path(t, "nfs"), "*", "mountstats"))
 	require.NoError(t, err)
 	require.NotEmpty(t, paths)
 	cases := make([]string, 0, len(paths))

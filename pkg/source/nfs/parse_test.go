@@ -11,6 +11,7 @@ import (
 
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/source/nfs"
 )
 
@@ -308,7 +309,7 @@ func TestParseFixtures(t *testing.T) {
 		covered[tt.input] = true
 		t.Run(tt.name, func(t *testing.T) {
 			t.Parallel()
-			got, err := nfs.Parse(bytes.NewReader(readFixture(t, tt.input)))
+			got, err := nfs.Parse(bytes.NewReader(fixture.Read(t, "nfs", tt.input, "mountstats")))
 			if tt.wantErr {
 				require.Error(t, err)
 				return
@@ -467,7 +468,7 @@ var errBoom = errors.New("boom")
 
 func TestRawNames(t *testing.T) {
 	t.Parallel()
-	st, err := nfs.Parse(bytes.NewReader(readFixture(t, "v4_2_single")))
+	st, err := nfs.Parse(bytes.NewReader(fixture.Read(t, "nfs", "v4_2_single", "mountstats")))
 	require.NoError(t, err)
 	require.Len(t, st.Mounts, 1)
 	// These names are the mapping table's keys: changing one is a breaking

@@ -12,6 +12,7 @@ import (
 	"github.com/prometheus/procfs"
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/source/nfs"
 )
 
@@ -49,7 +50,7 @@ func TestAgreesWithProcfs(t *testing.T) {
 	for _, name := range wellFormed {
 		t.Run(name, func(t *testing.T) {
 			t.Parallel()
-			data := readFixture(t, name)
+			data := fixture.Read(t, "nfs", name, "mountstats")
 			ref, err := procfsMounts(t, data)
 			require.NoError(t, err, "procfs must accept a well-formed fixture")
 			got, err := nfs.Parse(bytes.NewReader(data))
@@ -114,7 +115,7 @@ func TestAgreesWithProcfs(t *testing.T) {
 // reference: github.com/prometheus/procfs v0.23.0 mountstats.go
 func TestProcfsRejectsWhatParseTolerates(t *testing.T) {
 	t.Parallel()
-	data := readFixture(t, "malformed")
+	data := fixture.Read(t, "nfs", "malformed", "mountstats")
 	_, err := procfsMounts(t, data)
 	require.Error(t, err)
 	got, err := nfs.Parse(bytes.NewReader(data))

@@ -7,6 +7,7 @@ import (
 
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/source/internal/sourcetest"
 )
 
@@ -14,7 +15,7 @@ import (
 // the next (each mount slot's per-op names and lines, by position): parsing
 // b after a, and b again, must give what a fresh Parse of b gives.
 func FuzzParseAfter(f *testing.F) {
-	files := sourcetest.Fixtures(f, filepath.Join("..", "..", "..", "testdata", "nfs", "*", "mountstats"))
+	files := sourcetest.Fixtures(f, filepath.Join(fixture.Path(f, "nfs"), "*", "mountstats"))
 	for i := range files {
 		f.Add(files[i], files[(i+1)%len(files)])
 		f.Add(files[i], files[i])

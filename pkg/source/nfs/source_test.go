@@ -12,6 +12,7 @@ import (
 
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/source"
 	"sluice/pkg/source/nfs"
 )
@@ -64,7 +65,7 @@ func epochOf(now time.Time, age int64) string {
 func TestSourceReading(t *testing.T) {
 	t.Parallel()
 	c := &clock{t: t0}
-	src, _ := newSource(t, readFixture(t, "v4_2_single"), c)
+	src, _ := newSource(t, fixture.Read(t, "nfs", "v4_2_single", "mountstats"), c)
 	require.Equal(t, "nfs", src.Name())
 	got, err := src.Read(context.Background())
 	require.NoError(t, err)
@@ -117,7 +118,7 @@ func TestSourceFixtures(t *testing.T) {
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
 			t.Parallel()
-			src, _ := newSource(t, readFixture(t, tt.input), &clock{t: t0})
+			src, _ := newSource(t, fixture.Read(t, "nfs", tt.input, "mountstats"), &clock{t: t0})
 			got, err := src.Read(context.Background())
 			if tt.wantErr != nil {
 				require.ErrorIs(t, err, tt.wantErr)
@@ -135,7 +136,7 @@ func TestSourceFixtures(t *testing.T) {
 
 func TestSourceMalformedHasNoEvents(t *testing.T) {
 	t.Parallel()
-	src, _ := newSource(t, readFixture(t, "malformed"), &clock{t: t0})
+	src, _ := newSource(t, fixture.Read(t, "nfs", "malformed", "mountstats"), &clock{t: t0})
 	got, err := src.Read(context.Background())
 	require.NoError(t, err)
 	require.Len(t, got, 1)
@@ -147,7 +148,7 @@ func TestSourceMalformedHasNoEvents(t *testing.T) {
 // body changed by edit.
 func twoMounts(t testing.TB, edit func(second string) string) []byte {
 	t.Helper()
-	data := string(readFixture(t, "shared_superblock"))
+	data := string(fixture.Read(t, "nfs", "shared_superblock", "mountstats"))
 	i := strings.Index(data, "device fs01:/export/proj mounted on /home/alice/proj")
 	require.Positive(t, i)
 	return []byte(data[:i] + edit(data[i:]))
@@ -163,7 +164,7 @@ func TestSourceSuperblockHeuristic(t *testing.T) {
 	}{
 		{
 			name:  "identical counters and options: one superblock",
-			input: func(t testing.TB) []byte { return readFixture(t, "shared_superblock") },
+			input: func(t testing.TB) []byte { return fixture.Read(t, "nfs", "shared_superblock", "mountstats") },
 			want:  []string{first},
 		},
 		{
@@ -248,7 +249,7 @@ func epochs(rs []source.Reading) map[string]string {
 func TestSourceRemount(t *testing.T) {
 	t.Parallel()
 	c := &clock{t: t0}
-	src, path := newSource(t, readFixture(t, "remount_1_before"), c)
+	src, path := newSource(t, fixture.Read(t, "nfs", "remount_1_before", "mountstats"), c)
 	ctx := context.Background()
 	const home, scratch = "nfs:fs02:/export/home", "nfs:fs01:/export/scratch"
 
@@ -263,7 +264,7 @@ func TestSourceRemount(t *testing.T) {
 	require.NoError(t, err)
 	require.Equal(t, first, epochs(got))
 	c.advance(5 * time.Second)
-	require.NoError(t, os.WriteFile(path, readFixture(t, "remount_2_later"), 0o644))
+	require.NoError(t, os.WriteFile(path, fixture.Read(t, "nfs", "remount_2_later", "mountstats"), 0o644))
 	got, err = src.Read(ctx)
 	require.NoError(t, err)
 	require.Equal(t, first, epochs(got))
@@ -271,7 +272,7 @@ func TestSourceRemount(t *testing.T) {
 	// 10 s later /scratch was remounted (age 3): its epoch moves to the new
 	// start time, /home's does not.
 	c.advance(10 * time.Second)
-	require.NoError(t, os.WriteFile(path, readFixture(t, "remount_3_after"), 0o644))
+	require.NoError(t, os.WriteFile(path, fixture.Read(t, "nfs", "remount_3_after", "mountstats"), 0o644))
 	got, err = src.Read(ctx)
 	require.NoError(t, err)
 	require.Equal(t, []string{home, scratch}, keys(got))
@@ -285,7 +286,7 @@ func TestSourceRemount(t *testing.T) {
 // withAge returns the v4_2_single fixture with the given age.
 func withAge(t testing.TB, age int) []byte {
 	t.Helper()
-	return []byte(strings.Replace(string(readFixture(t, "v4_2_single")), "age:\t86400", "age:\t"+strconv.Itoa(age), 1))
+	return []byte(strings.Replace(string(fixture.Read(t, "nfs", "v4_2_single", "mountstats")), "age:\t86400", "age:\t"+strconv.Itoa(age), 1))
 }
 
 func TestSourceEpochIgnoresJitter(t *testing.T) {
@@ -407,7 +408,7 @@ func TestSourceNoNFSMounts(t *testing.T) {
 
 func TestSourceAllMountsPartial(t *testing.T) {
 	t.Parallel()
-	data := readFixture(t, "malformed")
+	data := fixture.Read(t, "nfs", "malformed", "mountstats")
 	data = data[strings.Index(string(data), "device fs02:"):] // drop the good mount
 	src, _ := newSource(t, data, &clock{t: t0})
 	_, err := src.Read(context.Background())
@@ -418,7 +419,7 @@ func TestSourceAllMountsPartial(t *testing.T) {
 func TestSourceFileRewrittenInPlace(t *testing.T) {
 	t.Parallel()
 	c := &clock{t: t0}
-	src, path := newSource(t, readFixture(t, "remount_1_before"), c)
+	src, path := newSource(t, fixture.Read(t, "nfs", "remount_1_before", "mountstats"), c)
 	ctx := context.Background()
 	before, err := os.Stat(path)
 	require.NoError(t, err)
@@ -431,7 +432,7 @@ func TestSourceFileRewrittenInPlace(t *testing.T) {
 	// os.WriteFile truncates and rewrites the same inode, as the kernel
 	// regenerates a seq_file: the open descriptor must see the new content,
 	// and a shorter file must not leave a stale tail.
-	require.NoError(t, os.WriteFile(path, readFixture(t, "v4_2_single"), 0o644))
+	require.NoError(t, os.WriteFile(path, fixture.Read(t, "nfs", "v4_2_single", "mountstats"), 0o644))
 	after, err := os.Stat(path)
 	require.NoError(t, err)
 	require.True(t, os.SameFile(before, after))
@@ -451,13 +452,13 @@ func TestSourceFileReplacedByRename(t *testing.T) {
 	ctx := context.Background()
 	replace := func(t *testing.T, path, fixtureCase string) {
 		tmp := path + ".new"
-		require.NoError(t, os.WriteFile(tmp, readFixture(t, fixtureCase), 0o644))
+		require.NoError(t, os.WriteFile(tmp, fixture.Read(t, "nfs", fixtureCase, "mountstats"), 0o644))
 		require.NoError(t, os.Rename(tmp, path))
 	}
 
 	t.Run("picked up within DefaultCheckEvery reads", func(t *testing.T) {
 		t.Parallel()
-		src, path := newSource(t, readFixture(t, "v3"), &clock{t: t0})
+		src, path := newSource(t, fixture.Read(t, "nfs", "v3", "mountstats"), &clock{t: t0})
 		got, err := src.Read(ctx)
 		require.NoError(t, err)
 		require.Equal(t, []string{"nfs:fs02:/export/home"}, keys(got))
@@ -478,7 +479,7 @@ func TestSourceFileReplacedByRename(t *testing.T) {
 
 	t.Run("at once with WithCheckEvery(1)", func(t *testing.T) {
 		t.Parallel()
-		root, path := procRoot(t, readFixture(t, "v3"))
+		root, path := procRoot(t, fixture.Read(t, "nfs", "v3", "mountstats"))
 		src := nfs.NewSource(root, (&clock{t: t0}).now).WithCheckEvery(1)
 		defer src.Close()
 		_, err := src.Read(ctx)
@@ -494,7 +495,7 @@ func TestSourceFileReplacedByRename(t *testing.T) {
 		require.ErrorIs(t, err, source.ErrNoData)
 
 		// And back.
-		require.NoError(t, os.WriteFile(path, readFixture(t, "v3"), 0o644))
+		require.NoError(t, os.WriteFile(path, fixture.Read(t, "nfs", "v3", "mountstats"), 0o644))
 		got, err = src.Read(ctx)
 		require.NoError(t, err)
 		require.Equal(t, []string{"nfs:fs02:/export/home"}, keys(got))
@@ -504,7 +505,7 @@ func TestSourceFileReplacedByRename(t *testing.T) {
 func TestSourceLargeFile(t *testing.T) {
 	t.Parallel()
 	// More than the initial buffer: 60 NFSv4 mounts of different exports.
-	one := string(readFixture(t, "mixed"))
+	one := string(fixture.Read(t, "nfs", "mixed", "mountstats"))
 	var b strings.Builder
 	for i := range 60 {
 		b.WriteString(strings.ReplaceAll(one, "fs01:/export/proj", "fs01:/export/p"+strconv.Itoa(i)))
@@ -533,14 +534,14 @@ func TestSourceCanceled(t *testing.T) {
 	t.Parallel()
 	ctx, cancel := context.WithCancel(context.Background())
 	cancel()
-	src, _ := newSource(t, readFixture(t, "v3"), &clock{t: t0})
+	src, _ := newSource(t, fixture.Read(t, "nfs", "v3", "mountstats"), &clock{t: t0})
 	_, err := src.Read(ctx)
 	require.ErrorIs(t, err, context.Canceled)
 }
 
 func TestSourceNilClock(t *testing.T) {
 	t.Parallel()
-	root, _ := procRoot(t, readFixture(t, "v3"))
+	root, _ := procRoot(t, fixture.Read(t, "nfs", "v3", "mountstats"))
 	src := nfs.NewSource(root, nil)
 	defer src.Close()
 	got, err := src.Read(context.Background())

@@ -7,6 +7,7 @@ import (
 
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/mapping"
 	"sluice/pkg/metric"
 	"sluice/pkg/source/internal/sourcetest"
@@ -24,10 +25,11 @@ func TestSumsEqualMappedCounters(t *testing.T) {
 	extra["nfs"]["events.fsync"] = metric.Syncs
 	extra["nfs"]["op.NO_SUCH_OP"] = metric.OtherOps
 	extra["nfs"]["bytes.server_read"] = metric.OtherOps
-	cases, err := os.ReadDir(testdata)
+	fixtures := fixture.Path(t, "nfs")
+	cases, err := os.ReadDir(fixtures)
 	require.NoError(t, err)
 	for _, c := range cases {
-		data, err := os.ReadFile(filepath.Join(testdata, c.Name(), "mountstats"))
+		data, err := os.ReadFile(filepath.Join(fixtures, c.Name(), "mountstats"))
 		if err != nil {
 			continue
 		}
@@ -46,7 +48,7 @@ func TestSumsEqualMappedCounters(t *testing.T) {
 // must never change a sum.
 func TestSumsEqualMappedCountersOverReads(t *testing.T) {
 	t.Parallel()
-	files := sourcetest.ForthAndBack(sourcetest.Fixtures(t, filepath.Join(testdata, "*", "mountstats")))
+	files := sourcetest.ForthAndBack(sourcetest.Fixtures(t, filepath.Join(fixture.Path(t, "nfs"), "*", "mountstats")))
 	root, path := procRoot(t, files[0])
 	table := mapping.Default()
 	plain, summing := nfs.NewSource(root, nil).WithCheckEvery(1), nfs.NewSource(root, nil).WithCheckEvery(1)
