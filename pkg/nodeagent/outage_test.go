@@ -1,6 +1,7 @@
 package nodeagent_test
 
 import (
+	"bytes"
 	"context"
 	"net"
 	"net/url"
@@ -17,6 +18,7 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/bus"
 	"sluice/pkg/internal/natstest"
 	"sluice/pkg/nodeagent"
 	"sluice/pkg/report"
@@ -25,23 +27,30 @@ import (
 	"sluice/pkg/wire"
 )
 
-// collector records what reaches the broker, reconnecting quickly after a
-// restart so it is back before the agent is. Like the aggregator, it keeps
+// collector records what reaches the broker. Like the aggregator, it keeps
 // a sample sequence number the first time it arrives and counts repeats.
 type collector struct {
-	mu      sync.Mutex
-	seqs    []uint64
-	seen    map[uint64]bool
-	repeats int
-	dropped uint64
-	beats   int
+	nc         *nats.Conn
+	mu         sync.Mutex
+	seqs       []uint64
+	seen       map[uint64]bool
+	repeats    int
+	dropped    uint64
+	beats      int
+	reconnects int
 }
 
 func collect(t *testing.T, brokerURL string) *collector {
 	c := &collector{seen: map[uint64]bool{}}
-	nc, err := nats.Connect(brokerURL, nats.MaxReconnects(-1), nats.ReconnectWait(10*time.Millisecond))
+	nc, err := nats.Connect(brokerURL, nats.MaxReconnects(-1), nats.ReconnectWait(10*time.Millisecond),
+		nats.ReconnectHandler(func(*nats.Conn) {
+			c.mu.Lock()
+			defer c.mu.Unlock()
+			c.reconnects++
+		}))
 	require.NoError(t, err)
 	t.Cleanup(nc.Close)
+	c.nc = nc
 	_, err = nc.Subscribe("sluice.default.>", func(m *nats.Msg) {
 		c.mu.Lock()
 		defer c.mu.Unlock()
@@ -75,6 +84,19 @@ func (c *collector) snapshot() ([]uint64, uint64) {
 	return append([]uint64(nil), c.seqs...), c.dropped
 }
 
+// resubscribed waits until the collector is back on a restarted broker
+// and the broker has taken its subscription: the client sends its
+// subscriptions again before it reports the reconnect, and the broker
+// answers a flush only after what was sent before it.
+func (c *collector) resubscribed(t *testing.T) {
+	require.Eventually(t, func() bool {
+		c.mu.Lock()
+		defer c.mu.Unlock()
+		return c.reconnects > 0
+	}, 20*time.Second, 10*time.Millisecond, "the collector reconnects to the restarted broker")
+	require.NoError(t, c.nc.Flush())
+}
+
 // persistedSeq is the agent's last sample sequence number, from its state.
 func persistedSeq(state string) uint64 {
 	b, _ := os.ReadFile(filepath.Join(state, "sequence"))
@@ -105,21 +127,44 @@ func runAgent(t *testing.T, brokerURL string, queueLimit int) string {
 // runOutage runs an agent, stops the broker for `outage` samples, starts it
 // again on the same address and returns every sequence number received
 // once the agent has caught up, and the last dropped count reported.
+//
+// The agent reaches the broker through a proxy, so that the outage has
+// exact edges: what the agent sent either reached the collector or is
+// still in the agent's queue. The agent is cut off just as it sends a
+// heartbeat, which it sends only after the broker has confirmed every
+// sample sent before (a sample cut off between its delivery and the
+// confirmation would stay queued, be dropped and yet have arrived), and
+// before the broker stops. It is let back only once the collector is
+// subscribed on the new broker (a sample the broker takes before that
+// reaches no one, yet leaves the agent's queue as delivered).
 func runOutage(t *testing.T, queueLimit int, outage uint64) ([]uint64, uint64, uint64) {
 	srv := natstest.Start(t)
 	u, err := url.Parse(srv.URL())
 	require.NoError(t, err)
 	c := collect(t, srv.URL())
-	state := runAgent(t, srv.URL(), queueLimit)
+	px := startProxy(t, u.Host)
+	state := runAgent(t, px.url(), queueLimit)
 
 	waitFor := func(cond func() bool, what string) {
 		require.Eventually(t, cond, 20*time.Second, 10*time.Millisecond, what)
 	}
 	waitFor(func() bool { s, _ := c.snapshot(); return len(s) >= 3 }, "first samples")
+	beat := []byte(bus.Subjects{Prefix: bus.DefaultPrefix, Cluster: bus.DefaultCluster}.Beat("bw007") + " ")
+	select {
+	case <-px.cutAt(beat):
+	case <-time.After(20 * time.Second):
+		require.FailNow(t, "the agent sent no heartbeat to be cut off at")
+	}
+	// The broker answers this flush after it has handed the collector
+	// every sample it confirmed to the agent, so none is lost in the
+	// shutdown.
+	require.NoError(t, c.nc.Flush())
 	srv.Shutdown()
 	down := persistedSeq(state)
 	waitFor(func() bool { return persistedSeq(state) >= down+outage }, "samples taken while the broker is down")
 	natstest.StartAt(t, u.Host)
+	c.resubscribed(t)
+	px.reopen()
 	last := persistedSeq(state)
 	waitFor(func() bool { s, _ := c.snapshot(); return len(s) > 0 && s[len(s)-1] > last }, "catching up after the restart")
 	c.mu.Lock()
@@ -185,11 +230,18 @@ func TestConnectionThatStopsAnsweringLosesNothing(t *testing.T) {
 
 // proxy forwards TCP connections to a target and can freeze: while frozen
 // it drops every byte both ways but closes nothing, so neither end learns
-// that the other has stopped answering.
+// that the other has stopped answering. It can also cut its client off at
+// a given point of what the client sends, and then refuse connections
+// until it reopens.
 type proxy struct {
 	ln     net.Listener
 	target string
 	frozen atomic.Bool
+
+	mu       sync.Mutex
+	marker   []byte        // cut at the first read from the client holding it
+	cut      chan struct{} // closed when the cut is made
+	refusing bool
 }
 
 func startProxy(t *testing.T, target string) *proxy {
@@ -203,28 +255,73 @@ func startProxy(t *testing.T, target string) *proxy {
 
 func (p *proxy) url() string    { return "nats://" + p.ln.Addr().String() }
 func (p *proxy) freeze(on bool) { p.frozen.Store(on) }
+
+// cutAt makes the proxy close the client's connection at the first read
+// from it that holds marker, without forwarding that read, and refuse
+// connections from then on until reopen. The channel is closed once the
+// cut is made.
+func (p *proxy) cutAt(marker []byte) <-chan struct{} {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	p.marker, p.cut = marker, make(chan struct{})
+	return p.cut
+}
+
+// reopen lets connections through again.
+func (p *proxy) reopen() {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	p.refusing = false
+}
+
+func (p *proxy) isRefusing() bool {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	return p.refusing
+}
+
+// cutting reports whether the client is to be cut off at data, and if so
+// makes the cut known and starts refusing.
+func (p *proxy) cutting(data []byte) bool {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	if p.marker == nil || !bytes.Contains(data, p.marker) {
+		return false
+	}
+	p.marker, p.refusing = nil, true
+	close(p.cut)
+	return true
+}
+
 func (p *proxy) serve() {
 	for {
 		client, err := p.ln.Accept()
 		if err != nil {
 			return
 		}
+		if p.isRefusing() {
+			client.Close()
+			continue
+		}
 		server, err := net.Dial("tcp", p.target)
 		if err != nil {
 			client.Close()
 			continue
 		}
-		go p.pump(server, client)
-		go p.pump(client, server)
+		go p.pump(server, client, true)
+		go p.pump(client, server, false)
 	}
 }
 
 // pump copies src to dst, dropping what it reads while frozen, and closes
-// both when either fails.
-func (p *proxy) pump(dst, src net.Conn) {
+// both when either fails or, from the client (fromClient), when a read
+// holds the marker to cut at. The marker is looked for in each read with
+// the end of the one before, in case it is split between the two.
+func (p *proxy) pump(dst, src net.Conn, fromClient bool) {
 	defer dst.Close()
 	defer src.Close()
 	buf := make([]byte, 32<<10)
+	var prev []byte
 	for {
 		n, err := src.Read(buf)
 		if err != nil {
@@ -232,6 +329,13 @@ func (p *proxy) pump(dst, src net.Conn) {
 		}
 		if p.frozen.Load() {
 			continue
+		}
+		if fromClient {
+			seen := append(prev, buf[:n]...)
+			if p.cutting(seen) {
+				return
+			}
+			prev = bytes.Clone(seen[max(0, len(seen)-64):])
 		}
 		if _, err := dst.Write(buf[:n]); err != nil {
 			return
