@@ -2,58 +2,45 @@ package main
 
 import (
 	"context"
-	"encoding/json"
-	"errors"
-	"flag"
 	"fmt"
 	"io"
-	"net/http"
 	"os"
 	"strings"
 	"text/tabwriter"
-	"time"
 
-	"github.com/schollz/progressbar/v3"
-
-	"sluice/pkg/aggregate"
+	"sluice/pkg/api"
+	"sluice/pkg/baseline"
+	"sluice/pkg/progress"
 )
 
-const baselineUsage = `usage: aggregator baseline <import FILE | show | export> [flags]
+const baselineUsage = `usage: aggregator baseline <import FILE | show | export> [options]
 
   import FILE  send a window-value CSV file to the running aggregator; each day
                in it replaces that day's earlier import (live windows stay)
-  show         print each metric's cut points in force, their source and counts
-  export       write every stored day as window-value CSV (stdout or --out)
+  show         each metric's cut points in force, their basis and counts
+  export       every stored day as window-value CSV (stdout or --out)
+
+Run "aggregator baseline <subcommand> -h" for its options.
 `
 
 func baselineCmd(ctx context.Context, args []string, stdout, stderr io.Writer) error {
-	if len(args) == 0 {
-		fmt.Fprint(stderr, baselineUsage)
-		return errors.New("baseline: no subcommand given")
-	}
-	switch args[0] {
-	case "import":
-		return baselineImport(ctx, args[1:], stdout, stderr)
-	case "show":
-		return baselineShow(ctx, args[1:], stdout)
-	case "export":
-		return baselineExport(ctx, args[1:], stdout)
-	case "-h", "--help", "help":
-		fmt.Fprint(stderr, baselineUsage)
-		return nil
-	}
-	fmt.Fprint(stderr, baselineUsage)
-	return fmt.Errorf("baseline: unknown subcommand %q", args[0])
+	return group{name: "baseline", usage: baselineUsage, subs: map[string]func([]string) error{
+		"import": func(a []string) error { return baselineImport(ctx, a, stdout, stderr) },
+		"show":   func(a []string) error { return baselineShow(ctx, a, stdout) },
+		"export": func(a []string) error { return baselineExport(ctx, a, stdout) },
+	}}.run(args, stdout)
 }
 
 func baselineImport(ctx context.Context, args []string, stdout, stderr io.Writer) error {
-	fs := flag.NewFlagSet("aggregator baseline import", flag.ContinueOnError)
-	url := urlFlag(fs)
-	quiet := fs.Bool("quiet", false, "no progress bar")
-	path, err := parseWithFile(fs, args)
+	c := newCommand("baseline import", "FILE", "Send a window-value CSV file (layout: pkg/windowcsv) to the running aggregator; each day in it replaces that day's earlier import.", stdout)
+	client := c.client()
+	quiet := c.fs.Bool("quiet", false, "no progress report")
+	asJSON := c.jsonOption()
+	pos, err := c.parse(args, 1)
 	if err != nil {
-		return fmt.Errorf("baseline import: %w", err)
+		return err
 	}
+	path := pos[0]
 	f, err := os.Open(path)
 	if err != nil {
 		return fmt.Errorf("baseline import: %w", err)
@@ -64,34 +51,26 @@ func baselineImport(ctx context.Context, args []string, stdout, stderr io.Writer
 		return fmt.Errorf("baseline import: %w", err)
 	}
 	var body io.Reader = f
+	var meter *progress.Meter
 	if !*quiet {
-		bar := progressbar.NewOptions64(fi.Size(),
-			progressbar.OptionSetDescription("importing "+path),
-			progressbar.OptionSetWriter(stderr),
-			progressbar.OptionShowBytes(true),
-			progressbar.OptionShowTotalBytes(true),
-			progressbar.OptionSetPredictTime(true),
-			progressbar.OptionThrottle(100*time.Millisecond),
-			progressbar.OptionOnCompletion(func() { fmt.Fprintln(stderr) }),
-		)
-		r := progressbar.NewReader(f, bar)
-		body = &r
+		meter = progress.New(stderr, "importing "+path, fi.Size(), progress.IsTerminal(stderr), nil)
+		body = meter.Reader(f)
 	}
-	req, err := http.NewRequestWithContext(ctx, http.MethodPost, strings.TrimRight(*url, "/")+"/api/v1/baseline/import", body)
+	res, err := client().ImportBaseline(ctx, body, fi.Size())
+	if meter != nil {
+		meter.Done()
+	}
 	if err != nil {
-		return err
-	}
-	req.ContentLength = fi.Size()
-	req.Header.Set("Content-Type", "text/csv")
-	var res aggregate.ImportResult
-	if err := do(req, *url, &res); err != nil {
 		return fmt.Errorf("baseline import %s: %w", path, err)
+	}
+	if *asJSON {
+		return printJSON(stdout, res)
 	}
 	printImport(stdout, path, res)
 	return nil
 }
 
-func printImport(w io.Writer, path string, res aggregate.ImportResult) {
+func printImport(w io.Writer, path string, res api.ImportResult) {
 	fmt.Fprintf(w, "%s: %d rows (%d windows) imported into %d days", path, res.Rows, res.Windows, len(res.Days))
 	if n := len(res.Days); n > 0 {
 		fmt.Fprintf(w, " (%s to %s)", res.Days[0], res.Days[n-1])
@@ -100,7 +79,7 @@ func printImport(w io.Writer, path string, res aggregate.ImportResult) {
 	if res.Malformed > 0 {
 		fmt.Fprintf(w, "%d malformed rows skipped:\n", res.Malformed)
 		for _, e := range res.Errors {
-			fmt.Fprintln(w, "  "+e)
+			fmt.Fprintln(w, "  "+clean(e))
 		}
 		if res.Malformed > len(res.Errors) {
 			fmt.Fprintf(w, "  ... and %d more\n", res.Malformed-len(res.Errors))
@@ -112,35 +91,35 @@ func printImport(w io.Writer, path string, res aggregate.ImportResult) {
 }
 
 func baselineShow(ctx context.Context, args []string, stdout io.Writer) error {
-	fs := flag.NewFlagSet("aggregator baseline show", flag.ContinueOnError)
-	url := urlFlag(fs)
-	if err := parse(fs, args); err != nil {
+	c := newCommand("baseline show", "", "Each metric's cut points in force, what they rest on (seed or learned), the windows behind them, and the days held.", stdout)
+	client := c.client()
+	asJSON := c.jsonOption()
+	if _, err := c.parse(args, 0); err != nil {
 		return err
 	}
-	req, err := http.NewRequestWithContext(ctx, http.MethodGet, strings.TrimRight(*url, "/")+"/api/v1/baseline", nil)
+	b, err := client().Baseline(ctx)
 	if err != nil {
-		return err
-	}
-	var b aggregate.Baseline
-	if err := do(req, *url, &b); err != nil {
 		return fmt.Errorf("baseline show: %w", err)
+	}
+	if *asJSON {
+		return printJSON(stdout, b)
 	}
 	printBaseline(stdout, b)
 	return nil
 }
 
-// printBaseline writes one row per metric: where its cuts come from, the
-// cut points (per node, per second) and the windows behind them, then the
+// printBaseline writes one row per metric: what its cuts rest on, the cut
+// points (per node, per second) and the windows behind them, then the
 // days the baseline holds.
-func printBaseline(w io.Writer, b aggregate.Baseline) {
+func printBaseline(w io.Writer, b api.Baseline) {
 	q := b.Quantiles
-	fmt.Fprintf(w, "horizon %d days, learned after %d non-idle windows; grades cut at p%g p%g p%g, levels at p%g (elevated) p%g (critical)\n\n",
-		b.HorizonDays, b.MinWindows, 100*q[0], 100*q[1], 100*q[2], 100*q[3], 100*q[4])
+	fmt.Fprintf(w, "horizon %d days, learned after %d non-idle windows; grades cut at p%g p%g p%g, levels at p%g (elevated) p%g (critical); recomputed %s\n\n",
+		b.HorizonDays, b.MinWindows, 100*q[0], 100*q[1], 100*q[2], 100*q[3], 100*q[4], stamp(b.Recomputed))
 	tw := tabwriter.NewWriter(w, 0, 4, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintln(tw, "METRIC\tSOURCE\tELEVATED\tCRITICAL\tGRADE CUTS (1|2|3|4)\tWINDOWS\tIDLE\t")
+	fmt.Fprintln(tw, "METRIC\tBASIS\tELEVATED\tCRITICAL\tGRADE CUTS (1|2|3|4)\tWINDOWS\tIDLE\t")
 	for _, m := range b.Metrics {
 		g := m.Grades
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s | %s | %s\t%d\t%d\t\n", m.Metric, m.Source,
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s | %s | %s\t%d\t%d\t\n", m.Metric, m.Basis,
 			human(m.Elevated, m.Bytes), human(m.Critical, m.Bytes),
 			human(g[0], m.Bytes), human(g[1], m.Bytes), human(g[2], m.Bytes), m.Windows, m.Idle)
 	}
@@ -163,26 +142,13 @@ func printBaseline(w io.Writer, b aggregate.Baseline) {
 }
 
 func baselineExport(ctx context.Context, args []string, stdout io.Writer) error {
-	fs := flag.NewFlagSet("aggregator baseline export", flag.ContinueOnError)
-	url := urlFlag(fs)
-	out := fs.String("out", "", "file to write; empty writes to standard output")
-	origin := fs.String("origin", "", `"live" or "import" for one origin only; empty merges both per day`)
-	if err := parse(fs, args); err != nil {
+	c := newCommand("baseline export", "", "Every stored day as window-value CSV, one row per sketch bin, so that an export imported elsewhere gives the same cut points.", stdout)
+	client := c.client()
+	out := c.fs.String("out", "", "file to write; empty writes to standard output")
+	origin := c.fs.String("origin", "", `"live" or "import" for one origin only; empty merges both per day`)
+	if _, err := c.parse(args, 0); err != nil {
 		return err
 	}
-	u := strings.TrimRight(*url, "/") + "/api/v1/baseline/export"
-	if *origin != "" {
-		u += "?origin=" + *origin
-	}
-	req, err := http.NewRequestWithContext(ctx, http.MethodGet, u, nil)
-	if err != nil {
-		return err
-	}
-	resp, err := send(req, *url)
-	if err != nil {
-		return fmt.Errorf("baseline export: %w", err)
-	}
-	defer resp.Body.Close()
 	w := stdout
 	if *out != "" {
 		f, err := os.Create(*out)
@@ -192,51 +158,8 @@ func baselineExport(ctx context.Context, args []string, stdout io.Writer) error 
 		defer f.Close()
 		w = f
 	}
-	if _, err := io.Copy(w, resp.Body); err != nil {
+	if err := client().ExportBaseline(ctx, baseline.Origin(*origin), w); err != nil {
 		return fmt.Errorf("baseline export: %w", err)
-	}
-	return nil
-}
-
-// parseWithFile parses flags given before or after one FILE argument.
-func parseWithFile(fs *flag.FlagSet, args []string) (string, error) {
-	if err := fs.Parse(args); err != nil {
-		return "", err
-	}
-	if fs.NArg() == 0 {
-		return "", errors.New("give exactly one FILE")
-	}
-	file := fs.Arg(0)
-	if err := parse(fs, fs.Args()[1:]); err != nil {
-		return "", err
-	}
-	return file, nil
-}
-
-// send does req against the aggregator at base and returns the response
-// when it is 200 OK.
-func send(req *http.Request, base string) (*http.Response, error) {
-	resp, err := http.DefaultClient.Do(req)
-	if err != nil {
-		return nil, fmt.Errorf("ask the aggregator at %s: %w (is it running? set --url)", base, err)
-	}
-	if resp.StatusCode != http.StatusOK {
-		defer resp.Body.Close()
-		body, _ := io.ReadAll(io.LimitReader(resp.Body, 4096))
-		return nil, fmt.Errorf("aggregator at %s answered %s: %s", base, resp.Status, strings.TrimSpace(string(body)))
-	}
-	return resp, nil
-}
-
-// do sends req and decodes the JSON answer into v.
-func do(req *http.Request, base string, v any) error {
-	resp, err := send(req, base)
-	if err != nil {
-		return err
-	}
-	defer resp.Body.Close()
-	if err := json.NewDecoder(resp.Body).Decode(v); err != nil {
-		return fmt.Errorf("decode the answer of %s: %w", base, err)
 	}
 	return nil
 }

@@ -3,7 +3,6 @@ package main
 import (
 	"context"
 	"errors"
-	"flag"
 	"fmt"
 	"io"
 	"net/http"
@@ -16,6 +15,7 @@ import (
 	"time"
 
 	"sluice/pkg/aggregate"
+	"sluice/pkg/api"
 	"sluice/pkg/coding"
 	"sluice/pkg/model"
 	"sluice/pkg/sim"
@@ -27,12 +27,12 @@ import (
 // per simulated node, and the simulator writing the nodes' Lustre stats
 // files, in compressed time.
 func demo(ctx context.Context, args []string, stdout, stderr io.Writer) error {
-	fs := flag.NewFlagSet("aggregator demo", flag.ContinueOnError)
-	agentBin := fs.String("agent.bin", "", "path of the agent binary (default: 'agent' beside this binary)")
-	listen := fs.String("web.listen", "127.0.0.1:9713", "HTTP address of the demo aggregator")
-	duration := fs.Duration("duration", 75*time.Second, "how long the demo runs")
-	keep := fs.Bool("keep", false, "keep the temporary directory (counter files, state file) afterwards")
-	if err := parse(fs, args); err != nil {
+	c := newCommand("demo", "", "Run the whole system on this machine: the aggregator, one real agent per simulated node of an invented centre, the scheduler hooks, in compressed time.", stdout)
+	agentBin := c.fs.String("agent.bin", "", "path of the agent binary (default: 'agent' beside this binary)")
+	listen := c.fs.String("web.listen", "127.0.0.1:9713", "HTTP address of the demo aggregator")
+	duration := c.fs.Duration("duration", 75*time.Second, "how long the demo runs")
+	keep := c.fs.Bool("keep", false, "keep the temporary directory (counter files, state file) afterwards")
+	if _, err := c.parse(args, 0); err != nil {
 		return err
 	}
 	bin, err := findAgent(*agentBin)
@@ -264,7 +264,7 @@ func (d *demoRun) showMetrics(ctx context.Context) {
 	d.mu.Lock()
 	fmt.Fprintln(d.out, "         running jobs (aggregator jobs):")
 	d.mu.Unlock()
-	if list, err := fetchJobs(ctx, d.url); err == nil {
+	if list, err := api.NewClient(d.url).Jobs(ctx, false); err == nil {
 		d.indented(list)
 	}
 }
@@ -283,7 +283,7 @@ func (d *demoRun) indented(list []model.Summary) {
 }
 
 func (d *demoRun) table() {
-	list, err := fetchJobs(context.Background(), d.url)
+	list, err := api.NewClient(d.url).Jobs(context.Background(), false)
 	if err != nil {
 		d.printf("jobs: %v", err)
 		return

@@ -28,7 +28,7 @@ func TestDemoFlagsTheMetadataStorm(t *testing.T) {
 	require.NoError(t, err, "stderr: %s", stderr.String())
 	text := stdout.String()
 	assert.Regexp(t, regexp.MustCompile(`FLAG\s+job 81234 \(quill-index, user dorvane, 4 nodes\): creates [0-9.]+k/s per node > critical cut 1k/s, since \d\d:\d\d:\d\d`), text)
-	assert.Regexp(t, `sluice_job_flag_active\{job_id="81234",name="quill-index",pattern="",reason="critical:creates",severity="warning",summary="creates above the critical cut on \d nodes",user="dorvane"\} 1`, text)
+	assert.Regexp(t, `sluice_job_flag_active\{job_id="81234",name="quill-index",pattern="",reason="high_rate:creates",severity="warning",user="dorvane"\} 1`, text)
 	assert.Regexp(t, `sluice_job_flag_active\{job_id="81234",name="quill-index",pattern="metadata_storm",reason="pattern:metadata_storm",severity="critical",`, text)
 	assert.NotContains(t, text, "FLAG   job 81230", "the healthy streaming job is not flagged")
 	assert.NotContains(t, text, "FLAG   job 81231", "the quiet job is not flagged")

@@ -1,7 +1,6 @@
 package main
 
 import (
-	"flag"
 	"fmt"
 	"io"
 	"maps"
@@ -21,17 +20,17 @@ import (
 // against the targets. It exits 0 whatever the figures: the test in
 // pkg/eval is what fails.
 func evalCmd(args []string, stdout io.Writer) error {
-	fs := flag.NewFlagSet("aggregator eval", flag.ContinueOnError)
-	jobs := fs.Int("jobs", 1000, "labelled jobs to generate")
-	seed := fs.Uint64("seed", 1, "seed of the scenarios (the same seed gives the same jobs)")
-	dir := fs.String("patterns", "", "directory of site patterns merged over the built-ins (default: built-ins only)")
-	cuts := fs.Bool("cuts", false, "also print the cut points learned from the ordinary jobs")
-	list := fs.Bool("list", false, "also list every job whose flags disagree with its label")
-	if err := parse(fs, args); err != nil {
+	c := newCommand("eval", "", "Measure the pattern library on labelled simulated jobs: recall, precision, false flags and detection delay per pattern.", stdout)
+	jobs := c.fs.Int("jobs", 1000, "labelled jobs to generate")
+	seed := c.fs.Uint64("seed", 1, "seed of the scenarios (the same seed gives the same jobs)")
+	dir := c.fs.String("patterns", "", "directory of site patterns merged over the built-ins (default: built-ins only)")
+	cuts := c.fs.Bool("cuts", false, "also print the cut points learned from the ordinary jobs")
+	list := c.fs.Bool("list", false, "also list every job whose flags disagree with its label")
+	if _, err := c.parse(args, 0); err != nil {
 		return err
 	}
 	if *jobs < 1 {
-		return fmt.Errorf("eval: --jobs %d: want at least 1", *jobs)
+		return c.usage(fmt.Errorf("--jobs %d: want at least 1", *jobs))
 	}
 	ps, err := pattern.Builtin()
 	if err != nil {

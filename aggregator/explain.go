@@ -1,129 +1,147 @@
 package main
 
 import (
-	"cmp"
 	"context"
-	"flag"
 	"fmt"
 	"io"
-	"net/http"
-	"slices"
 	"strings"
 
-	"sluice/pkg/coding"
+	"sluice/pkg/api"
+	"sluice/pkg/matcher"
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
-	"sluice/pkg/pattern"
 )
 
-// explain prints, for every pattern the job matched lately, the job's
-// recent windows beside the pattern: for an example, the grades side by
-// side with a mark under each window ('=' the same, '~' one grade apart,
-// '^' further); for a rule, each condition window by window ('+' held,
-// '.' did not) with the value it tested.
-func explain(ctx context.Context, args []string, stdout io.Writer) error {
-	fs := flag.NewFlagSet("aggregator explain", flag.ContinueOnError)
-	url := urlFlag(fs)
-	id, err := parseWithFile(fs, args)
+// explainCmd prints how each pattern's latest verdict on a job came about,
+// as the aggregator decided it: for a rule, each condition window by
+// window ('+' held, '.' did not) with the value it tested; for an example,
+// the job's grades beside the pattern's with a mark under each window ('='
+// the same, '~' one grade apart, '^' further).
+func explainCmd(ctx context.Context, args []string, stdout io.Writer) error {
+	c := newCommand("explain", "JOB", "How each pattern's latest verdict on the job came about, as the aggregator decided it.", stdout)
+	client := c.client()
+	all := c.fs.Bool("all", false, "every pattern, not only those that flagged, matched or scored")
+	asJSON := c.jsonOption()
+	pos, err := c.parse(args, 1)
 	if err != nil {
-		return fmt.Errorf("explain: %w (give a JOB id)", err)
+		return err
 	}
-	d, err := fetchJob(ctx, *url, id)
+	x, err := client().Explain(ctx, pos[0])
 	if err != nil {
 		return fmt.Errorf("explain: %w", err)
 	}
-	var lib struct {
-		Patterns []struct {
-			Name, File string
-		} `json:"patterns"`
+	if *asJSON {
+		return printJSON(stdout, x)
 	}
-	if err := call(ctx, http.MethodGet, *url, "/api/v1/patterns", nil, &lib); err != nil {
-		return fmt.Errorf("explain: %w", err)
-	}
-	job := d.Summary
-	fmt.Fprintf(stdout, "job %s (%s, user %s): %s, %d closed windows, %d nodes\n", job.ID, dash(job.Name), dash(job.User), job.State, len(d.ClosedWindows), max(len(job.Nodes), job.NodesSeen))
-	names := matchedPatterns(job)
-	if len(names) == 0 {
-		fmt.Fprintln(stdout, "no pattern matched this job lately; its signature:")
-		printSignature(stdout, job)
-		return nil
-	}
-	for _, name := range names {
-		i := slices.IndexFunc(lib.Patterns, func(p struct{ Name, File string }) bool { return p.Name == name })
-		if i < 0 {
-			continue
-		}
-		p, err := pattern.Parse(name, strings.NewReader(lib.Patterns[i].File))
-		if err != nil {
-			return fmt.Errorf("explain: pattern %s: %w", name, err)
-		}
-		fmt.Fprintln(stdout)
-		explainPattern(stdout, p, job, d.ClosedWindows)
-	}
+	printExplanation(stdout, x, *all)
 	return nil
 }
 
-// matchedPatterns lists the patterns with an active flag, then those with
-// a score, highest score first.
-func matchedPatterns(j model.Summary) []string {
-	var names []string
-	for _, f := range j.ActiveFlags {
-		if f.Pattern != "" {
-			names = append(names, f.Pattern)
+func printExplanation(w io.Writer, x api.Explanation, all bool) {
+	j := x.Job
+	fmt.Fprintf(w, "job %s (%s, user %s): %s, %d closed windows, %d nodes\n",
+		dash(j.ID), dash(j.Name), dash(j.User), j.State, x.ClosedWindows, max(len(j.Nodes), j.NodesSeen))
+	shown := 0
+	for _, p := range x.Patterns {
+		if !all && p.Flag == nil && !p.Matched && p.Score == 0 {
+			continue
 		}
+		fmt.Fprintln(w)
+		printPattern(w, p)
+		shown++
 	}
-	var scored []string
-	for name := range j.PatternScores {
-		if !slices.Contains(names, name) {
-			scored = append(scored, name)
-		}
+	if shown == 0 {
+		fmt.Fprintln(w, "no pattern has matched or scored on this job; its signature:")
+		printSignature(w, j)
 	}
-	slices.SortFunc(scored, func(a, b string) int {
-		return cmp.Or(cmp.Compare(j.PatternScores[b], j.PatternScores[a]), strings.Compare(a, b))
-	})
-	return append(names, scored...)
 }
 
-func explainPattern(w io.Writer, p *pattern.Pattern, j model.Summary, ws []model.Window) {
-	state := "no flag"
-	for _, f := range j.ActiveFlags {
-		if f.Pattern == p.Name {
-			state = fmt.Sprintf("FLAGGED since %s", f.Since.Local().Format("15:04"))
-		}
+func printPattern(w io.Writer, p api.PatternExplanation) {
+	verdict := "not matched"
+	if p.Matched {
+		verdict = "matched"
 	}
-	fmt.Fprintf(w, "%s — %s (%s, score %.2f, %s)\n", p.Name, p.Title, p.Severity, j.PatternScores[p.Name], state)
-	if p.Rule != nil {
-		explainRule(w, p.Rule, j, ws)
-	} else {
-		explainExample(w, p.Example, ws)
+	if p.Open {
+		verdict += ", counting the window still open"
+	}
+	state := "no flag"
+	if f := p.Flag; f != nil {
+		state = fmt.Sprintf("FLAGGED since %s (flag %s, %s)", stamp(f.Since), f.ID, f.State)
+	}
+	fmt.Fprintf(w, "%s — %s (%s): score %.2f, %s; %s\n", p.Pattern, p.Title, p.Severity, p.Score, verdict, state)
+	switch {
+	case p.Rule != nil:
+		printRule(w, p.Rule)
+	case p.Example != nil:
+		printExample(w, p.Example, p.Threshold)
 	}
 	fmt.Fprintf(w, "  advice: %s\n", strings.Join(strings.Fields(p.Advice), " "))
 }
 
-func explainExample(w io.Writer, ex *pattern.Example, ws []model.Window) {
-	m := ex.Len()
-	last := ws[max(0, len(ws)-m):]
-	fmt.Fprintf(w, "  %s over the job's last %d windows against the pattern's %d:\n", ex.Method, len(last), m)
-	for i, id := range ex.Metrics {
-		var job, marks strings.Builder
-		pat := ex.Grades[i]
-		for k := range m {
-			jk := len(last) - m + k
-			if jk < 0 {
-				job.WriteByte(' ')
-				marks.WriteByte(' ')
-				continue
-			}
-			g := last[jk].Grades[id]
-			job.WriteByte(g.Byte())
-			marks.WriteByte(mark(g, pat[k]))
+func printRule(w io.Writer, r *matcher.RuleExplanation) {
+	fmt.Fprintf(w, "  rule: %d of the last %d windows must hold", r.K, r.N)
+	if r.MinNodes > 1 {
+		fmt.Fprintf(w, " (jobs of %d nodes or more)", r.MinNodes)
+	}
+	fmt.Fprintln(w, "; '+' held, '.' did not")
+	head := make([]string, len(r.Columns))
+	for i, col := range r.Columns {
+		head[i] = fmt.Sprintf("w%d", col.Window)
+		if col.Open {
+			head[i] = fmt.Sprintf("w%d open", col.Window)
 		}
-		fmt.Fprintf(w, "    %-12s job %s  pattern %s  %s\n", id, job.String(), coding.FormatGrades(pat), marks.String())
+	}
+	fmt.Fprintf(w, "    %-34s %s\n", "", cells(head))
+	for _, row := range r.Conditions {
+		cs := make([]string, len(row.Cells))
+		for i, cl := range row.Cells {
+			mark := '.'
+			if cl.Held {
+				mark = '+'
+			}
+			cs[i] = fmt.Sprintf("%c %s", mark, cl.Value)
+			if cl.Bound != "" {
+				cs[i] += " " + cl.Bound
+			}
+		}
+		label := row.Condition
+		if row.Any {
+			label = "any: " + label
+		}
+		fmt.Fprintf(w, "    %-34s %s\n", label, cells(cs))
+	}
+	held := make([]string, len(r.Columns))
+	for i, col := range r.Columns {
+		held[i] = "-"
+		if col.Held {
+			held[i] = "HELD"
+		}
+	}
+	fmt.Fprintf(w, "    %-34s %s\n", "rule", cells(held))
+	fmt.Fprintf(w, "  held in %d of the last %d windows: score %d/%d\n", r.Held, r.N, r.Held, r.N)
+	if len(r.Columns) > 0 && r.Columns[len(r.Columns)-1].Open {
+		fmt.Fprintln(w, "  (the open window: \"at least\" tests on its counts so far over the whole window (low), \"at most\" tests on its rate so far (high))")
 	}
 }
 
-func mark(a, b coding.Grade) byte {
-	switch d := int(a) - int(b); {
+func printExample(w io.Writer, ex *matcher.ExampleExplanation, threshold float64) {
+	fmt.Fprintf(w, "  %s example (matches at score >= %.2f); the job's last %d windows beside the pattern's:\n", ex.Method, threshold, len(ex.Windows))
+	for _, row := range ex.Metrics {
+		marks := make([]byte, len(row.Pattern))
+		for k := range marks {
+			marks[k] = mark(row.Job[k], row.Pattern[k])
+		}
+		fmt.Fprintf(w, "    %-12s job %s  pattern %s  %s\n", row.Metric, row.Job, row.Pattern, marks)
+	}
+}
+
+// mark compares a job's grade digit with the pattern's: '=' the same, '~'
+// one apart, '^' further, ' ' where the job has no window.
+func mark(job, pat byte) byte {
+	if job == ' ' {
+		return ' '
+	}
+	switch d := int(job) - int(pat); {
 	case d == 0:
 		return '='
 	case d == 1 || d == -1:
@@ -132,69 +150,13 @@ func mark(a, b coding.Grade) byte {
 	return '^'
 }
 
-func explainRule(w io.Writer, r *pattern.Rule, j model.Summary, ws []model.Window) {
-	n := r.Hold.N
-	last := ws[max(0, len(ws)-n):]
-	views := make([]pattern.WindowView, 0, len(last)+1)
-	head := []string{}
-	for _, win := range last {
-		views = append(views, pattern.ViewOf(&win))
-		head = append(head, fmt.Sprintf("w%d", win.Index))
-	}
-	if j.State == "running" {
-		views = append(views, pattern.WindowView{Levels: j.LiveLevels, Grades: j.LiveGrades, Rates: j.Live, Nodes: max(len(j.Nodes), j.NodesSeen)})
-		head = append(head, "live")
-	}
-	fmt.Fprintf(w, "  rule: %d of the last %d windows must hold; '+' held, '.' did not\n", r.Hold.K, n)
-	fmt.Fprintf(w, "    %-34s %s\n", "", cells(head))
-	row := func(label string, c pattern.Condition) {
-		var cs []string
-		for _, v := range views {
-			m := '.'
-			if c.Holds(v) {
-				m = '+'
-			}
-			cs = append(cs, fmt.Sprintf("%c %s", m, value(c, v)))
-		}
-		fmt.Fprintf(w, "    %-34s %s\n", label+c.String(), cells(cs))
-	}
-	for _, c := range r.All {
-		row("", c)
-	}
-	for _, c := range r.Any {
-		row("any: ", c)
-	}
-	var held []string
-	for _, v := range views {
-		held = append(held, map[bool]string{true: "HELD", false: "-"}[r.Holds(v)])
-	}
-	fmt.Fprintf(w, "    %-34s %s\n", "rule", cells(held))
-}
-
 func cells(cs []string) string {
 	var b strings.Builder
 	for _, c := range cs {
-		fmt.Fprintf(&b, "%-12s", c)
+		fmt.Fprintf(&b, "%-14s", c)
 	}
 	return strings.TrimRight(b.String(), " ")
 }
-
-// value is what a condition looked at in a window, for the reader.
-func value(c pattern.Condition, v pattern.WindowView) string {
-	switch c.Op {
-	case pattern.LevelAtLeast, pattern.LevelAtMost:
-		return short(v.Levels[c.Metric])
-	case pattern.GradeAtLeast, pattern.GradeAtMost:
-		return "g" + v.Grades[c.Metric].String()
-	}
-	x, ok := c.Quantity.Value(v)
-	if !ok {
-		return "n/a"
-	}
-	return fmt.Sprintf("%.3g", x)
-}
-
-func short(l coding.Level) string { return l.String()[:4] }
 
 func printSignature(w io.Writer, j model.Summary) {
 	for _, id := range metric.All() {

@@ -1,196 +1,192 @@
 package main
 
 import (
-	"bytes"
 	"context"
-	"encoding/json"
-	"flag"
 	"fmt"
 	"io"
-	"net/http"
-	neturl "net/url"
-	"strings"
 	"text/tabwriter"
 	"time"
 
-	"sluice/pkg/aggregate"
+	"sluice/pkg/api"
 	"sluice/pkg/model"
 )
 
-const flagsUsage = `usage: aggregator flags [list | ack FLAG | silence | unsilence ID | silences] [flags]
+const flagsUsage = `usage: aggregator flags [list | ack FLAG | silence | unsilence ID | silences] [options]
 
-  list         active flags and those cleared in the last day (--all: every one)
+  list         active flags and those cleared in the last day (the default;
+               --all for every one; --job, --pattern, --state, --severity)
   ack FLAG     record that you have the flag in hand (--by, --why)
-  silence      keep a job's or a pattern's flags out of Prometheus for a time
-               (--job and/or --pattern, --for, --by, --why)
+  silence      keep a job's or a pattern's flags out of Prometheus for a
+               time (--job and/or --pattern, --for, --by, --why)
   unsilence ID end a silence early
   silences     the silences in force
+
+Run "aggregator flags <subcommand> -h" for its options.
 `
 
-func flagsCmd(ctx context.Context, args []string, stdout, stderr io.Writer) error {
-	sub := "list"
-	if len(args) > 0 && !strings.HasPrefix(args[0], "-") {
-		sub, args = args[0], args[1:]
-	}
-	switch sub {
-	case "list":
-		return flagsList(ctx, args, stdout)
-	case "ack":
-		return flagsAck(ctx, args, stdout)
-	case "silence":
-		return flagsSilence(ctx, args, stdout)
-	case "unsilence":
-		return flagsUnsilence(ctx, args, stdout)
-	case "silences":
-		return flagsSilences(ctx, args, stdout)
-	case "help":
-		fmt.Fprint(stderr, flagsUsage)
-		return nil
-	}
-	fmt.Fprint(stderr, flagsUsage)
-	return fmt.Errorf("flags: unknown subcommand %q", sub)
-}
-
-func urlFlag(fs *flag.FlagSet) *string {
-	return fs.String("url", "http://127.0.0.1:9713", "base URL of the running aggregator")
+func flagsCmd(ctx context.Context, args []string, stdout io.Writer) error {
+	return group{name: "flags", usage: flagsUsage, dflt: "list", subs: map[string]func([]string) error{
+		"list":      func(a []string) error { return flagsList(ctx, a, stdout) },
+		"ack":       func(a []string) error { return flagsAck(ctx, a, stdout) },
+		"silence":   func(a []string) error { return flagsSilence(ctx, a, stdout) },
+		"unsilence": func(a []string) error { return flagsUnsilence(ctx, a, stdout) },
+		"silences":  func(a []string) error { return flagsSilences(ctx, a, stdout) },
+	}}.run(args, stdout)
 }
 
 func flagsList(ctx context.Context, args []string, stdout io.Writer) error {
-	fs := flag.NewFlagSet("aggregator flags", flag.ContinueOnError)
-	url := urlFlag(fs)
-	all := fs.Bool("all", false, "every stored flag, not only active and recent ones")
-	if err := parse(fs, args); err != nil {
+	c := newCommand("flags list", "", "Active flags, and those cleared in the last day, most recently raised first.", stdout)
+	client := c.client()
+	all := c.fs.Bool("all", false, "every stored flag, not only active ones and those cleared in the last day")
+	job := c.fs.String("job", "", "only this job's flags")
+	pat := c.fs.String("pattern", "", `only this pattern's flags, or this reason's ("high_rate:creates")`)
+	state := c.fs.String("state", "", "only flags in this state: active, silenced or cleared")
+	sev := c.fs.String("severity", "", "only flags of this severity: info, warning or critical")
+	asJSON := c.jsonOption()
+	if _, err := c.parse(args, 0); err != nil {
 		return err
 	}
-	var out struct {
-		Flags []model.Flag `json:"flags"`
+	f := api.FlagFilter{Job: *job, Pattern: *pat}
+	if *state != "" {
+		st, err := model.ParseFlagState(*state)
+		if err != nil {
+			return c.usage(fmt.Errorf("--state: %w; want active, silenced or cleared", err))
+		}
+		f.State = &st
 	}
-	if err := call(ctx, http.MethodGet, *url, "/api/v1/flags", nil, &out); err != nil {
-		return fmt.Errorf("flags: %w", err)
+	if *sev != "" {
+		sv, err := model.ParseSeverity(*sev)
+		if err != nil {
+			return c.usage(fmt.Errorf("--severity: %w", err))
+		}
+		f.Severity = &sv
 	}
-	printFlags(stdout, out.Flags, *all, time.Now())
+	fs, err := client().Flags(ctx, f)
+	if err != nil {
+		return err
+	}
+	if !*all {
+		fs = recent(fs, time.Now())
+	}
+	if *asJSON {
+		return printJSON(stdout, map[string]any{"flags": fs})
+	}
+	printFlags(stdout, fs)
 	return nil
 }
 
-// printFlags writes one row per flag, active ones first.
-func printFlags(w io.Writer, fs []model.Flag, all bool, now time.Time) {
-	tw := tabwriter.NewWriter(w, 0, 4, 2, ' ', 0)
-	fmt.Fprintln(tw, "STATE\tJOB\tREASON\tSEVERITY\tSCORE\tSINCE\tSUMMARY\tFLAG")
-	for _, active := range []bool{true, false} {
-		for _, f := range fs {
-			if f.Active() != active || (!active && !all && now.Sub(f.Cleared) > 24*time.Hour) {
-				continue
-			}
-			fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%.2f\t%s\t%s\t%s\n", flagState(f), f.Job, f.Reason, f.Severity, f.Score,
-				f.Since.Local().Format("01-02 15:04"), f.Summary, f.ID)
+// recent keeps the flags not cleared, and those cleared in the last day.
+func recent(fs []model.Flag, now time.Time) []model.Flag {
+	out := fs[:0]
+	for _, f := range fs {
+		if f.Active() || now.Sub(f.Cleared) <= 24*time.Hour {
+			out = append(out, f)
 		}
 	}
+	return out
+}
+
+// printFlags writes one row per flag, as the server ordered them.
+func printFlags(w io.Writer, fs []model.Flag) {
+	tw := tabwriter.NewWriter(w, 0, 4, 2, ' ', 0)
+	fmt.Fprintln(tw, "FLAG\tSTATE\tJOB\tREASON\tSEVERITY\tSCORE\tSINCE\tSUMMARY")
+	for _, f := range fs {
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%.2f\t%s\t%s\n", dash(f.ID), flagState(f), dash(f.Job), f.Reason, f.Severity, f.Score,
+			stamp(f.Since), dash(f.Summary))
+	}
 	tw.Flush()
+	if len(fs) == 0 {
+		fmt.Fprintln(w, "(no flags)")
+	}
 }
 
 func flagState(f model.Flag) string {
-	s := "active"
-	switch {
-	case !f.Active():
-		s = "cleared " + f.Cleared.Local().Format("15:04")
-	case f.Silenced:
-		s = "silenced"
+	s := f.State.String()
+	if f.State == model.FlagCleared {
+		s += " " + stamp(f.Cleared)
 	}
 	if f.Ack != nil {
-		s += " (ack " + f.Ack.By + ")"
+		s += " (ack " + dash(f.Ack.By) + ")"
 	}
 	return s
 }
 
 func flagsAck(ctx context.Context, args []string, stdout io.Writer) error {
-	fs := flag.NewFlagSet("aggregator flags ack", flag.ContinueOnError)
-	url := urlFlag(fs)
-	by := fs.String("by", "", "who acknowledges (required)")
-	why := fs.String("why", "", "what is being done about it")
-	id, err := parseWithFile(fs, args)
+	c := newCommand("flags ack", "FLAG", "Record that you have a flag in hand (FLAG is the id aggregator flags lists). The flag stays exported.", stdout)
+	client := c.client()
+	var req api.AckRequest
+	c.fs.StringVar(&req.By, "by", "", "who acknowledges (required)")
+	c.fs.StringVar(&req.Why, "why", "", "what is being done about it")
+	pos, err := c.parse(args, 1)
 	if err != nil {
-		return fmt.Errorf("flags ack: %w (give the FLAG id from aggregator flags)", err)
+		return err
 	}
-	var a model.Ack
-	if err := call(ctx, http.MethodPost, *url, "/api/v1/flags/"+neturl.PathEscape(id)+"/ack", aggregate.AckRequest{By: *by, Why: *why}, &a); err != nil {
+	a, err := client().Acknowledge(ctx, pos[0], req)
+	if err != nil {
 		return fmt.Errorf("flags ack: %w", err)
 	}
-	fmt.Fprintf(stdout, "%s acknowledged by %s\n", a.Flag, a.By)
+	fmt.Fprintf(stdout, "flag %s acknowledged by %s at %s\n", a.Flag, dash(a.By), stamp(a.At))
 	return nil
 }
 
 func flagsSilence(ctx context.Context, args []string, stdout io.Writer) error {
-	fs := flag.NewFlagSet("aggregator flags silence", flag.ContinueOnError)
-	url := urlFlag(fs)
-	var req aggregate.SilenceRequest
-	fs.StringVar(&req.Job, "job", "", "silence this job's flags")
-	fs.StringVar(&req.Pattern, "pattern", "", `silence this pattern's flags (a name, or a reason such as "critical:creates")`)
-	fs.StringVar(&req.For, "for", "2h", "how long, e.g. 30m, 2h, 3d... as a Go duration (72h)")
-	fs.StringVar(&req.By, "by", "", "who silences (required)")
-	fs.StringVar(&req.Why, "why", "", "why (required)")
-	if err := parse(fs, args); err != nil {
+	c := newCommand("flags silence", "", "Keep matching flags out of /metrics (so their alerts resolve) for a time; they stay listed as silenced.", stdout)
+	client := c.client()
+	var req api.SilenceRequest
+	c.fs.StringVar(&req.Job, "job", "", "silence this job's flags")
+	c.fs.StringVar(&req.Pattern, "pattern", "", `silence this pattern's flags (a name, or a reason such as "high_rate:creates")`)
+	c.fs.StringVar(&req.For, "for", "2h", "how long: 30m, 2h, 3d, 1w, 1d12h (between 1m and 30d)")
+	c.fs.StringVar(&req.By, "by", "", "who silences (required)")
+	c.fs.StringVar(&req.Why, "why", "", "why (required)")
+	if _, err := c.parse(args, 0); err != nil {
 		return err
 	}
-	var sl model.Silence
-	if err := call(ctx, http.MethodPost, *url, "/api/v1/silences", req, &sl); err != nil {
+	sl, err := client().Silence(ctx, req)
+	if err != nil {
 		return fmt.Errorf("flags silence: %w", err)
 	}
-	fmt.Fprintf(stdout, "silence %s until %s\n", sl.ID, sl.Until.Local().Format(time.DateTime))
+	fmt.Fprintf(stdout, "silence %s until %s\n", sl.ID, stamp(sl.Until))
 	return nil
 }
 
 func flagsUnsilence(ctx context.Context, args []string, stdout io.Writer) error {
-	fs := flag.NewFlagSet("aggregator flags unsilence", flag.ContinueOnError)
-	url := urlFlag(fs)
-	id, err := parseWithFile(fs, args)
+	c := newCommand("flags unsilence", "ID", "End a silence early (ID as aggregator flags silences lists it).", stdout)
+	client := c.client()
+	pos, err := c.parse(args, 1)
 	if err != nil {
-		return fmt.Errorf("flags unsilence: %w (give the silence id)", err)
+		return err
 	}
-	if err := call(ctx, http.MethodDelete, *url, "/api/v1/silences/"+neturl.PathEscape(id), nil, &map[string]string{}); err != nil {
+	if err := client().Unsilence(ctx, pos[0]); err != nil {
 		return fmt.Errorf("flags unsilence: %w", err)
 	}
-	fmt.Fprintf(stdout, "silence %s ended\n", id)
+	fmt.Fprintf(stdout, "silence %s ended\n", pos[0])
 	return nil
 }
 
 func flagsSilences(ctx context.Context, args []string, stdout io.Writer) error {
-	fs := flag.NewFlagSet("aggregator flags silences", flag.ContinueOnError)
-	url := urlFlag(fs)
-	if err := parse(fs, args); err != nil {
+	c := newCommand("flags silences", "", "The silences in force.", stdout)
+	client := c.client()
+	asJSON := c.jsonOption()
+	if _, err := c.parse(args, 0); err != nil {
 		return err
 	}
-	var out struct {
-		Silences []model.Silence `json:"silences"`
-	}
-	if err := call(ctx, http.MethodGet, *url, "/api/v1/silences", nil, &out); err != nil {
+	list, err := client().Silences(ctx)
+	if err != nil {
 		return fmt.Errorf("flags silences: %w", err)
+	}
+	if *asJSON {
+		return printJSON(stdout, map[string]any{"silences": list})
 	}
 	tw := tabwriter.NewWriter(stdout, 0, 4, 2, ' ', 0)
 	fmt.Fprintln(tw, "ID\tJOB\tPATTERN\tUNTIL\tBY\tWHY")
-	for _, s := range out.Silences {
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\n", s.ID, dash(s.Job), dash(s.Pattern), s.Until.Local().Format(time.DateTime), s.By, s.Why)
+	for _, s := range list {
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\n", dash(s.ID), dash(s.Job), dash(s.Pattern), stamp(s.Until), dash(s.By), dash(s.Why))
 	}
-	return tw.Flush()
-}
-
-// call sends a JSON request (body nil for none) and decodes the answer.
-func call(ctx context.Context, method, base, path string, body, v any) error {
-	var rd io.Reader
-	if body != nil {
-		b, err := json.Marshal(body)
-		if err != nil {
-			return err
-		}
-		rd = bytes.NewReader(b)
-	}
-	ctx, cancel := context.WithTimeout(ctx, 30*time.Second)
-	defer cancel()
-	req, err := http.NewRequestWithContext(ctx, method, strings.TrimRight(base, "/")+path, rd)
-	if err != nil {
+	if err := tw.Flush(); err != nil {
 		return err
 	}
-	if body != nil {
-		req.Header.Set("Content-Type", "application/json")
+	if len(list) == 0 {
+		fmt.Fprintln(stdout, "(no silences)")
 	}
-	return do(req, base, v)
+	return nil
 }

@@ -3,9 +3,11 @@ package main
 import (
 	"bytes"
 	"context"
+	"encoding/json"
 	"fmt"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 	"time"
 
@@ -16,6 +18,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"sluice/pkg/aggregate"
+	"sluice/pkg/api"
 	"sluice/pkg/metric"
 	"sluice/pkg/report"
 	"sluice/pkg/tracker"
@@ -61,12 +64,12 @@ func TestStormFlagsExplainAckSilenceLearn(t *testing.T) {
 		return out.String()
 	}
 	list := cli("flags")
-	assert.Regexp(t, `(?m)^active\s+81234\s+pattern:metadata_storm\s+critical\s+\d\.\d\d\s`, list)
-	assert.Contains(t, list, "Metadata storm (score 0.67) on 4 nodes")
+	assert.Regexp(t, `(?m)^81234-\d+\s+active\s+81234\s+pattern:metadata_storm\s+critical\s+\d\.\d\d\s+\d{4}-\d\d-\d\d \d\d:\d\d:\d\d \S+\s+Metadata storm on 4 nodes$`, list)
+	assert.Regexp(t, `(?m)^81234-\d+\s+active\s+81234\s+high_rate:creates\s+warning\s+1\.00\s`, list)
 
 	ex := cli("explain", "81234")
 	t.Log("\n" + ex)
-	assert.Contains(t, ex, "metadata_storm — Metadata storm (critical")
+	assert.Contains(t, ex, "metadata_storm — Metadata storm (critical): score")
 	assert.Contains(t, ex, "FLAGGED since")
 	assert.Regexp(t, `any: creates level >= critical\s+\+ crit`, ex)
 	assert.Contains(t, ex, "advice: ")
@@ -75,13 +78,29 @@ func TestStormFlagsExplainAckSilenceLearn(t *testing.T) {
 	assert.Contains(t, cli("flags", "ack", id, "--by", "keswin", "--why", "calling the user"), "acknowledged by keswin")
 	acked := cli("flags")
 	t.Log("\n" + acked)
-	assert.Regexp(t, `(?m)^active \(ack keswin\)\s+81234\s+pattern:metadata_storm`, acked)
+	assert.Regexp(t, `(?m)^`+id+`\s+active \(ack keswin\)\s+81234\s+pattern:metadata_storm`, acked)
 
 	assert.Contains(t, scrape(t, url), `reason="pattern:metadata_storm"`)
-	assert.Contains(t, cli("flags", "silence", "--job", "81234", "--pattern", "metadata_storm", "--for", "2h", "--by", "keswin", "--why", "user contacted"), "silence ")
-	assert.Regexp(t, `(?m)^silenced \(ack keswin\)\s+81234\s+pattern:metadata_storm`, cli("flags"))
+	assert.Contains(t, cli("flags", "silence", "--job", "81234", "--pattern", "metadata_storm", "--for", "3d", "--by", "keswin", "--why", "user contacted"), "silence ")
+	assert.Regexp(t, `(?m)^`+id+`\s+silenced \(ack keswin\)\s+81234\s+pattern:metadata_storm`, cli("flags"))
 	assert.NotContains(t, scrape(t, url), `reason="pattern:metadata_storm"`, "a silenced flag leaves /metrics")
-	assert.Contains(t, scrape(t, url), `reason="critical:creates"`, "the silence covers only the pattern")
+	assert.Contains(t, scrape(t, url), `reason="high_rate:creates"`, "the silence covers only the pattern")
+	silences := cli("flags", "silences")
+	assert.Regexp(t, `metadata_storm\s+\d{4}-\d\d-\d\d \d\d:\d\d:\d\d \S+\s+keswin\s+user contacted`, silences)
+
+	// Filters are the server's; every listing has --json.
+	assert.NotContains(t, cli("flags", "--severity", "warning"), "pattern:metadata_storm")
+	assert.Contains(t, cli("flags", "--state", "silenced"), "pattern:metadata_storm")
+	assert.NotContains(t, cli("flags", "--state", "silenced"), "high_rate:creates")
+	assert.NotContains(t, cli("flags", "--pattern", "high_rate:creates"), "pattern:metadata_storm")
+	assert.Contains(t, cli("flags", "--job", "81234", "--pattern", "high_rate:creates"), "high_rate:creates")
+	var fl api.FlagList
+	require.NoError(t, json.Unmarshal([]byte(cli("flags", "--json", "--job", "81234")), &fl))
+	assert.NotEmpty(t, fl.Flags)
+	var jl api.JobList
+	require.NoError(t, json.Unmarshal([]byte(cli("jobs", "--json")), &jl))
+	require.Len(t, jl.Jobs, 1)
+	assert.Equal(t, "quill-index", jl.Jobs[0].Name)
 
 	out := filepath.Join(t.TempDir(), "quill_storm.yaml")
 	cli("patterns", "learn", "--job", "81234", "--name", "quill_storm", "--out", out)
@@ -92,6 +111,19 @@ func TestStormFlagsExplainAckSilenceLearn(t *testing.T) {
 	var chk bytes.Buffer
 	require.NoError(t, run(context.Background(), []string{"patterns", "check", filepath.Dir(out)}, &chk, &chk))
 	assert.Contains(t, chk.String(), "1 patterns, all valid")
+
+	// The job ends: explain and learn still answer for it.
+	end := t0.Add(4 * time.Minute)
+	b := wire.AppendJobEvent(nil, &report.JobEvent{Type: report.JobEnd, Job: "81234", Node: nodes[0], Time: end})
+	require.NoError(t, nc.Publish("sluice.default.job."+nodes[0], b))
+	b = wire.AppendSample(nil, &report.Sample{Node: nodes[0], Seq: 100, Start: end, End: end.Add(10 * time.Second)})
+	require.NoError(t, nc.Publish("sluice.default.sample."+nodes[0], b))
+	require.NoError(t, nc.Flush())
+	require.Eventually(t, func() bool { svc.Tick(); return strings.Contains(cli("jobs", "--all"), "ended") }, 5*time.Second, 10*time.Millisecond)
+	ended := cli("explain", "81234")
+	assert.Contains(t, ended, "ended")
+	assert.Contains(t, ended, "metadata_storm — Metadata storm (critical): score")
+	cli("patterns", "learn", "--job", "81234", "--name", "quill_storm", "--out", out)
 }
 
 func applied(t *testing.T, url string) uint64 {
@@ -120,12 +152,10 @@ func scrape(t *testing.T, url string) string {
 }
 
 func flagID(t *testing.T, url, reason string) string {
-	var out struct {
-		Flags []struct{ ID, Reason string }
-	}
-	require.NoError(t, call(context.Background(), "GET", url, "/api/v1/flags", nil, &out))
-	for _, f := range out.Flags {
-		if f.Reason == reason {
+	fs, err := api.NewClient(url).Flags(context.Background(), api.FlagFilter{})
+	require.NoError(t, err)
+	for _, f := range fs {
+		if f.Reason.String() == reason {
 			return f.ID
 		}
 	}

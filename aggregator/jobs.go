@@ -2,10 +2,8 @@ package main
 
 import (
 	"context"
-	"flag"
 	"fmt"
 	"io"
-	"net/http"
 	"slices"
 	"strings"
 	"text/tabwriter"
@@ -16,33 +14,24 @@ import (
 	"sluice/pkg/model"
 )
 
-func jobs(ctx context.Context, args []string, stdout io.Writer) error {
-	fs := flag.NewFlagSet("aggregator jobs", flag.ContinueOnError)
-	url := urlFlag(fs)
-	all := fs.Bool("all", false, "include recently ended jobs")
-	wide := fs.Bool("wide", false, "one column per metric instead of the hottest metrics")
-	if err := parse(fs, args); err != nil {
+func jobsCmd(ctx context.Context, args []string, stdout io.Writer) error {
+	c := newCommand("jobs", "", "The running jobs: live per-node rates of their hottest metrics, levels and active flags.", stdout)
+	client := c.client()
+	all := c.fs.Bool("all", false, "include recently ended jobs")
+	wide := c.fs.Bool("wide", false, "one column per metric instead of the hottest metrics")
+	asJSON := c.jsonOption()
+	if _, err := c.parse(args, 0); err != nil {
 		return err
 	}
-	list, err := fetchJobs(ctx, *url)
+	list, err := client().Jobs(ctx, !*all)
 	if err != nil {
 		return err
 	}
-	if !*all {
-		list = slices.DeleteFunc(list, func(j model.Summary) bool { return j.State != "running" })
+	if *asJSON {
+		return printJSON(stdout, map[string]any{"jobs": list})
 	}
 	printJobs(stdout, list, *wide, time.Now())
 	return nil
-}
-
-func fetchJobs(ctx context.Context, base string) ([]model.Summary, error) {
-	var out struct {
-		Jobs []model.Summary `json:"jobs"`
-	}
-	if err := call(ctx, http.MethodGet, base, "/api/v1/jobs", nil, &out); err != nil {
-		return nil, err
-	}
-	return out.Jobs, nil
 }
 
 // printJobs writes the jobs table: one row per job, the live per-node
@@ -60,7 +49,7 @@ func printJobs(w io.Writer, list []model.Summary, wide bool, now time.Time) {
 	}
 	fmt.Fprintln(tw, strings.Join(append(head, "FLAGS"), "\t"))
 	for _, j := range list {
-		row := []string{j.ID, dash(j.User), dash(j.Name), fmt.Sprint(max(len(j.Nodes), j.NodesSeen)), j.State, runtime(j, now)}
+		row := []string{dash(j.ID), dash(j.User), dash(j.Name), fmt.Sprint(max(len(j.Nodes), j.NodesSeen)), j.State.String(), runtime(j, now)}
 		if wide {
 			for _, id := range metric.All() {
 				row = append(row, cell(id, j.Live[id], j.LiveLevels[id]))
@@ -68,19 +57,12 @@ func printJobs(w io.Writer, list []model.Summary, wide bool, now time.Time) {
 		} else {
 			row = append(row, hottest(j, 3))
 		}
-		fmt.Fprintln(tw, strings.Join(append(row, flags(j)), "\t"))
+		fmt.Fprintln(tw, strings.Join(append(row, flagsOf(j)), "\t"))
 	}
 	tw.Flush()
 	if len(list) == 0 {
 		fmt.Fprintln(w, "(no jobs)")
 	}
-}
-
-func dash(s string) string {
-	if s == "" {
-		return "-"
-	}
-	return s
 }
 
 func runtime(j model.Summary, now time.Time) string {
@@ -140,30 +122,19 @@ func cell(id metric.ID, rate float64, l coding.Level) string {
 	return s
 }
 
-// human prints a rate with an SI prefix: 1.5k/s, 600MB/s.
-func human(v float64, bytes bool) string {
-	unit := "/s"
-	if bytes {
-		unit = "B/s"
-	}
-	for _, p := range []struct {
-		f float64
-		s string
-	}{{1e9, "G"}, {1e6, "M"}, {1e3, "k"}} {
-		if v >= p.f {
-			return fmt.Sprintf("%.3g%s%s", v/p.f, p.s, unit)
-		}
-	}
-	return fmt.Sprintf("%.3g%s", v, unit)
-}
-
-func flags(j model.Summary) string {
+// flagsOf lists a job's active flags: reason, state when not active, and
+// since when.
+func flagsOf(j model.Summary) string {
 	if len(j.ActiveFlags) == 0 {
 		return "-"
 	}
 	var parts []string
 	for _, f := range j.ActiveFlags {
-		parts = append(parts, fmt.Sprintf("%s since %s", f.Reason, f.Since.Local().Format("15:04:05")))
+		s := f.Reason.String()
+		if f.State != model.FlagActive {
+			s += " (" + f.State.String() + ")"
+		}
+		parts = append(parts, s+" since "+stamp(f.Since))
 	}
 	return strings.Join(parts, "; ")
 }

@@ -3,18 +3,14 @@ package main
 import (
 	"context"
 	"errors"
-	"flag"
 	"fmt"
 	"io"
-	"net/http"
-	neturl "net/url"
 	"os"
 	"slices"
 	"strings"
 	"text/tabwriter"
 	"time"
 
-	"sluice/pkg/aggregate"
 	"sluice/pkg/coding"
 	"sluice/pkg/matcher"
 	"sluice/pkg/metric"
@@ -50,80 +46,78 @@ func loadLibrary(dir string, builtin bool) (*matcher.Library, error) {
 	return matcher.Compile(ps)
 }
 
-const patternsUsage = `usage: aggregator patterns <list | show NAME | check DIR | learn> [flags]
+const patternsUsage = `usage: aggregator patterns <list | show NAME | check DIR | learn> [options]
 
-  list        the patterns in force: built-in, laid over by --dir
-  show NAME   one pattern in full
-  check DIR   validate every pattern file in DIR; non-zero exit on any error
+  list        the patterns the running aggregator matches jobs against
+  show NAME   one of them in full
+  check DIR   validate every pattern file in DIR (on this machine); non-zero
+              exit on any error
   learn       write an example pattern from a job's signature (--job, --name)
+
+Run "aggregator patterns <subcommand> -h" for its options.
 `
 
-func patternsCmd(ctx context.Context, args []string, stdout, stderr io.Writer) error {
-	if len(args) == 0 {
-		fmt.Fprint(stderr, patternsUsage)
-		return errors.New("patterns: no subcommand given")
-	}
-	switch args[0] {
-	case "list":
-		return patternsList(args[1:], stdout)
-	case "show":
-		return patternsShow(args[1:], stdout)
-	case "check":
-		return patternsCheck(args[1:], stdout)
-	case "learn":
-		return patternsLearn(ctx, args[1:], stdout)
-	case "-h", "--help", "help":
-		fmt.Fprint(stderr, patternsUsage)
-		return nil
-	}
-	fmt.Fprint(stderr, patternsUsage)
-	return fmt.Errorf("patterns: unknown subcommand %q", args[0])
+func patternsCmd(ctx context.Context, args []string, stdout io.Writer) error {
+	return group{name: "patterns", usage: patternsUsage, subs: map[string]func([]string) error{
+		"list":  func(a []string) error { return patternsList(ctx, a, stdout) },
+		"show":  func(a []string) error { return patternsShow(ctx, a, stdout) },
+		"check": func(a []string) error { return patternsCheck(a, stdout) },
+		"learn": func(a []string) error { return patternsLearn(ctx, a, stdout) },
+	}}.run(args, stdout)
 }
 
-func patternsList(args []string, stdout io.Writer) error {
-	fs := flag.NewFlagSet("aggregator patterns list", flag.ContinueOnError)
-	dir := fs.String("dir", "", "site pattern directory laid over the built-ins")
-	if err := parse(fs, args); err != nil {
+func patternsList(ctx context.Context, args []string, stdout io.Writer) error {
+	c := newCommand("patterns list", "", "The patterns the running aggregator matches jobs against, in its order.", stdout)
+	client := c.client()
+	asJSON := c.jsonOption()
+	if _, err := c.parse(args, 0); err != nil {
 		return err
 	}
-	ps, err := patternSet(*dir, true)
+	ps, err := client().Patterns(ctx)
 	if err != nil {
-		return err
+		return fmt.Errorf("patterns list: %w", err)
+	}
+	if *asJSON {
+		return printJSON(stdout, map[string]any{"patterns": ps})
 	}
 	tw := tabwriter.NewWriter(stdout, 0, 4, 2, ' ', 0)
 	fmt.Fprintln(tw, "NAME\tSEVERITY\tKIND\tTITLE\tSOURCE")
 	for _, p := range ps {
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\n", p.Name, p.Severity, p.Kind(), p.Title, p.Source)
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\n", p.Name, p.Severity, p.Kind, dash(p.Title), dash(p.Source))
 	}
 	return tw.Flush()
 }
 
-func patternsShow(args []string, stdout io.Writer) error {
-	fs := flag.NewFlagSet("aggregator patterns show", flag.ContinueOnError)
-	dir := fs.String("dir", "", "site pattern directory laid over the built-ins")
-	name, err := parseWithFile(fs, args)
-	if err != nil {
-		return fmt.Errorf("patterns show: %w", err)
-	}
-	ps, err := patternSet(*dir, true)
+func patternsShow(ctx context.Context, args []string, stdout io.Writer) error {
+	c := newCommand("patterns show", "NAME", "One pattern the running aggregator uses, in full (--json: with its file text).", stdout)
+	client := c.client()
+	asJSON := c.jsonOption()
+	pos, err := c.parse(args, 1)
 	if err != nil {
 		return err
 	}
-	for _, p := range ps {
-		if p.Name == name {
-			fmt.Fprintln(stdout, pattern.Describe(p))
-			return nil
-		}
+	ap, err := client().Pattern(ctx, pos[0])
+	if err != nil {
+		return fmt.Errorf("patterns show: %w", err)
 	}
-	return fmt.Errorf("patterns show: no pattern %q (see aggregator patterns list)", name)
+	if *asJSON {
+		return printJSON(stdout, ap)
+	}
+	p, err := pattern.Parse(ap.Source, strings.NewReader(ap.File))
+	if err != nil {
+		return fmt.Errorf("patterns show: the aggregator's text of %s: %w", ap.Name, err)
+	}
+	fmt.Fprintf(stdout, "%s  (from %s)\n", strings.TrimRight(pattern.Describe(p), "\n"), ap.Source)
+	return nil
 }
 
 func patternsCheck(args []string, stdout io.Writer) error {
-	fs := flag.NewFlagSet("aggregator patterns check", flag.ContinueOnError)
-	dir, err := parseWithFile(fs, args)
+	c := newCommand("patterns check", "DIR", "Validate every pattern file (*.yaml) in DIR on this machine; non-zero exit on any error.", stdout)
+	pos, err := c.parse(args, 1)
 	if err != nil {
-		return fmt.Errorf("patterns check: %w", err)
+		return err
 	}
+	dir := pos[0]
 	ps, err := pattern.LoadDir(dir)
 	if err != nil {
 		return err
@@ -139,20 +133,20 @@ func patternsCheck(args []string, stdout io.Writer) error {
 // pattern file: Sellers over the metrics that were not idle throughout,
 // at most five, the busiest first.
 func patternsLearn(ctx context.Context, args []string, stdout io.Writer) error {
-	fs := flag.NewFlagSet("aggregator patterns learn", flag.ContinueOnError)
-	url := urlFlag(fs)
-	job := fs.String("job", "", "the job to learn from (required)")
-	name := fs.String("name", "", "the new pattern's name (required; lower case, digits, _)")
-	from := fs.String("from", "", "first window to take, RFC 3339 time (default: the job's first)")
-	to := fs.String("to", "", "last window to take, RFC 3339 time (default: the job's last)")
-	out := fs.String("out", "", "file to write; empty writes to standard output")
-	if err := parse(fs, args); err != nil {
+	c := newCommand("patterns learn", "", "Write an example pattern (Sellers) from a job's closed windows, running or finished, ready to edit.", stdout)
+	client := c.client()
+	job := c.fs.String("job", "", "the job to learn from (required)")
+	name := c.fs.String("name", "", "the new pattern's name (required; lower case, digits, _)")
+	from := c.fs.String("from", "", "first window to take, RFC 3339 time (default: the job's first)")
+	to := c.fs.String("to", "", "last window to take, RFC 3339 time (default: the job's last)")
+	out := c.fs.String("out", "", "file to write; empty writes to standard output")
+	if _, err := c.parse(args, 0); err != nil {
 		return err
 	}
 	if *job == "" || *name == "" {
-		return errors.New("patterns learn: --job and --name are required")
+		return c.usage(errors.New("--job and --name are required"))
 	}
-	detail, err := fetchJob(ctx, *url, *job)
+	detail, err := client().Job(ctx, *job)
 	if err != nil {
 		return fmt.Errorf("patterns learn: %w", err)
 	}
@@ -234,7 +228,7 @@ func learnExample(name string, job model.Summary, ws []model.Window) (*pattern.P
 	}
 	who := strings.TrimSpace(strings.Join([]string{job.Name, job.User}, ", "))
 	p := &pattern.Pattern{
-		Name: name, Title: fmt.Sprintf("Learned from job %s", job.ID), Severity: pattern.Warning,
+		Name: name, Title: fmt.Sprintf("Learned from job %s", job.ID), Severity: model.SeverityWarning,
 		Description: fmt.Sprintf("The signature of job %s (%s) over %d windows from %s. Edit this text to say what the behaviour is.",
 			job.ID, who, len(ws), ws[0].Start.UTC().Format(time.RFC3339)),
 		Rationale:  "Learned from a job that staff reviewed; say here why the behaviour matters.",
@@ -242,16 +236,4 @@ func learnExample(name string, job model.Summary, ws []model.Window) (*pattern.P
 		RaiseAfter: 1, ClearAfter: 2, Threshold: 0.8, Example: ex,
 	}
 	return p, nil
-}
-
-func fetchJob(ctx context.Context, base, id string) (aggregate.JobDetail, error) {
-	req, err := http.NewRequestWithContext(ctx, http.MethodGet, strings.TrimRight(base, "/")+"/api/v1/jobs/"+neturl.PathEscape(id), nil)
-	if err != nil {
-		return aggregate.JobDetail{}, err
-	}
-	var d aggregate.JobDetail
-	if err := do(req, base, &d); err != nil {
-		return aggregate.JobDetail{}, err
-	}
-	return d, nil
 }

@@ -1,19 +1,21 @@
-// Package aggregate is the aggregator service: it subscribes to the agents'
-// samples, job events and heartbeats, feeds the tracker, writes the store in
-// batches and serves /metrics, /healthz and the JSON API.
+// Package aggregate is the aggregator service: it takes the agents'
+// messages from package ingest, feeds the tracker, ticks it, writes the
+// store in batches, learns the baseline, and answers the API (package api)
+// and the scrape (package export) from its state.
 //
 // # Basics
 //
 // [New] validates [Options]; [Service.Run] opens the store (failing fast if
 // another aggregator holds it), restores the tracker from it, connects to
-// the broker (or starts an embedded one), and runs until its context ends,
-// then flushes and closes everything.
+// the broker (or starts an embedded one), subscribes, serves HTTP, and
+// runs until its context ends, then flushes and closes everything.
 //
 // # Caveats
 //
-// One mutex (Service.mu) guards the tracker and the ingest counters; the
-// NATS callbacks, the tick loop and HTTP handlers all take it briefly.
-// Decoding happens outside it.
+// One mutex (Service.mu) guards the tracker, the learner, the agents'
+// status and the silences and acknowledgements; the NATS callbacks, the
+// tick loop and HTTP handlers all take it briefly. Decoding happens
+// outside it, in package ingest.
 package aggregate
 
 import (
@@ -30,10 +32,13 @@ import (
 
 	"github.com/nats-io/nats.go"
 
+	"sluice/pkg/api"
 	"sluice/pkg/baseline"
 	"sluice/pkg/bus"
 	"sluice/pkg/bus/broker"
 	"sluice/pkg/export"
+	"sluice/pkg/flagging"
+	"sluice/pkg/ingest"
 	"sluice/pkg/model"
 	"sluice/pkg/store"
 	"sluice/pkg/tracker"
@@ -71,8 +76,7 @@ type Options struct {
 	// means 1 second.
 	FlushEvery time.Duration
 	// MaxJobSeries caps the per-job series on /metrics (jobs are taken most
-	// severe first while their series fit); zero
-	// means 2000.
+	// severe first while their series fit); zero means 5000.
 	MaxJobSeries int
 	// Logger receives the service's logs; nil discards them.
 	Logger *slog.Logger
@@ -105,39 +109,42 @@ type Service struct {
 	subj bus.Subjects
 	log  *slog.Logger
 
-	mu     sync.Mutex
-	tr     *tracker.Tracker
-	learn  *learner
-	ingest export.Ingest
+	mu          sync.Mutex
+	tr          *tracker.Tracker
+	learn       *learner
+	agents      map[string]model.Agent // latest heartbeat per node
+	shares      export.ShareHistogram  // every CPU share the heartbeats gave
+	att         *flagging.Attention
+	flushErr    error  // the last flush's, nil once one succeeds
+	storeErrors uint64 // failed flushes
+
 	// pending and unreported hold what the last failed flush could not
 	// write; guarded by flushMu.
 	pending    store.Batch
 	unreported []reported
-	agents     map[string]model.Agent // latest heartbeat per node
-	att        attention
-	conn       atomic.Pointer[nats.Conn] // the broker connection, for /metrics
 
-	flushMu  sync.Mutex // serialises flushes; taken before mu
+	flushMu  sync.Mutex                // serialises flushes; taken before mu
+	conn     atomic.Pointer[nats.Conn] // the broker connection, for /metrics
+	sub      atomic.Pointer[ingest.Subscriber]
 	st       *store.Store
 	ready    chan struct{}
 	httpAddr string
 	natsURL  string
-	flushErr error
 }
 
 // New validates opts.
 func New(opts Options) (*Service, error) {
 	opts = opts.withDefaults()
 	if opts.StorePath == "" {
-		return nil, errors.New("aggregator: a store path is required (--store.path)")
+		return nil, errors.New("a store path is required (--store.path)")
 	}
 	subj, err := bus.NewSubjects(opts.Prefix, opts.Cluster)
 	if err != nil {
-		return nil, fmt.Errorf("aggregator: %w", err)
+		return nil, err
 	}
 	tr, err := tracker.New(opts.Tracker)
 	if err != nil {
-		return nil, fmt.Errorf("aggregator: %w", err)
+		return nil, err
 	}
 	learn, err := newLearner(opts.Baseline, tr.Options().Cuts)
 	if err != nil {
@@ -149,8 +156,8 @@ func New(opts Options) (*Service, error) {
 		log:    opts.Logger,
 		tr:     tr,
 		learn:  learn,
-		ingest: export.NewIngest(),
 		agents: map[string]model.Agent{},
+		att:    flagging.NewAttention(nil, nil),
 		ready:  make(chan struct{}),
 	}, nil
 }
@@ -196,14 +203,11 @@ func (s *Service) NATSURL() string { return s.natsURL }
 func (s *Service) Run(ctx context.Context) error {
 	st, err := store.Open(s.opts.StorePath, store.Options{LockTimeout: s.opts.StoreLockTimeout})
 	if err != nil {
-		return fmt.Errorf("aggregator: %w", err)
+		return err
 	}
 	s.st = st
 	defer st.Close()
 	if err := s.restore(); err != nil {
-		return err
-	}
-	if err := s.loadAttention(); err != nil {
 		return err
 	}
 	nc, stopBroker, err := s.connect(ctx)
@@ -213,16 +217,17 @@ func (s *Service) Run(ctx context.Context) error {
 	defer stopBroker()
 	defer nc.Close()
 	s.conn.Store(nc)
-	subs, err := s.subscribe(nc)
+	sub, err := ingest.Subscribe(nc, s.subj, sink{s}, s.log)
 	if err != nil {
 		return err
 	}
+	s.sub.Store(sub)
 	ln, err := net.Listen("tcp", s.opts.Listen)
 	if err != nil {
-		return fmt.Errorf("aggregator: listen %s: %w (set --web.listen)", s.opts.Listen, err)
+		return fmt.Errorf("listen %s: %w (set --web.listen)", s.opts.Listen, err)
 	}
 	s.httpAddr = ln.Addr().String()
-	srv := &http.Server{Handler: s.handler(), ReadHeaderTimeout: 5 * time.Second}
+	srv := &http.Server{Handler: api.Handler(backend{s}, s.metricsHandler()), ReadHeaderTimeout: 5 * time.Second}
 	go func() {
 		if err := srv.Serve(ln); err != nil && !errors.Is(err, http.ErrServerClosed) {
 			s.log.Error("http server stopped", "err", err)
@@ -233,9 +238,7 @@ func (s *Service) Run(ctx context.Context) error {
 
 	s.loop(ctx)
 
-	for _, sub := range subs {
-		_ = sub.Drain()
-	}
+	sub.Drain()
 	_ = nc.Drain()
 	shutCtx, cancel := context.WithTimeout(context.Background(), 2*time.Second)
 	defer cancel()
@@ -244,26 +247,40 @@ func (s *Service) Run(ctx context.Context) error {
 	s.tr.Tick()
 	s.mu.Unlock()
 	s.flush()
+	s.mu.Lock()
+	defer s.mu.Unlock()
 	return s.flushErr
 }
 
+// restore loads the state file: jobs, node sequences, baseline days,
+// silences and acknowledgements; then rebuilds every job's matcher from
+// its stored windows and learns the cut points.
 func (s *Service) restore() error {
 	state, err := s.st.Load()
 	if err != nil {
-		return fmt.Errorf("aggregator: %w", err)
+		return err
 	}
 	days, err := s.st.Days()
 	if err != nil {
-		return fmt.Errorf("aggregator: %w", err)
+		return err
+	}
+	silences, err := s.st.Silences()
+	if err != nil {
+		return err
+	}
+	acks, err := s.st.Acks()
+	if err != nil {
+		return err
 	}
 	s.mu.Lock()
 	defer s.mu.Unlock()
 	if err := s.tr.Restore(state.Jobs, state.Nodes, state.Watermark); err != nil {
-		return fmt.Errorf("aggregator: restore from %s: %w", s.opts.StorePath, err)
+		return fmt.Errorf("restore from %s: %w", s.opts.StorePath, err)
 	}
 	if err := s.learn.load(days); err != nil {
 		return err
 	}
+	s.att = flagging.NewAttention(silences, acks)
 	if err := s.replayLocked(state.Jobs); err != nil {
 		return err
 	}
@@ -272,19 +289,17 @@ func (s *Service) restore() error {
 	return nil
 }
 
-// replayLocked rebuilds the pattern matchers of the restored running jobs
-// from their stored windows; the caller holds mu.
-func (s *Service) replayLocked(jobs []tracker.JobState) error {
+// replayLocked rebuilds the pattern matchers of the restored jobs from
+// their stored windows (ended jobs too, so that they can still be
+// explained); the caller holds mu.
+func (s *Service) replayLocked(jobs []model.JobRecord) error {
 	if s.opts.Tracker.Patterns == nil {
 		return nil
 	}
 	for _, j := range jobs {
-		if j.Finished {
-			continue
-		}
 		ws, err := s.st.Windows(j.Meta.ID)
 		if err != nil {
-			return fmt.Errorf("aggregator: %w", err)
+			return err
 		}
 		s.tr.Replay(j.Meta.ID, ws)
 	}
@@ -303,65 +318,29 @@ func (s *Service) connect(ctx context.Context) (*nats.Conn, func(), error) {
 	if url == "" {
 		emb, err := broker.Start(broker.Options{Listen: s.opts.EmbeddedListen})
 		if err != nil {
-			return nil, nil, fmt.Errorf("aggregator: %w (set --nats.url to use an external broker, or --nats.embedded.listen)", err)
+			return nil, nil, fmt.Errorf("%w (set --nats.url to use an external broker, or --nats.embedded.listen)", err)
 		}
 		url, stop = emb.URL(), emb.Shutdown
 	}
 	s.natsURL = url
 	nc, err := bus.Connect(ctx, url, "sluice-aggregator",
-		nats.ErrorHandler(func(_ *nats.Conn, sub *nats.Subscription, err error) {
-			if errors.Is(err, nats.ErrSlowConsumer) {
-				s.countSlow(sub)
-				return
+		nats.ErrorHandler(func(_ *nats.Conn, _ *nats.Subscription, err error) {
+			if !errors.Is(err, nats.ErrSlowConsumer) { // counted by the subscriber
+				s.log.Warn("nats error", "err", err)
 			}
-			s.log.Warn("nats error", "err", err)
 		}))
 	if err != nil {
 		stop()
-		return nil, nil, fmt.Errorf("aggregator: %w", err)
+		return nil, nil, err
 	}
 	wctx, cancel := context.WithTimeout(ctx, 10*time.Second)
 	defer cancel()
 	if err := bus.WaitConnected(wctx, nc); err != nil {
 		nc.Close()
 		stop()
-		return nil, nil, fmt.Errorf("aggregator: %w", err)
+		return nil, nil, err
 	}
 	return nc, stop, nil
-}
-
-func (s *Service) countSlow(sub *nats.Subscription) {
-	if sub == nil {
-		return
-	}
-	dropped, _ := sub.Dropped()
-	s.mu.Lock()
-	s.ingest.SlowConsumerDropped = uint64(dropped)
-	s.mu.Unlock()
-}
-
-func (s *Service) subscribe(nc *nats.Conn) ([]*nats.Subscription, error) {
-	var subs []*nats.Subscription
-	for subj, h := range map[string]nats.MsgHandler{
-		s.subj.AllSamples(): s.onSample(),
-		s.subj.AllJobs():    s.onJobEvent(),
-		s.subj.AllBeats():   s.onHeartbeat(),
-	} {
-		sub, err := nc.Subscribe(subj, h)
-		if err != nil {
-			return nil, fmt.Errorf("aggregator: subscribe %s: %w", subj, err)
-		}
-		// Samples arrive in bursts from thousands of nodes; give the
-		// subscription room before the client drops (and counts) any.
-		if err := sub.SetPendingLimits(1<<20, 512<<20); err != nil {
-			return nil, fmt.Errorf("aggregator: pending limits on %s: %w", subj, err)
-		}
-		subs = append(subs, sub)
-	}
-	if err := nc.Flush(); err != nil {
-		return nil, fmt.Errorf("aggregator: flush subscriptions: %w", err)
-	}
-	return subs, nil
 }
 
 // loop ticks the tracker and flushes the store until ctx ends.

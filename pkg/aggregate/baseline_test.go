@@ -19,6 +19,7 @@ import (
 	"gonum.org/v1/gonum/stat"
 
 	"sluice/pkg/aggregate"
+	"sluice/pkg/api"
 	"sluice/pkg/coding"
 	"sluice/pkg/internal/natstest"
 	"sluice/pkg/metric"
@@ -59,30 +60,30 @@ func historyCSV(last time.Time, days, n int) ([]byte, []float64) {
 	return b.Bytes(), values
 }
 
-func post(t *testing.T, svc *aggregate.Service, body []byte) aggregate.ImportResult {
+func post(t *testing.T, svc *aggregate.Service, body []byte) api.ImportResult {
 	t.Helper()
 	resp, err := http.Post("http://"+svc.HTTPAddr()+"/api/v1/baseline/import", "text/csv", bytes.NewReader(body))
 	require.NoError(t, err)
 	defer resp.Body.Close()
 	msg, _ := io.ReadAll(resp.Body)
 	require.Equal(t, http.StatusOK, resp.StatusCode, string(msg))
-	var res aggregate.ImportResult
+	var res api.ImportResult
 	require.NoError(t, json.Unmarshal(msg, &res))
 	return res
 }
 
-func baselineReport(t *testing.T, svc *aggregate.Service) aggregate.Baseline {
+func baselineReport(t *testing.T, svc *aggregate.Service) api.Baseline {
 	t.Helper()
 	resp, err := http.Get("http://" + svc.HTTPAddr() + "/api/v1/baseline")
 	require.NoError(t, err)
 	defer resp.Body.Close()
-	var b aggregate.Baseline
+	var b api.Baseline
 	require.NoError(t, json.NewDecoder(resp.Body).Decode(&b))
 	return b
 }
 
-func creates(b aggregate.Baseline) aggregate.BaselineMetric {
-	i := slices.IndexFunc(b.Metrics, func(m aggregate.BaselineMetric) bool { return m.Metric == "creates" })
+func creates(b api.Baseline) api.BaselineMetric {
+	i := slices.IndexFunc(b.Metrics, func(m api.BaselineMetric) bool { return m.Metric == "creates" })
 	return b.Metrics[i]
 }
 
@@ -96,7 +97,7 @@ func TestImportLearnsExportsAndSurvivesRestart(t *testing.T) {
 	path := filepath.Join(t.TempDir(), "a.db")
 	svc, stop := service(t, path, clock)
 	before := creates(baselineReport(t, svc))
-	assert.Equal(t, "seed", before.Source)
+	assert.Equal(t, coding.BasisSeed, before.Basis)
 
 	good, values := historyCSV(now, 3, 1500)
 	lines := strings.SplitAfter(string(good), "\n")
@@ -116,7 +117,7 @@ func TestImportLearnsExportsAndSurvivesRestart(t *testing.T) {
 	// out of the quantiles, like the rate-0 rows.
 	active := slices.DeleteFunc(values, func(v float64) bool { return v < coding.Floor(metric.Creates) })
 	got := creates(baselineReport(t, svc))
-	require.Equal(t, "learned", got.Source)
+	require.Equal(t, coding.BasisLearned, got.Basis)
 	assert.EqualValues(t, len(active), got.Windows)
 	assert.EqualValues(t, 4500+4500-len(active), got.Idle)
 	slices.Sort(active)
@@ -132,7 +133,7 @@ func TestImportLearnsExportsAndSurvivesRestart(t *testing.T) {
 	assert.Equal(t, got, creates(baselineReport(t, svc)), "importing the same file twice is importing it once")
 
 	metrics := scrapeText(t, svc)
-	assert.Contains(t, metrics, fmt.Sprintf(`sluice_cut_point_operations_per_second{level="critical",metric="creates",source="learned"} %g`, got.Critical))
+	assert.Contains(t, metrics, fmt.Sprintf(`sluice_cut_point_operations_per_second{basis="learned",level="critical",metric="creates"} %g`, got.Critical))
 	assert.Contains(t, metrics, fmt.Sprintf(`sluice_baseline_windows{metric="creates"} %d`, len(active)))
 
 	resp, err := http.Get("http://" + svc.HTTPAddr() + "/api/v1/baseline/export")

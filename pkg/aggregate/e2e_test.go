@@ -261,9 +261,9 @@ func TestAgentsToMetricsExact(t *testing.T) {
 	// The storm is critical on creates and stat ops, so it is flagged.
 	var reasons []string
 	for _, f := range storm.ActiveFlags {
-		reasons = append(reasons, f.Reason)
+		reasons = append(reasons, f.Reason.String())
 	}
-	assert.ElementsMatch(t, []string{"critical:creates", "critical:stat_ops"}, reasons)
+	assert.ElementsMatch(t, []string{"high_rate:creates", "high_rate:stat_ops"}, reasons)
 	assert.Empty(t, writer.ActiveFlags)
 
 	// /metrics shows the same values.
@@ -271,9 +271,9 @@ func TestAgentsToMetricsExact(t *testing.T) {
 	got := m["sluice_job_live_operations_per_second"+key(map[string]string{"job_id": "4101", "metric": "creates"})]
 	require.NotNil(t, got, "per-job series for the flagged job")
 	assert.InDelta(t, storm.Live[metric.Creates], got.value, 1e-9)
-	flag := m["sluice_job_flag_active"+key(map[string]string{"job_id": "4101", "reason": "critical:creates"})]
+	flag := m["sluice_job_flag_active"+key(map[string]string{"job_id": "4101", "reason": "high_rate:creates"})]
 	require.NotNil(t, flag)
-	assert.Equal(t, "warning", flag.labels["severity"], "critical I/O alone is a warning; patterns say more")
+	assert.Equal(t, "warning", flag.labels["severity"], "a high rate alone is a warning; patterns say more")
 	assert.Nil(t, m["sluice_job_live_bytes_per_second"+key(map[string]string{"job_id": "4102", "metric": "write_bytes"})],
 		"a normal, unflagged job has no per-job series")
 }

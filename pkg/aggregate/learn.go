@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"time"
 
+	"sluice/pkg/api"
 	"sluice/pkg/baseline"
 	"sluice/pkg/coding"
 	"sluice/pkg/export"
@@ -29,7 +30,7 @@ type learner struct {
 func newLearner(opts baseline.Options, seed coding.Cuts) (*learner, error) {
 	b, err := baseline.New(&opts)
 	if err != nil {
-		return nil, fmt.Errorf("aggregator: %w", err)
+		return nil, err
 	}
 	return &learner{b: b, seed: seed, dirty: map[baseline.Key]bool{}, coding: coding.Seed(seed)}, nil
 }
@@ -38,7 +39,7 @@ func newLearner(opts baseline.Options, seed coding.Cuts) (*learner, error) {
 func (l *learner) load(days map[baseline.Key]*baseline.Day) error {
 	for k, d := range days {
 		if err := l.b.Put(k, d); err != nil {
-			return fmt.Errorf("aggregator: baseline day %s/%s: %w", k.Origin, k.Day, err)
+			return fmt.Errorf("baseline day %s/%s: %w", k.Origin, k.Day, err)
 		}
 	}
 	return nil
@@ -98,42 +99,10 @@ func (l *learner) drain(into map[baseline.Key]*baseline.Day) map[baseline.Key]*b
 	return into
 }
 
-// Baseline is what /api/v1/baseline reports and "aggregator baseline show"
-// prints.
-type Baseline struct {
-	Recomputed  time.Time        `json:"recomputed"`
-	HorizonDays int              `json:"horizon_days"`
-	MinWindows  uint64           `json:"min_windows"`
-	Quantiles   [5]float64       `json:"grade_quantiles"`
-	Days        []BaselineDay    `json:"days"`
-	Metrics     []BaselineMetric `json:"metrics"`
-	Rejected    uint64           `json:"rejected_values"`
-	Newest      baseline.DayKey  `json:"newest_day,omitzero"`
-}
-
-// BaselineDay is one stored day and where it came from.
-type BaselineDay struct {
-	Day     baseline.DayKey   `json:"day"`
-	Origins []baseline.Origin `json:"origins"`
-}
-
-// BaselineMetric is one metric's cuts in force and the counts behind them.
-type BaselineMetric struct {
-	Metric   string           `json:"metric"`
-	Unit     string           `json:"unit"`
-	Bytes    bool             `json:"-"`
-	Source   string           `json:"source"` // "learned" or "seed"
-	Elevated float64          `json:"elevated"`
-	Critical float64          `json:"critical"`
-	Grades   coding.GradeCuts `json:"grade_cuts"`
-	Windows  uint64           `json:"windows"`
-	Idle     uint64           `json:"idle_windows"`
-}
-
 // report describes the baseline as of the last recompute.
-func (l *learner) report() Baseline {
+func (l *learner) report() api.Baseline {
 	o := l.b.Options()
-	r := Baseline{
+	r := api.Baseline{
 		Recomputed: l.recomputed, HorizonDays: o.Days, MinWindows: o.MinWindows,
 		Quantiles: coding.GradeQuantiles(o.ElevatedQuantile, o.CriticalQuantile), Rejected: l.b.Rejected(),
 	}
@@ -143,12 +112,12 @@ func (l *learner) report() Baseline {
 			r.Days[n-1].Origins = append(r.Days[n-1].Origins, k.Origin)
 			continue
 		}
-		r.Days = append(r.Days, BaselineDay{Day: k.Day, Origins: []baseline.Origin{k.Origin}})
+		r.Days = append(r.Days, api.BaselineDay{Day: k.Day, Origins: []baseline.Origin{k.Origin}})
 	}
 	for i, m := range l.th.Metrics {
 		id := metric.ID(i)
-		r.Metrics = append(r.Metrics, BaselineMetric{
-			Metric: id.String(), Unit: id.Unit(), Bytes: id.IsBytes(), Source: l.bases[i].String(),
+		r.Metrics = append(r.Metrics, api.BaselineMetric{
+			Metric: id.String(), Unit: id.Unit(), Bytes: id.IsBytes(), Basis: l.bases[i],
 			Elevated: l.coding.Levels[i].Elevated, Critical: l.coding.Levels[i].Critical,
 			Grades: l.coding.Grades[i], Windows: m.Windows, Idle: m.Idle,
 		})
@@ -160,7 +129,7 @@ func (l *learner) report() Baseline {
 func (l *learner) exported() export.Baseline {
 	var e export.Baseline
 	for i, m := range l.th.Metrics {
-		e.Sources[i] = l.bases[i].String()
+		e.Bases[i] = l.bases[i]
 		e.Windows[i], e.Idle[i] = m.Windows, m.Idle
 	}
 	e.Days = len(l.th.Days)
@@ -169,4 +138,22 @@ func (l *learner) exported() export.Baseline {
 	}
 	e.Rejected = l.b.Rejected()
 	return e
+}
+
+// days copies the stored days of one origin, or of both merged per day,
+// in day order.
+func (l *learner) days(origin baseline.Origin) []api.DatedDay {
+	var out []api.DatedDay
+	for _, k := range l.b.Keys() {
+		if origin != "" && k.Origin != origin {
+			continue
+		}
+		d := l.b.Get(k)
+		if n := len(out); n > 0 && out[n-1].Day == k.Day {
+			out[n-1].D.Merge(d)
+			continue
+		}
+		out = append(out, api.DatedDay{Day: k.Day, D: d.Clone()})
+	}
+	return out
 }

@@ -27,9 +27,10 @@ import (
 // package prometheus) against an aggregator fed by the simulator through
 // real agents, with the project's own alert rules, their "for" durations
 // shortened to seconds (the expressions are unchanged). The metadata storm
-// of job 4101 must show as firing SluicePatternCritical and SluiceCriticalIO
-// alerts in Prometheus's alerts API, and both must resolve after the job
-// ends.
+// of job 4101 must show as firing SluicePatternCritical and SluiceHighIORate
+// alerts in Prometheus's alerts API (the latter with a high_rate:<metric>
+// reason), both linking the job's API page and its explanation, and all of
+// them must resolve after the job ends.
 func TestAlertsFireInPrometheus(t *testing.T) {
 	bin, err := exec.LookPath("prometheus")
 	require.NoError(t, err, "install the Debian package prometheus (make e2e needs the real server)")
@@ -44,16 +45,25 @@ func TestAlertsFireInPrometheus(t *testing.T) {
 	firing := func(name string) bool {
 		for _, a := range alerts(t, promURL) {
 			if a.Labels["alertname"] == name && a.State == "firing" && a.Labels["job_id"] == "4101" {
-				require.Contains(t, a.Annotations["advice"], "http://"+r.svc.HTTPAddr()+"/api/v1/jobs/4101")
-				if name == "SluicePatternCritical" { // the pattern's own advice, from sluice_pattern_info
+				require.Contains(t, a.Annotations["advice"], "http://"+r.svc.HTTPAddr()+"/api/v1/jobs/4101 ")
+				require.Contains(t, a.Annotations["advice"], "http://"+r.svc.HTTPAddr()+"/api/v1/jobs/4101/explain")
+				require.NotContains(t, a.Labels, "summary") // no free text in the alert's identity
+				switch name {
+				case "SluicePatternCritical": // the pattern's own advice, from sluice_pattern_info
+					require.Equal(t, "pattern:metadata_storm", a.Labels["reason"])
 					require.Contains(t, a.Annotations["advice"], "Follow your site's policy")
+				case "SluiceHighIORate":
+					require.Regexp(t, `^high_rate:[a-z_]+$`, a.Labels["reason"])
+					require.Equal(t, "warning", a.Labels["severity"])
+					metric := strings.TrimPrefix(a.Labels["reason"], "high_rate:")
+					require.Contains(t, a.Annotations["summary"], ": "+metric+" above its critical cut point")
 				}
 				return true
 			}
 		}
 		return false
 	}
-	require.Eventually(t, func() bool { r.advance(1); return firing("SluicePatternCritical") && firing("SluiceCriticalIO") },
+	require.Eventually(t, func() bool { r.advance(1); return firing("SluicePatternCritical") && firing("SluiceHighIORate") },
 		90*time.Second, time.Second, "the storm's alerts did not fire in Prometheus")
 	checkMetrics(t, "http://"+r.svc.HTTPAddr()+"/metrics")
 

@@ -95,6 +95,17 @@ func (b Basis) String() string {
 // MarshalText encodes the basis by name.
 func (b Basis) MarshalText() ([]byte, error) { return []byte(b.String()), nil }
 
+// UnmarshalText decodes a basis name.
+func (b *Basis) UnmarshalText(t []byte) error {
+	for _, c := range []Basis{BasisSeed, BasisLearned} {
+		if c.String() == string(t) {
+			*b = c
+			return nil
+		}
+	}
+	return fmt.Errorf("unknown basis %q; want seed or learned", t)
+}
+
 // Bases holds one Basis per metric.
 type Bases [metric.Count]Basis
 

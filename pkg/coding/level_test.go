@@ -5,7 +5,6 @@ import (
 	"encoding/json"
 	"math"
 	"os"
-	"path/filepath"
 	"strings"
 	"testing"
 
@@ -13,17 +12,13 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"sluice/pkg/coding"
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/metric"
 )
 
-// testdata is the repository's fixture directory for this package.
-var testdata = filepath.Join("..", "..", "testdata", "coding")
-
 func readFixture(t testing.TB, name string) []byte {
 	t.Helper()
-	b, err := os.ReadFile(filepath.Join(testdata, name))
-	require.NoError(t, err)
-	return b
+	return fixture.Read(t, "coding", name)
 }
 
 // uniform returns cuts with the same pair for every metric.
@@ -319,7 +314,7 @@ func TestLoadCutsBase(t *testing.T) {
 }
 
 func FuzzLoadCuts(f *testing.F) {
-	entries, err := os.ReadDir(testdata)
+	entries, err := os.ReadDir(fixture.Path(f, "coding"))
 	require.NoError(f, err)
 	for _, e := range entries {
 		f.Add(readFixture(f, e.Name()))

@@ -82,7 +82,8 @@ func copyCounts(m map[string]uint64) map[string]uint64 {
 // Snapshot is what one scrape reports.
 type Snapshot struct {
 	Ingest Ingest
-	// Jobs are the running jobs; an entry with State "ended" is skipped.
+	// Jobs are the running jobs, their flags decided (flagging.Attention);
+	// an ended job is skipped.
 	Jobs      []model.Summary
 	Cuts      coding.Cuts
 	Baseline  Baseline
@@ -95,6 +96,8 @@ type Snapshot struct {
 	// qualifying job counts as dropped.
 	MaxJobSeries int
 	Agents       []model.Agent // latest heartbeat per node
+	// AgentShares is every CPU share the agents' heartbeats reported.
+	AgentShares ShareHistogram
 	// BrokerConnected is whether the aggregator's connection to its NATS
 	// broker is up. The zero value reports it down (and so alerts), which
 	// is the safe side for a caller that forgets to fill it in.
@@ -103,9 +106,9 @@ type Snapshot struct {
 
 // Baseline is what the scrape says about the learned baseline.
 type Baseline struct {
-	// Sources says, per metric, whether its cut points in force are
-	// "learned" or "seed".
-	Sources [metric.Count]string
+	// Bases says, per metric, whether its cut points in force are learned
+	// or seed.
+	Bases coding.Bases
 	// Windows and Idle count the non-idle and idle windows inside the
 	// horizon, per metric.
 	Windows, Idle [metric.Count]uint64
@@ -141,8 +144,8 @@ var (
 	descLag       = prometheus.NewDesc(ns+"_ingest_lag_seconds", "Wall-clock time minus the latest interval end seen in any sample.", nil, nil)
 	descNodes     = prometheus.NewDesc(ns+"_nodes_known", "Nodes that have sent at least one sample.", nil, nil)
 	descRunning   = prometheus.NewDesc(ns+"_jobs_running", "Running jobs, by their highest live-window level.", []string{"level"}, nil)
-	descCutBytes  = prometheus.NewDesc(ns+"_cut_point_bytes_per_second", "Per-node cut point in force for a byte metric; source is learned (baseline) or seed (configured).", []string{"metric", "level", "source"}, nil)
-	descCutOps    = prometheus.NewDesc(ns+"_cut_point_operations_per_second", "Per-node cut point in force for an operation metric; source is learned (baseline) or seed (configured).", []string{"metric", "level", "source"}, nil)
+	descCutBytes  = prometheus.NewDesc(ns+"_cut_point_bytes_per_second", "Per-node cut point in force for a byte metric; basis is learned (baseline) or seed (configured).", []string{"metric", "level", "basis"}, nil)
+	descCutOps    = prometheus.NewDesc(ns+"_cut_point_operations_per_second", "Per-node cut point in force for an operation metric; basis is learned (baseline) or seed (configured).", []string{"metric", "level", "basis"}, nil)
 	descPatInfo   = prometheus.NewDesc(ns+"_pattern_info", "One series per pattern in force, always 1; its labels carry the title, severity and advice that alert annotations quote.", []string{"pattern", "title", "severity", "advice"}, nil)
 	descBaseWin   = prometheus.NewDesc(ns+"_baseline_windows", "Non-idle job-windows inside the baseline horizon, per metric.", []string{"metric"}, nil)
 	descBaseIdle  = prometheus.NewDesc(ns+"_baseline_idle_windows", "Idle job-windows inside the baseline horizon, per metric (left out of the quantiles).", []string{"metric"}, nil)
@@ -154,8 +157,8 @@ var (
 	descJobOps    = prometheus.NewDesc(ns+"_job_live_operations_per_second", "A job's live-window rate of an operation metric, mean per node.", []string{"job_id", "metric"}, nil)
 	descJobLevel  = prometheus.NewDesc(ns+"_job_level", "A job's live-window level per metric: 0 normal, 1 elevated, 2 critical.", []string{"job_id", "metric"}, nil)
 	descJobNodes  = prometheus.NewDesc(ns+"_job_nodes", "Nodes of a job reporting in its live window.", []string{"job_id"}, nil)
-	descFlag      = prometheus.NewDesc(ns+"_job_flag_active", "An active, not silenced flag on a running job; always 1 while the flag lasts. Summary is fixed when the flag is raised; pattern is empty on critical-I/O flags.", []string{"job_id", "reason", "pattern", "severity", "summary", "user", "name"}, nil)
-	descFlagScore = prometheus.NewDesc(ns+"_job_flag_score", "Match score of an active flag, 0 to 1 (latest while active; 1 for a critical-I/O flag).", []string{"job_id", "reason"}, nil)
+	descFlag      = prometheus.NewDesc(ns+"_job_flag_active", "An active, not silenced flag on a running job; always 1 while the flag lasts. Reason is high_rate:<metric> or pattern:<name>; pattern is empty on high-rate flags.", []string{"job_id", "reason", "pattern", "severity", "user", "name"}, nil)
+	descFlagScore = prometheus.NewDesc(ns+"_job_flag_score", "Match score of an active flag, 0 to 1 (latest while active; 1 for a high-rate flag).", []string{"job_id", "reason"}, nil)
 	descFlagSince = prometheus.NewDesc(ns+"_job_flag_since_timestamp_seconds", "When the condition behind an active flag began.", []string{"job_id", "reason"}, nil)
 	descPattern   = prometheus.NewDesc(ns+"_job_pattern_score", "A job's latest match score against a problem pattern, 0 to 1; only scores of 0.5 or more are exported.", []string{"job_id", "pattern"}, nil)
 	descDropped   = prometheus.NewDesc(ns+"_job_series_dropped", "Jobs that qualified for per-job series but were left out by the series cap at this scrape.", nil, nil)
@@ -163,7 +166,7 @@ var (
 	descAgentSeen    = prometheus.NewDesc(ns+"_agent_last_heartbeat_timestamp_seconds", "When a node's agent last sent a heartbeat (its own clock).", []string{"node"}, nil)
 	descAgentCPU     = prometheus.NewDesc(ns+"_agent_cpu_seconds_total", "CPU time the node's agent has used since it started.", []string{"node"}, nil)
 	descAgentShare   = prometheus.NewDesc(ns+"_agent_cpu_ratio", "Fraction of one core the node's agent used between its last two heartbeats.", []string{"node"}, nil)
-	descAgentFleet   = prometheus.NewDesc(ns+"_agent_fleet_cpu_ratio", "Distribution over nodes of the agents' CPU share (fraction of one core).", nil, nil)
+	descAgentFleet   = prometheus.NewDesc(ns+"_agent_fleet_cpu_ratio", "The agents' CPU share (fraction of one core) as each heartbeat after an agent's first reports it; rate() of the buckets over a span gives the fleet's distribution in it.", nil, nil)
 	descAgentRSS     = prometheus.NewDesc(ns+"_agent_resident_memory_bytes", "Resident memory of the node's agent.", []string{"node"}, nil)
 	descAgentQueued  = prometheus.NewDesc(ns+"_agent_queued_samples", "Samples waiting in the node's outage queue.", []string{"node"}, nil)
 	descAgentDropped = prometheus.NewDesc(ns+"_agent_dropped_samples_total", "Samples the node's agent dropped past its queue bound since it started.", []string{"node"}, nil)
@@ -178,7 +181,7 @@ var (
 
 // FleetCPUBuckets are the upper bounds of the fleet CPU share histogram:
 // from a hundredth of a percent of one core to five percent.
-var FleetCPUBuckets = []float64{0.0001, 0.0005, 0.001, 0.002, 0.005, 0.01, 0.02, 0.05}
+var FleetCPUBuckets = [8]float64{0.0001, 0.0005, 0.001, 0.002, 0.005, 0.01, 0.02, 0.05}
 
 // Describe sends every descriptor the collector may emit.
 func (c *Collector) Describe(ch chan<- *prometheus.Desc) {
@@ -211,21 +214,17 @@ func (c *Collector) Collect(ch chan<- prometheus.Metric) {
 	}
 	gauge(descNodes, float64(s.Nodes))
 	gauge(descBroker, boolGauge(s.BrokerConnected))
-	c.collectCuts(s.Cuts, s.Baseline.Sources, gauge)
+	c.collectCuts(s.Cuts, s.Baseline.Bases, gauge)
 	collectBaseline(s, counter, gauge)
 	for _, p := range s.Patterns {
 		gauge(descPatInfo, 1, p.Name, text(p.Title), p.Severity, text(strings.Join(strings.Fields(p.Advice), " ")))
 	}
 	c.collectJobs(s, gauge)
 	collectAgents(s.Agents, ch, counter, gauge)
+	ch <- s.AgentShares.metric()
 }
 
 func collectAgents(agents []model.Agent, ch chan<- prometheus.Metric, counter func(*prometheus.Desc, uint64, ...string), gauge func(*prometheus.Desc, float64, ...string)) {
-	buckets := make(map[float64]uint64, len(FleetCPUBuckets))
-	for _, b := range FleetCPUBuckets {
-		buckets[b] = 0
-	}
-	var sum float64
 	for _, a := range agents {
 		gauge(descAgentSeen, float64(a.LastSeen.UnixNano())/1e9, a.Node)
 		ch <- constMetric(descAgentCPU, prometheus.CounterValue, a.CPUSeconds, a.Node)
@@ -239,14 +238,35 @@ func collectAgents(agents []model.Agent, ch chan<- prometheus.Metric, counter fu
 			gauge(descSrcInst, float64(src.Instances), a.Node, src.Name)
 			counter(descSrcBad, src.Malformed, a.Node, src.Name)
 		}
-		sum += a.CPUShare
-		for _, b := range FleetCPUBuckets {
-			if a.CPUShare <= b {
-				buckets[b]++
-			}
+	}
+}
+
+// ShareHistogram counts the agents' CPU shares, one observation per
+// heartbeat after an agent's first, for ever: its counts only grow, as a
+// Prometheus histogram's must.
+type ShareHistogram struct {
+	Count   uint64
+	Sum     float64
+	Buckets [8]uint64 // per FleetCPUBuckets, each the observations at or below its bound
+}
+
+// Observe counts one share.
+func (h *ShareHistogram) Observe(share float64) {
+	h.Count++
+	h.Sum += share
+	for i, b := range FleetCPUBuckets {
+		if share <= b {
+			h.Buckets[i]++
 		}
 	}
-	ch <- prometheus.MustNewConstHistogram(descAgentFleet, uint64(len(agents)), sum, buckets)
+}
+
+func (h ShareHistogram) metric() prometheus.Metric {
+	buckets := make(map[float64]uint64, len(FleetCPUBuckets))
+	for i, b := range FleetCPUBuckets {
+		buckets[b] = h.Buckets[i]
+	}
+	return prometheus.MustNewConstHistogram(descAgentFleet, h.Count, h.Sum, buckets)
 }
 
 // constMetric returns a const metric, or, when a label value is refused
@@ -277,15 +297,15 @@ func splitKey(key string) (kind, reason string) {
 	return key, "other"
 }
 
-func (c *Collector) collectCuts(cuts coding.Cuts, sources [metric.Count]string, gauge func(*prometheus.Desc, float64, ...string)) {
+func (c *Collector) collectCuts(cuts coding.Cuts, bases coding.Bases, gauge func(*prometheus.Desc, float64, ...string)) {
 	for _, id := range metric.All() {
 		d := descCutOps
 		if id.IsBytes() {
 			d = descCutBytes
 		}
-		src := cmp.Or(sources[id], "seed")
-		gauge(d, cuts[id].Elevated, id.String(), coding.Elevated.String(), src)
-		gauge(d, cuts[id].Critical, id.String(), coding.Critical.String(), src)
+		basis := bases[id].String()
+		gauge(d, cuts[id].Elevated, id.String(), coding.Elevated.String(), basis)
+		gauge(d, cuts[id].Critical, id.String(), coding.Critical.String(), basis)
 	}
 }
 
@@ -338,11 +358,11 @@ func rank(j *model.Summary) int {
 	return r
 }
 
-func severityRank(severity string) int {
+func severityRank(severity model.Severity) int {
 	switch severity {
-	case "critical":
+	case model.SeverityCritical:
 		return rankFlagCritical
-	case "warning":
+	case model.SeverityWarning:
 		return rankFlagWarning
 	default:
 		return rankFlagInfo
@@ -350,7 +370,7 @@ func severityRank(severity string) int {
 }
 
 // exported reports whether a flag is exported: active and not silenced.
-func exported(f model.Flag) bool { return f.Active() && !f.Silenced }
+func exported(f model.Flag) bool { return f.State == model.FlagActive && f.Active() }
 
 // ranked is a job that qualifies for per-job series, with its rank.
 type ranked struct {
@@ -363,7 +383,7 @@ func (c *Collector) collectJobs(s Snapshot, gauge func(*prometheus.Desc, float64
 	var notable []ranked
 	for i := range s.Jobs {
 		j := &s.Jobs[i]
-		if j.State == "ended" {
+		if !j.Running() {
 			continue
 		}
 		byLevel[j.LiveLevels.Max()]++
@@ -446,9 +466,10 @@ func emitJob(j *model.Summary, ids []metric.ID, gauge func(*prometheus.Desc, flo
 		}
 		// User, name and summary are free text from the scheduler and the
 		// tracker; a stray byte is replaced rather than losing the flag.
-		gauge(descFlag, 1, j.ID, f.Reason, f.Pattern, f.Severity, text(f.Summary), text(j.User), text(j.Name))
-		gauge(descFlagScore, f.Score, j.ID, f.Reason)
-		gauge(descFlagSince, float64(f.Since.UnixNano())/1e9, j.ID, f.Reason)
+		reason := f.Reason.String()
+		gauge(descFlag, 1, j.ID, reason, f.Pattern, f.Severity.String(), text(j.User), text(j.Name))
+		gauge(descFlagScore, f.Score, j.ID, reason)
+		gauge(descFlagSince, float64(f.Since.UnixNano())/1e9, j.ID, reason)
 	}
 	for _, p := range slices.Sorted(maps.Keys(j.PatternScores)) {
 		if score := j.PatternScores[p]; score >= MinPatternScore {

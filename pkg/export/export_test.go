@@ -32,34 +32,34 @@ var update = flag.Bool("update", false, "rewrite the golden files")
 var t0 = time.Date(2026, 3, 2, 14, 5, 0, 0, time.UTC)
 
 // fixed is a snapshot of a small scenario: a metadata storm with a
-// critical-I/O flag and a critical pattern flag, a healthy streaming job
+// high-rate flag and a critical pattern flag, a healthy streaming job
 // whose pattern flag is silenced, a normal job whose only flag is silenced
 // (no per-job series at all) and an idle one.
 func fixed() export.Snapshot {
-	storm := model.Summary{JobMeta: model.JobMeta{ID: "81234", User: "dorvane", Name: "quill-index", Start: t0.Add(-10 * time.Minute)}, State: "running", NodesSeen: 64}
+	storm := model.Summary{JobMeta: model.JobMeta{ID: "81234", User: "dorvane", Name: "quill-index", Start: t0.Add(-10 * time.Minute)}, State: model.JobRunning, NodesSeen: 64}
 	storm.Live[metric.Creates] = 2500
 	storm.Live[metric.StatOps] = 15000
 	storm.LiveLevels[metric.Creates] = coding.Critical
 	storm.LiveLevels[metric.StatOps] = coding.Critical
 	storm.ActiveFlags = []model.Flag{
-		{ID: "81234/critical:creates/1", Job: "81234", Reason: "critical:creates", Metric: metric.Creates, Level: coding.Critical,
-			Score: 1, Severity: "warning", Summary: "creates 2.5k/s per node > critical cut 1k/s", Value: 2500, Cut: 1000, Since: t0},
-		{ID: "81234/pattern:metadata_storm/1", Job: "81234", Reason: "pattern:metadata_storm", Metric: metric.Creates, Level: coding.Critical,
-			Pattern: "metadata_storm", Title: "Metadata storm", Score: 0.91, Severity: "critical",
-			Summary: "Metadata storm (score 0.91) on 64 nodes", Since: t0.Add(-3 * time.Minute)},
+		{ID: "81234-1", Job: "81234", Reason: model.HighRateOf(metric.Creates), Metric: metric.Creates, Level: coding.Critical,
+			Score: 1, Severity: model.SeverityWarning, Summary: "creates above the critical cut on 64 nodes", Value: 2500, Cut: 1000, Since: t0},
+		{ID: "81234-2", Job: "81234", Reason: model.PatternOf("metadata_storm"), Metric: metric.Creates, Level: coding.Critical,
+			Pattern: "metadata_storm", Title: "Metadata storm", Score: 0.91, Severity: model.SeverityCritical,
+			Summary: "Metadata storm on 64 nodes", Since: t0.Add(-3 * time.Minute)},
 	}
 	storm.PatternScores = map[string]float64{"metadata_storm": 0.91, "stat_polling": 0.5, "small_write_flood": 0.12}
-	stream := model.Summary{JobMeta: model.JobMeta{ID: "81230", User: "ambrel", Name: "tidepool-assim"}, State: "running", NodesSeen: 4}
+	stream := model.Summary{JobMeta: model.JobMeta{ID: "81230", User: "ambrel", Name: "tidepool-assim"}, State: model.JobRunning, NodesSeen: 4}
 	stream.Live[metric.WriteBytes] = 1.5e9
 	stream.LiveLevels[metric.WriteBytes] = coding.Elevated
-	stream.ActiveFlags = []model.Flag{{ID: "81230/pattern:heavy_streaming/1", Job: "81230", Reason: "pattern:heavy_streaming", Metric: metric.WriteBytes,
-		Pattern: "heavy_streaming", Title: "Heavy streaming", Score: 0.77, Severity: "info", Summary: "Heavy streaming (score 0.77) on 4 nodes",
-		Since: t0.Add(-5 * time.Minute), Silenced: true}}
+	stream.ActiveFlags = []model.Flag{{ID: "81230-1", Job: "81230", Reason: model.PatternOf("heavy_streaming"), Metric: metric.WriteBytes,
+		Pattern: "heavy_streaming", Title: "Heavy streaming", Score: 0.77, Severity: model.SeverityInfo, Summary: "Heavy streaming on 4 nodes",
+		Since: t0.Add(-5 * time.Minute), State: model.FlagSilenced}}
 	stream.PatternScores = map[string]float64{"heavy_streaming": 0.77}
-	hushed := model.Summary{JobMeta: model.JobMeta{ID: "81235", User: "lyset", Name: "fernwave-post"}, State: "running", NodesSeen: 2}
-	hushed.ActiveFlags = []model.Flag{{ID: "81235/pattern:small_write_flood/1", Job: "81235", Reason: "pattern:small_write_flood",
-		Pattern: "small_write_flood", Score: 0.64, Severity: "warning", Summary: "Small-write flood (score 0.64) on 2 nodes", Since: t0, Silenced: true}}
-	idle := model.Summary{JobMeta: model.JobMeta{ID: "81231", User: "keswin"}, State: "running", NodesSeen: 2}
+	hushed := model.Summary{JobMeta: model.JobMeta{ID: "81235", User: "lyset", Name: "fernwave-post"}, State: model.JobRunning, NodesSeen: 2}
+	hushed.ActiveFlags = []model.Flag{{ID: "81235-1", Job: "81235", Reason: model.PatternOf("small_write_flood"),
+		Pattern: "small_write_flood", Score: 0.64, Severity: model.SeverityWarning, Summary: "Small-write flood on 2 nodes", Since: t0, State: model.FlagSilenced}}
+	idle := model.Summary{JobMeta: model.JobMeta{ID: "81231", User: "keswin"}, State: model.JobRunning, NodesSeen: 2}
 	in := export.NewIngest()
 	in.Accepted["sample"] = 1200
 	in.Accepted["job_event"] = 12
@@ -72,8 +72,13 @@ func fixed() export.Snapshot {
 		{Node: "bw002", Version: "dev", LastSeen: t0.Add(-time.Second), Interval: 5 * time.Second, CPUSeconds: 30, CPUShare: 0.003, RSSBytes: 15 << 20, Queued: 4, Dropped: 2,
 			Sources: []model.AgentSource{{Name: "lustre", Instances: 1, MicrosPerRead: 19, OK: false, Malformed: 3}}},
 	}
+	var shares export.ShareHistogram
+	for _, share := range []float64{0.0007, 0.0008, 0.0031, 0.003, 0.06} {
+		shares.Observe(share)
+	}
 	return export.Snapshot{
-		Ingest: in, Jobs: []model.Summary{idle, stream, hushed, storm}, Cuts: coding.DefaultCuts(),
+		AgentShares: shares,
+		Ingest:      in, Jobs: []model.Summary{idle, stream, hushed, storm}, Cuts: coding.DefaultCuts(),
 		Watermark: t0, Now: t0.Add(2 * time.Second), Nodes: 70, MaxJobSeries: 100, Agents: agents,
 		Patterns: []export.PatternInfo{{Name: "metadata_storm", Title: "Metadata storm", Severity: "critical",
 			Advice: "Consider contacting the user about one file per task.\n  Follow your site's policy before acting on a job."}},
@@ -181,13 +186,13 @@ func TestFlagSeries(t *testing.T) {
 		}
 	}
 	assert.ElementsMatch(t, []series{
-		{"sluice_job_flag_active", map[string]string{"job_id": "81234", "reason": "critical:creates", "pattern": "", "severity": "warning",
-			"summary": "creates 2.5k/s per node > critical cut 1k/s", "user": "dorvane", "name": "quill-index"}, 1},
+		{"sluice_job_flag_active", map[string]string{"job_id": "81234", "reason": "high_rate:creates", "pattern": "", "severity": "warning",
+			"user": "dorvane", "name": "quill-index"}, 1},
 		{"sluice_job_flag_active", map[string]string{"job_id": "81234", "reason": "pattern:metadata_storm", "pattern": "metadata_storm", "severity": "critical",
-			"summary": "Metadata storm (score 0.91) on 64 nodes", "user": "dorvane", "name": "quill-index"}, 1},
-	}, active, "severity comes from the flag, not its level; silenced flags are left out")
+			"user": "dorvane", "name": "quill-index"}, 1},
+	}, active, "severity comes from the flag, not its level; silenced flags are left out; no free text in the labels")
 	assert.ElementsMatch(t, []series{
-		{"sluice_job_flag_score", map[string]string{"job_id": "81234", "reason": "critical:creates"}, 1},
+		{"sluice_job_flag_score", map[string]string{"job_id": "81234", "reason": "high_rate:creates"}, 1},
 		{"sluice_job_flag_score", map[string]string{"job_id": "81234", "reason": "pattern:metadata_storm"}, 0.91},
 	}, scores)
 	assert.NotContains(t, jobIDs(all), "81235", "a normal job whose only flag is silenced gets no series")
@@ -196,7 +201,6 @@ func TestFlagSeries(t *testing.T) {
 func TestBadBytesInLabelsDoNotPanic(t *testing.T) {
 	s := fixed()
 	s.Jobs[3].Name = "quill-\xffindex" // storm
-	s.Jobs[3].ActiveFlags[0].Summary = "creates \xfe"
 	s.Agents[0].Node = "bw\xff01"
 	reg := prometheus.NewPedanticRegistry()
 	require.NoError(t, reg.Register(export.NewCollector(func() export.Snapshot { return s })))
@@ -207,7 +211,7 @@ func TestBadBytesInLabelsDoNotPanic(t *testing.T) {
 		if f.GetName() == "sluice_job_flag_active" {
 			for _, m := range f.GetMetric() {
 				for _, l := range m.GetLabel() {
-					if l.GetName() == "name" || l.GetName() == "summary" {
+					if l.GetName() == "name" || l.GetName() == "user" {
 						flags = append(flags, l.GetValue())
 					}
 				}
@@ -217,7 +221,7 @@ func TestBadBytesInLabelsDoNotPanic(t *testing.T) {
 			assert.Len(t, f.GetMetric(), 1, "the rest of the scrape goes on")
 		}
 	}
-	assert.ElementsMatch(t, []string{"quill-\uFFFDindex", "creates \uFFFD", "quill-\uFFFDindex", "Metadata storm (score 0.91) on 64 nodes"}, flags)
+	assert.ElementsMatch(t, []string{"quill-\uFFFDindex", "dorvane", "quill-\uFFFDindex", "dorvane"}, flags)
 }
 
 func TestPatternScoresFromHalfUp(t *testing.T) {
@@ -278,7 +282,7 @@ func TestJobsLeaveWhenNormalOrEnded(t *testing.T) {
 
 	s.Jobs[1].LiveLevels[metric.WriteBytes] = coding.Critical
 	require.True(t, present())
-	s.Jobs[1].State = "ended"
+	s.Jobs[1].State = model.JobEnded
 	assert.False(t, present(), "an ended entry is skipped")
 	s.Jobs = s.Jobs[:1]
 	assert.False(t, present(), "a job that left the snapshot is gone")
@@ -289,15 +293,19 @@ func TestCapOrder(t *testing.T) {
 	// level critical > elevated; equal ranks by job id. The snapshot lists
 	// them scrambled; a flag's own level and a silenced flag do not count.
 	job := func(id string, l coding.Level, severities ...string) model.Summary {
-		j := model.Summary{JobMeta: model.JobMeta{ID: id}, State: "running"}
+		j := model.Summary{JobMeta: model.JobMeta{ID: id}, State: model.JobRunning}
 		j.LiveLevels[metric.Opens] = l
 		for _, sev := range severities {
-			j.ActiveFlags = append(j.ActiveFlags, model.Flag{Reason: "pattern:" + sev, Pattern: sev, Severity: sev, Level: coding.Critical})
+			sv, err := model.ParseSeverity(sev)
+			if err != nil {
+				sv = model.Severity(99) // unknown: ranked as info
+			}
+			j.ActiveFlags = append(j.ActiveFlags, model.Flag{Reason: model.PatternOf(sev), Pattern: sev, Severity: sv, Level: coding.Critical})
 		}
 		return j
 	}
 	silenced := job("a-silenced", coding.Elevated, "critical")
-	silenced.ActiveFlags[0].Silenced = true
+	silenced.ActiveFlags[0].State = model.FlagSilenced
 	cleared := job("a-cleared", coding.Elevated, "critical")
 	cleared.ActiveFlags[0].Cleared = t0
 	want := []string{"j-crit-flag", "k-crit-flag", "h-warn-flag", "b-info-flag", "z-unknown-flag", "a-crit-level", "a-cleared", "a-elevated", "a-silenced", "c-elevated"}
@@ -327,22 +335,22 @@ func TestCapOrder(t *testing.T) {
 // manyJobs returns n running jobs in scrambled order: per 100, 60 normal
 // (every tenth with a silenced flag), 37 elevated, 1 critical in level and
 // 2 flagged (a pattern flag of severity critical, warning and info in
-// turn, beside a critical-I/O flag). Each notable job has all
+// turn, beside a high-rate flag). Each notable job has all
 // twelve rates and two pattern scores, one of them under the floor.
 func manyJobs(n int) []model.Summary {
 	jobs := make([]model.Summary, n)
-	severities := []string{"critical", "warning", "info"}
+	severities := []model.Severity{model.SeverityCritical, model.SeverityWarning, model.SeverityInfo}
 	for i := range jobs {
 		j := &jobs[i]
 		j.JobMeta = model.JobMeta{ID: fmt.Sprintf("%06d", 100000+i), User: fmt.Sprintf("user%03d", i%500), Name: fmt.Sprintf("app-%d", i%97)}
-		j.State, j.NodesSeen = "running", 1+i%64
+		j.State, j.NodesSeen = model.JobRunning, 1+i%64
 		for _, id := range metric.All() {
 			j.Live[id] = float64(i%1000) * float64(id+1)
 		}
 		switch k := i % 100; {
 		case k < 60:
 			if k%10 == 0 {
-				j.ActiveFlags = []model.Flag{{Reason: "pattern:stat_polling", Pattern: "stat_polling", Severity: "warning", Score: 0.8, Silenced: true}}
+				j.ActiveFlags = []model.Flag{{Reason: model.PatternOf("stat_polling"), Pattern: "stat_polling", Severity: model.SeverityWarning, Score: 0.8, State: model.FlagSilenced}}
 			}
 			continue
 		case k < 97:
@@ -353,8 +361,8 @@ func manyJobs(n int) []model.Summary {
 			sev := severities[(2*(i/100)+k-98)%3]
 			j.LiveLevels[metric.Creates] = coding.Critical
 			j.ActiveFlags = []model.Flag{
-				{Reason: "critical:creates", Severity: "warning", Score: 1, Summary: "creates 2.5k/s per node > critical cut 1k/s", Since: t0},
-				{Reason: "pattern:metadata_storm", Pattern: "metadata_storm", Severity: sev, Score: 0.91, Summary: "Metadata storm (score 0.91) on 64 nodes", Since: t0},
+				{Reason: model.HighRateOf(metric.Creates), Severity: model.SeverityWarning, Score: 1, Summary: "creates above the critical cut on 64 nodes", Since: t0},
+				{Reason: model.PatternOf("metadata_storm"), Pattern: "metadata_storm", Severity: sev, Score: 0.91, Summary: "Metadata storm on 64 nodes", Since: t0},
 			}
 		}
 		j.PatternScores = map[string]float64{"metadata_storm": 0.5 + float64(i%50)/100, "open_close_churn": 0.2}
@@ -402,8 +410,8 @@ func TestCardinalityBoundedAt5000Of20000Jobs(t *testing.T) {
 	rank := func(j model.Summary) int {
 		r := 0
 		for _, f := range j.ActiveFlags {
-			if f.Active() && !f.Silenced {
-				r = max(r, map[string]int{"critical": 6, "warning": 5}[f.Severity], 4)
+			if f.State == model.FlagActive {
+				r = max(r, map[model.Severity]int{model.SeverityCritical: 6, model.SeverityWarning: 5}[f.Severity], 4)
 			}
 		}
 		return max(r, int(j.LiveLevels.Max())+1)
@@ -456,4 +464,29 @@ func BenchmarkScrape5000Jobs(b *testing.B) {
 			b.ReportMetric(float64(len(gather(b, s))), "series")
 		})
 	}
+}
+
+// TestShareHistogramOnlyGrows: the fleet's CPU share is a real histogram
+// of heartbeats, so no count goes down whatever the shares; each bucket
+// holds the observations at or below its bound, counted by hand here.
+func TestShareHistogramOnlyGrows(t *testing.T) {
+	var h export.ShareHistogram
+	shares := []float64{0.0003, 0.00005, 0.2, 0.001, 0.0001, 0.05, 0.003, 0}
+	var prev export.ShareHistogram
+	for n, share := range shares {
+		h.Observe(share)
+		require.Equal(t, uint64(n+1), h.Count)
+		for i, b := range export.FleetCPUBuckets {
+			want := uint64(0)
+			for _, x := range shares[:n+1] {
+				if x <= b {
+					want++
+				}
+			}
+			require.Equal(t, want, h.Buckets[i], "bucket le=%g after %d", b, n+1)
+			require.GreaterOrEqual(t, h.Buckets[i], prev.Buckets[i])
+		}
+		prev = h
+	}
+	assert.InDelta(t, 0.25445, h.Sum, 1e-12)
 }

@@ -13,6 +13,7 @@ import (
 	"sluice/pkg/coding"
 	"sluice/pkg/matcher"
 	"sluice/pkg/metric"
+	"sluice/pkg/model"
 	"sluice/pkg/pattern"
 )
 
@@ -33,10 +34,10 @@ func example(t testing.TB) *pattern.Pattern {
 }
 
 // windowOf codes write_bytes, write_ops, creates and syncs; the rest idle.
-func windowOf(wb, wo, cr, sy coding.Grade) pattern.WindowView {
+func windowOf(wb, wo, cr, sy coding.Grade) matcher.View {
 	var g coding.Grades
 	g[metric.WriteBytes], g[metric.WriteOps], g[metric.Creates], g[metric.Syncs] = wb, wo, cr, sy
-	return pattern.WindowView{Grades: g, Nodes: 1}
+	return matcher.View{Grades: g, Nodes: 1}
 }
 
 // TestSellersFindsTheExampleInsideAJob pushes a job whose windows contain
@@ -46,12 +47,12 @@ func TestSellersFindsTheExampleInsideAJob(t *testing.T) {
 	lib, err := matcher.Compile([]*pattern.Pattern{example(t)})
 	require.NoError(t, err)
 	job := lib.NewJob()
-	noise := []pattern.WindowView{windowOf(3, 3, 0, 0), windowOf(2, 2, 0, 0), windowOf(3, 3, 0, 0)}
+	noise := []matcher.View{windowOf(3, 3, 0, 0), windowOf(2, 2, 0, 0), windowOf(3, 3, 0, 0)}
 	for _, v := range noise {
 		job.Window(v)
 	}
 	// The example, window by window: "116611" "114411" "005500" "004400".
-	var last matcher.Score
+	var last matcher.Verdict
 	for _, w := range [][4]coding.Grade{{1, 1, 0, 0}, {1, 1, 0, 0}, {6, 4, 5, 4}, {6, 4, 5, 4}, {1, 1, 0, 0}, {1, 1, 0, 0}} {
 		last = job.Window(windowOf(w[0], w[1], w[2], w[3]))[0]
 	}
@@ -82,17 +83,17 @@ func TestRuleKOfNAndLive(t *testing.T) {
 	lib, err := matcher.Compile([]*pattern.Pattern{parse(t, "storm.yaml", storm)})
 	require.NoError(t, err)
 	job := lib.NewJob()
-	crit := pattern.WindowView{Nodes: 4}
+	crit := matcher.View{Nodes: 4}
 	crit.Levels[metric.Creates] = coding.Critical
-	calm := pattern.WindowView{Nodes: 4}
+	calm := matcher.View{Nodes: 4}
 
 	s := job.Window(crit)[0]
 	assert.False(t, s.Matched)
 	assert.InDelta(t, 1.0/3, s.Score, 1e-12)
-	live := job.Live(crit, crit)[0]
+	live := job.Open(matcher.Open{Low: crit, High: crit})[0]
 	assert.True(t, live.Matched, "one closed and the live window: 2 of 3")
 	assert.Equal(t, 0, live.Start)
-	assert.False(t, job.Live(calm, calm)[0].Matched)
+	assert.False(t, job.Open(matcher.Open{Low: calm, High: calm})[0].Matched)
 
 	s = job.Window(calm)[0]
 	assert.False(t, s.Matched, "the live push was provisional")
@@ -111,7 +112,7 @@ func TestReplayGivesTheSameState(t *testing.T) {
 	lib, err := matcher.Compile(append(ps, example(t)))
 	require.NoError(t, err)
 	r := rand.New(rand.NewPCG(4, 4))
-	var windows []pattern.WindowView
+	var windows []matcher.View
 	for range 60 {
 		windows = append(windows, randomView(r))
 	}
@@ -127,8 +128,8 @@ func TestReplayGivesTheSameState(t *testing.T) {
 	assert.Equal(t, a.Window(next), b.Window(next))
 }
 
-func randomView(r *rand.Rand) pattern.WindowView {
-	v := pattern.WindowView{Nodes: 1 + r.IntN(64), BusiestShare: r.Float64(), NodeSpread: 2 * r.Float64()}
+func randomView(r *rand.Rand) matcher.View {
+	v := matcher.View{Nodes: 1 + r.IntN(64), BusiestShare: r.Float64(), NodeSpread: 2 * r.Float64()}
 	for i := range v.Grades {
 		v.Grades[i] = coding.Grade(r.IntN(coding.GradeCount))
 		v.Levels[i] = coding.Level(max(0, int(v.Grades[i])-4))
@@ -145,7 +146,7 @@ func library100(t testing.TB) *matcher.Library {
 	r := rand.New(rand.NewPCG(9, 9))
 	methods := []pattern.Method{pattern.Sellers, pattern.KS, pattern.Euclidean}
 	for i := range 100 - len(ps) {
-		p := &pattern.Pattern{Name: "p", Severity: pattern.Warning, RaiseAfter: 1, ClearAfter: 2, Threshold: 0.8,
+		p := &pattern.Pattern{Name: "p", Severity: model.SeverityWarning, RaiseAfter: 1, ClearAfter: 2, Threshold: 0.8,
 			Example: &pattern.Example{Method: methods[i%3]}}
 		n := 6 + r.IntN(7)
 		for _, id := range r.Perm(int(metric.Count))[:3+r.IntN(3)] {
@@ -173,7 +174,7 @@ func BenchmarkWindow100Patterns(b *testing.B) {
 	lib := library100(b)
 	job := lib.NewJob()
 	r := rand.New(rand.NewPCG(1, 1))
-	views := make([]pattern.WindowView, 64)
+	views := make([]matcher.View, 64)
 	for i := range views {
 		views[i] = randomView(r)
 	}

@@ -8,6 +8,7 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
+	"sluice/pkg/model"
 	"sluice/pkg/pattern"
 )
 
@@ -49,11 +50,11 @@ func TestBuiltinSettings(t *testing.T) {
 	assert.Equal(t, pattern.Hold{K: 2, N: 3}, by["metadata_storm"].Rule.Hold)
 	assert.Len(t, by["metadata_storm"].Rule.Any, 2, "creates or removes")
 	assert.Equal(t, pattern.Hold{K: 2, N: 2}, by["stat_polling"].Rule.Hold)
-	assert.Equal(t, pattern.Critical, by["stat_storm"].Severity)
+	assert.Equal(t, model.SeverityCritical, by["stat_storm"].Severity)
 	assert.Equal(t, 4, by["imbalanced_io"].Rule.MinNodes)
-	assert.Equal(t, pattern.Info, by["heavy_streaming"].Severity)
+	assert.Equal(t, model.SeverityInfo, by["heavy_streaming"].Severity)
 	assert.Contains(t, by["heavy_streaming"].Advice, "No action is usually needed")
-	assert.Equal(t, pattern.Critical, by["metadata_storm"].Severity)
+	assert.Equal(t, model.SeverityCritical, by["metadata_storm"].Severity)
 }
 
 func TestBuiltinIsFresh(t *testing.T) {

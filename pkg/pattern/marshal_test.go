@@ -11,6 +11,7 @@ import (
 
 	"sluice/pkg/coding"
 	"sluice/pkg/metric"
+	"sluice/pkg/model"
 	"sluice/pkg/pattern"
 )
 
@@ -56,7 +57,7 @@ func TestMarshalLearned(t *testing.T) {
 		Description: "Learned from job 81234.\nEdit before use.",
 		Rationale:   "Job 81234 overloaded the metadata servers.",
 		Advice:      "Consider contacting the user; follow your site's policy.",
-		Severity:    pattern.Warning,
+		Severity:    model.SeverityWarning,
 		RaiseAfter:  2,
 		ClearAfter:  3,
 		Threshold:   0.85,
@@ -93,7 +94,7 @@ example:
 func TestMarshalRule(t *testing.T) {
 	p := &pattern.Pattern{
 		Source: "r.yaml", Name: "rule_pattern", Title: "A rule", Description: "d", Rationale: "r",
-		Advice: "a", Severity: pattern.Critical, RaiseAfter: 1, ClearAfter: 4, Threshold: 0.5,
+		Advice: "a", Severity: model.SeverityCritical, RaiseAfter: 1, ClearAfter: 4, Threshold: 0.5,
 		Rule: &pattern.Rule{
 			Hold:     pattern.Hold{K: 1, N: 2},
 			MinNodes: 2,
@@ -219,7 +220,7 @@ func TestMarshalRoundTripRandom(t *testing.T) {
 		p := &pattern.Pattern{
 			Source: "random.yaml", Name: "random_pattern", Title: strings.NewReplacer("\n", " ", "\u2028", " ").Replace(text()),
 			Description: text(), Rationale: text(), Advice: text(),
-			Severity: pattern.Severity(rng.IntN(3)), RaiseAfter: 1 + rng.IntN(64), ClearAfter: 1 + rng.IntN(64),
+			Severity: model.Severity(rng.IntN(3)), RaiseAfter: 1 + rng.IntN(64), ClearAfter: 1 + rng.IntN(64),
 		}
 		if i%2 == 0 {
 			n := 1 + rng.IntN(64)

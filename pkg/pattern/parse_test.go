@@ -15,6 +15,7 @@ import (
 
 	"sluice/pkg/coding"
 	"sluice/pkg/metric"
+	"sluice/pkg/model"
 	"sluice/pkg/pattern"
 )
 
@@ -286,7 +287,7 @@ rule:
 		Description: "A test.",
 		Rationale:   "Because.",
 		Advice:      "Consider it; follow your site's policy.",
-		Severity:    pattern.Warning,
+		Severity:    model.SeverityWarning,
 		RaiseAfter:  4,
 		ClearAfter:  5,
 		Threshold:   2.0 / 3,
@@ -343,7 +344,7 @@ func TestParseExampleFixture(t *testing.T) {
 		return gs
 	}
 	assert.Equal(t, "checkpoint_burst", got.Name)
-	assert.Equal(t, pattern.Info, got.Severity)
+	assert.Equal(t, model.SeverityInfo, got.Severity)
 	assert.Equal(t, 0.75, got.Threshold)
 	assert.Equal(t, 1, got.RaiseAfter)
 	assert.Equal(t, 2, got.ClearAfter)

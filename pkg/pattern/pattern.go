@@ -6,6 +6,7 @@ import (
 
 	"sluice/pkg/coding"
 	"sluice/pkg/metric"
+	"sluice/pkg/model"
 )
 
 // Limits and defaults of the pattern file format (schema 1); see the
@@ -59,7 +60,7 @@ type Pattern struct {
 	// Advice is the text for on-call staff.
 	Advice string
 	// Severity ranks a flag raised by the pattern.
-	Severity Severity
+	Severity model.Severity
 	// RaiseAfter is the number of consecutive windows whose score must be
 	// at or above Threshold before a flag is raised.
 	RaiseAfter int
@@ -81,40 +82,6 @@ func (p *Pattern) Kind() string {
 		return "rule"
 	}
 	return "example"
-}
-
-// Severity ranks a pattern's flags.
-type Severity uint8
-
-// The severities, in increasing order.
-const (
-	Info Severity = iota
-	Warning
-	Critical
-)
-
-var severityNames = [...]string{Info: "info", Warning: "warning", Critical: "critical"}
-
-// String returns the severity's name as written in pattern files.
-func (s Severity) String() string {
-	if int(s) < len(severityNames) {
-		return severityNames[s]
-	}
-	return fmt.Sprintf("severity(%d)", uint8(s))
-}
-
-// MarshalText encodes the severity by name.
-func (s Severity) MarshalText() ([]byte, error) { return []byte(s.String()), nil }
-
-// UnmarshalText decodes a severity name.
-func (s *Severity) UnmarshalText(b []byte) error {
-	for i, n := range severityNames {
-		if n == string(b) {
-			*s = Severity(i)
-			return nil
-		}
-	}
-	return fmt.Errorf("unknown severity %q; want info, warning or critical", b)
 }
 
 // Method is how an example pattern is compared with a job's signature;

@@ -11,6 +11,7 @@ import (
 	"sluice/pkg/internal/storetest"
 	"sluice/pkg/metric"
 	"sluice/pkg/report"
+	"sluice/pkg/signature"
 	"sluice/pkg/store"
 	"sluice/pkg/tracker"
 )
@@ -48,7 +49,8 @@ func TestSignatureRebuiltFromWindowsEqualsIncremental(t *testing.T) {
 		require.Len(t, st.Jobs, 1)
 		rebuilt, err := s.Signature(job)
 		require.NoError(t, err)
-		got := st.Jobs[0].Signature
+		var got signature.Signature
+		require.NoError(t, got.UnmarshalBinary(st.Jobs[0].Signature))
 		require.Positive(t, got.Windows)
 		got.Live, got.HasLive = rebuilt.Live, rebuilt.HasLive // the live entry is not in the windows
 		require.Equal(t, rebuilt, got, "trial %d", trial)

@@ -10,10 +10,10 @@
 // a second's worth of changes into one. Records are JSON, keyed as:
 //
 //	meta     "schema" -> "1", "watermark" -> RFC 3339 time
-//	jobs     job id -> tracker.JobState
+//	jobs     job id -> model.JobRecord
 //	windows  job id, 0x00, 8-byte big-endian index -> model.Window
 //	flags    flag id -> model.Flag
-//	nodes    node -> tracker.SeqSet
+//	nodes    node -> model.SeqRecord
 //	signatures job id -> signature.Signature in its binary form
 //	baseline origin, "/", YYYY-MM-DD -> baseline.Day in its binary form
 //	silences silence id -> model.Silence
@@ -31,6 +31,7 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"slices"
 	"strings"
 	"time"
 
@@ -41,7 +42,6 @@ import (
 	"sluice/pkg/coding"
 	"sluice/pkg/model"
 	"sluice/pkg/signature"
-	"sluice/pkg/tracker"
 )
 
 // SchemaVersion is the layout version this package reads and writes.
@@ -134,11 +134,11 @@ func (s *Store) Check() error {
 
 // Batch is a set of changes written in one transaction.
 type Batch struct {
-	Jobs      []tracker.JobState
+	Jobs      []model.JobRecord
 	GoneJobs  []string
 	Windows   []model.Window
 	Flags     []model.Flag
-	Nodes     map[string]tracker.SeqSet
+	Nodes     map[string]model.SeqRecord
 	Watermark time.Time
 	// Days are baseline days to write (a nil Day deletes the key).
 	Days map[baseline.Key]*baseline.Day
@@ -240,16 +240,15 @@ func (s *Store) Days() (map[baseline.Key]*baseline.Day, error) {
 
 // putJob writes a job's record and, apart, its signature. Signatures of
 // forgotten jobs stay, like their windows.
-func putJob(tx *bolt.Tx, j *tracker.JobState) error {
+func putJob(tx *bolt.Tx, j *model.JobRecord) error {
 	key := []byte(j.Meta.ID)
 	if err := putJSON(tx.Bucket(bucketJobs), key, j); err != nil {
 		return err
 	}
-	sig, err := j.Signature.MarshalBinary()
-	if err != nil {
-		return fmt.Errorf("encode signature of %q: %w", key, err)
+	if j.Signature == nil {
+		return nil
 	}
-	return tx.Bucket(bucketSigs).Put(key, sig)
+	return tx.Bucket(bucketSigs).Put(key, j.Signature)
 }
 
 func putJSON(b *bolt.Bucket, key []byte, v any) error {
@@ -269,20 +268,21 @@ func windowKey(job string, idx int) []byte {
 
 // State is everything a restarting aggregator loads.
 type State struct {
-	Jobs      []tracker.JobState
-	Nodes     map[string]tracker.SeqSet
+	Jobs      []model.JobRecord
+	Nodes     map[string]model.SeqRecord
 	Watermark time.Time
 }
 
 // Load reads the jobs, node sequence sets and watermark.
 func (s *Store) Load() (State, error) {
-	st := State{Nodes: map[string]tracker.SeqSet{}}
+	st := State{Nodes: map[string]model.SeqRecord{}}
 	err := s.db.View(func(tx *bolt.Tx) error {
 		err := tx.Bucket(bucketJobs).ForEach(func(k, v []byte) error {
-			var j tracker.JobState
+			var j model.JobRecord
 			if err := json.Unmarshal(v, &j); err != nil {
 				return fmt.Errorf("job %q: %w", k, err)
 			}
+			j.Upgrade()
 			if err := loadSignature(tx, &j); err != nil {
 				return err
 			}
@@ -293,7 +293,7 @@ func (s *Store) Load() (State, error) {
 			return err
 		}
 		err = tx.Bucket(bucketNodes).ForEach(func(k, v []byte) error {
-			var n tracker.SeqSet
+			var n model.SeqRecord
 			if err := json.Unmarshal(v, &n); err != nil {
 				return fmt.Errorf("node %q: %w", k, err)
 			}
@@ -321,18 +321,21 @@ func (s *Store) Load() (State, error) {
 // loadSignature reads a job's signature, or rebuilds it from the job's
 // stored windows when the file has none (written before signatures were
 // kept): both give the same signature.
-func loadSignature(tx *bolt.Tx, j *tracker.JobState) error {
+func loadSignature(tx *bolt.Tx, j *model.JobRecord) error {
 	if b := tx.Bucket(bucketSigs).Get([]byte(j.Meta.ID)); b != nil {
-		if err := j.Signature.UnmarshalBinary(b); err != nil {
+		var sig signature.Signature
+		if err := sig.UnmarshalBinary(b); err != nil {
 			return fmt.Errorf("signature of job %q: %w", j.Meta.ID, err)
 		}
+		j.Signature = slices.Clone(b)
 		return nil
 	}
 	ws, err := windowsOf(tx, j.Meta.ID)
 	if err != nil {
 		return err
 	}
-	j.Signature = signature.Build(gradesOf(ws))
+	sig := signature.Build(gradesOf(ws))
+	j.Signature, _ = sig.MarshalBinary() // cannot fail
 	return nil
 }
 

@@ -11,38 +11,39 @@ import (
 
 	"sluice/pkg/baseline"
 	"sluice/pkg/coding"
+	"sluice/pkg/internal/fixture"
 	"sluice/pkg/internal/storetest"
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
 	"sluice/pkg/store"
-	"sluice/pkg/tracker"
 )
 
 var t0 = time.Date(2026, 3, 2, 14, 0, 0, 0, time.UTC)
 
 func TestRoundTrip(t *testing.T) {
 	s := storetest.MustOpen(t)
-	job := tracker.JobState{
+	job := model.JobRecord{
 		Meta:   model.JobMeta{ID: "81234", User: "dorvane", Nodes: []string{"bw007", "bw008"}, Start: t0, Announced: true},
-		Live:   map[string][]tracker.Slice{"bw007": {{End: t0.Add(5 * time.Second), Seconds: 5, Values: metric.Values{metric.Creates: 12500}}}},
-		Open:   map[int]*tracker.OpenWindow{0: {Nodes: map[string]*tracker.Accum{"bw007": {Seconds: 5, Values: metric.Values{metric.Creates: 12500}}}}},
+		Live:   map[string][]model.SliceRecord{"bw007": {{End: t0.Add(5 * time.Second), Seconds: 5, Values: metric.Values{metric.Creates: 12500}}}},
+		Open:   map[int]model.OpenRecord{0: {Nodes: map[string]model.AccumRecord{"bw007": {Seconds: 5, Values: metric.Values{metric.Creates: 12500}}}}},
 		Closed: 0,
 	}
 	job.LiveRates[metric.Creates] = 2500
 	job.LiveLevels[metric.Creates] = coding.Critical
-	flag := model.Flag{ID: "81234/critical:creates/1", Job: "81234", Reason: "critical:creates", Metric: metric.Creates, Level: coding.Critical, Value: 2500, Cut: 1000, Since: t0, Raised: t0}
-	job.Hyst[metric.Creates] = tracker.Hysteresis{Above: 3, Since: t0, Flag: &flag}
+	flag := model.Flag{ID: "81234-1", Job: "81234", Reason: model.HighRateOf(metric.Creates), Metric: metric.Creates, Level: coding.Critical, Value: 2500, Cut: 1000, Since: t0, Raised: t0}
+	job.Holds = map[model.Reason]model.HoldRecord{flag.Reason: {Above: 3, Since: t0, Score: 1, Flag: &flag}}
+	job.FlagsRaised = 1
 	w0 := model.Window{Job: "81234", Index: 0, Start: t0, End: t0.Add(time.Minute), Nodes: 2}
 	w1 := model.Window{Job: "81234", Index: 1, Start: t0.Add(time.Minute), End: t0.Add(2 * time.Minute), Nodes: 2}
 	other := model.Window{Job: "812340", Index: 0, Start: t0, End: t0.Add(time.Minute), Nodes: 1}
-	seqs := tracker.SeqSet{High: 42, Bits: make([]uint64, 64)}
+	seqs := model.SeqRecord{High: 42, Bits: make([]uint64, 64)}
 	seqs.Bits[0] = 0b1011
 
 	require.NoError(t, s.Apply(&store.Batch{
-		Jobs:      []tracker.JobState{job},
+		Jobs:      []model.JobRecord{job},
 		Windows:   []model.Window{w1, other, w0},
 		Flags:     []model.Flag{flag},
-		Nodes:     map[string]tracker.SeqSet{"bw007": seqs},
+		Nodes:     map[string]model.SeqRecord{"bw007": seqs},
 		Watermark: t0.Add(5 * time.Second),
 	}))
 	st, err := s.Load()
@@ -53,7 +54,8 @@ func TestRoundTrip(t *testing.T) {
 	assert.Equal(t, job.LiveRates, st.Jobs[0].LiveRates)
 	assert.Equal(t, job.LiveLevels, st.Jobs[0].LiveLevels)
 	assert.Equal(t, job.Open[0].Nodes["bw007"], st.Jobs[0].Open[0].Nodes["bw007"])
-	assert.Equal(t, flag.Reason, st.Jobs[0].Hyst[metric.Creates].Flag.Reason)
+	assert.Equal(t, job.Holds, st.Jobs[0].Holds)
+	assert.Equal(t, 1, st.Jobs[0].FlagsRaised)
 	assert.Equal(t, seqs, st.Nodes["bw007"])
 	assert.True(t, st.Watermark.Equal(t0.Add(5*time.Second)))
 
@@ -123,4 +125,31 @@ func TestBaselineDaysRoundTrip(t *testing.T) {
 	require.NoError(t, err)
 	assert.Len(t, got, 1)
 	assert.Contains(t, got, live)
+}
+
+// TestJobOfSchemaOneIsUpgraded reads a job record as the state file held
+// it before the raise-and-clear state moved into one map (testdata/store):
+// the high-rate flag on creates and the metadata_storm flag come back as
+// holds, by reason, with their counts and flags.
+func TestJobOfSchemaOneIsUpgraded(t *testing.T) {
+	s := storetest.MustOpen(t)
+	require.NoError(t, s.PutRaw("jobs", "81234", fixture.Read(t, "store", "job_v1.json")))
+	st, err := s.Load()
+	require.NoError(t, err)
+	require.Len(t, st.Jobs, 1)
+	j := st.Jobs[0]
+	assert.Nil(t, j.LegacyRates)
+	assert.Nil(t, j.LegacyPatterns)
+	require.Len(t, j.Holds, 2)
+	rate := j.Holds[model.HighRateOf(metric.Creates)]
+	require.NotNil(t, rate.Flag)
+	assert.Equal(t, model.HighRateOf(metric.Creates), rate.Flag.Reason, `"critical:creates" is read as high_rate:creates`)
+	assert.Equal(t, model.SeverityWarning, rate.Flag.Severity)
+	assert.Positive(t, rate.Above)
+	storm := j.Holds[model.PatternOf("metadata_storm")]
+	require.NotNil(t, storm.Flag)
+	assert.Equal(t, model.SeverityCritical, storm.Flag.Severity)
+	assert.Equal(t, "metadata_storm", storm.Flag.Pattern)
+	assert.InDelta(t, 2.0/3, storm.Score, 1e-9)
+	assert.NotEmpty(t, j.Signature, "a missing signature is rebuilt from the windows (none here: an empty one)")
 }

@@ -23,21 +23,20 @@ func BenchmarkWindowClose1000Nodes(b *testing.B) {
 	if err != nil {
 		b.Fatal(err)
 	}
-	ow := &OpenWindow{Nodes: map[string]*Accum{}}
+	ow := newOpenWindow()
 	for n := range 1000 {
-		a := &Accum{Seconds: 600}
-		for i := range a.Values {
-			a.Values[i] = uint64((n + 1) * (i + 1) * 1000)
+		var v metric.Values
+		for i := range v {
+			v[i] = uint64((n + 1) * (i + 1) * 1000)
 		}
-		ow.Nodes[fmt.Sprintf("bw%04d", n)] = a
-		ow.list = append(ow.list, a)
+		ow.add(fmt.Sprintf("bw%04d", n), 600, v)
 	}
-	j := &JobState{Meta: model.JobMeta{ID: "81234"}}
+	j := newJob(model.JobMeta{ID: "81234"})
 	start := time.Date(2026, 12, 1, 14, 0, 0, 0, time.UTC)
 	b.ReportAllocs()
 	for b.Loop() {
-		w := tr.windowOf(j.Meta.ID, 0, start, start.Add(10*time.Minute), ow)
-		j.Signature.Append(w.Grades)
+		w := tr.windowOf(j.meta.ID, 0, start, start.Add(10*time.Minute), ow)
+		j.signature.Append(w.Grades)
 		day := baseline.DayOf(w.End)
 		for id, r := range w.Rates {
 			_ = base.Add(day, metric.ID(id), r)

@@ -1,11 +1,17 @@
 package tracker
 
-// SeqSet remembers which of a node's recent sequence numbers were applied,
+import (
+	"slices"
+
+	"sluice/pkg/model"
+)
+
+// seqSet remembers which of a node's recent sequence numbers were applied,
 // so a replayed sample changes nothing. It keeps the highest sequence seen
 // and a ring bitmap of the span below it.
-type SeqSet struct {
-	High uint64   `json:"high"`
-	Bits []uint64 `json:"bits"`
+type seqSet struct {
+	high uint64
+	bits []uint64
 }
 
 // seqVerdict says what to do with a sequence number.
@@ -17,45 +23,53 @@ const (
 	seqStale // older than the remembered span: cannot tell, so not applied
 )
 
-func newSeqSet(span int) *SeqSet {
-	return &SeqSet{Bits: make([]uint64, (span+63)/64)}
+func newSeqSet(span int) *seqSet {
+	return &seqSet{bits: make([]uint64, (span+63)/64)}
 }
 
-func (s *SeqSet) span() uint64 { return uint64(len(s.Bits)) * 64 }
+func (s *seqSet) span() uint64 { return uint64(len(s.bits)) * 64 }
 
-func (s *SeqSet) bit(seq uint64) (word int, mask uint64) {
+func (s *seqSet) bit(seq uint64) (word int, mask uint64) {
 	i := seq % s.span()
 	return int(i / 64), 1 << (i % 64)
 }
 
 // check classifies seq without recording it.
-func (s *SeqSet) check(seq uint64) seqVerdict {
+func (s *seqSet) check(seq uint64) seqVerdict {
 	switch {
-	case seq > s.High:
+	case seq > s.high:
 		return seqNew
-	case seq+s.span() <= s.High:
+	case seq+s.span() <= s.high:
 		return seqStale
 	}
 	w, m := s.bit(seq)
-	if s.Bits[w]&m != 0 {
+	if s.bits[w]&m != 0 {
 		return seqDuplicate
 	}
 	return seqNew
 }
 
 // mark records seq as applied; check must have returned seqNew.
-func (s *SeqSet) mark(seq uint64) {
-	if seq > s.High {
-		if seq-s.High >= s.span() {
-			clear(s.Bits)
+func (s *seqSet) mark(seq uint64) {
+	if seq > s.high {
+		if seq-s.high >= s.span() {
+			clear(s.bits)
 		} else {
-			for q := s.High + 1; q < seq; q++ {
+			for q := s.high + 1; q < seq; q++ {
 				w, m := s.bit(q)
-				s.Bits[w] &^= m
+				s.bits[w] &^= m
 			}
 		}
-		s.High = seq
+		s.high = seq
 	}
 	w, m := s.bit(seq)
-	s.Bits[w] |= m
+	s.bits[w] |= m
+}
+
+func (s *seqSet) record() model.SeqRecord {
+	return model.SeqRecord{High: s.high, Bits: slices.Clone(s.bits)}
+}
+
+func seqSetOf(r model.SeqRecord) *seqSet {
+	return &seqSet{high: r.High, bits: slices.Clone(r.Bits)}
 }

@@ -1,6 +1,7 @@
 // Package tracker is the aggregator's model of running jobs: it applies
 // samples and job events, rolls each job's fixed windows and its live
-// window, classifies them against cut points and raises and clears flags.
+// window, codes them, has the matcher score them and the flag machine
+// raise and clear flags on them.
 //
 // # Basics
 //
@@ -9,13 +10,18 @@
 // report, never the aggregator's clock, so a replay gives the same result as
 // the live run. Each change a caller must persist or report comes back from
 // [Tracker.Drain] as an [Event]; [Tracker.DirtyJobs] and
-// [Tracker.DirtyNodes] say which state to write.
+// [Tracker.DirtyNodes] give the records to write.
 //
 // A job's window k spans [start+k*W, start+(k+1)*W). A sample belongs to the
 // window its interval end falls in. A node's rate in a window is the sum of
 // its deltas divided by the seconds its samples cover; the window's value is
 // the mean of those rates over the nodes that reported. The live window is
 // the same mean over the last Live seconds of each node's samples.
+//
+// A sample's walk is one way down: the tracker keeps the window sums, has
+// package coding code a closing window, appends it to the job's signature,
+// gives it to the job's matcher.Job and hands each verdict to the job's
+// flagging.Holds; nothing it calls calls back.
 //
 // # Caveats
 //
@@ -54,7 +60,7 @@ type Options struct {
 	// them; the zero value means coding.DefaultCuts().
 	Cuts coding.Cuts
 	// RaiseAfter is how many consecutive live evaluations above a critical
-	// cut raise a flag; zero means 2.
+	// cut raise a high-rate flag; zero means 2.
 	RaiseAfter int
 	// ClearAfter is how many consecutive evaluations at or below the cut
 	// clear it; zero means 3.
@@ -71,7 +77,7 @@ type Options struct {
 	// KeepEnded is how long an ended job stays listed; zero means 1 hour.
 	KeepEnded time.Duration
 	// Patterns is the pattern library every job is matched against as
-	// its windows close and on its live window; nil matches nothing.
+	// its windows close and on its open window; nil matches nothing.
 	Patterns *matcher.Library
 }
 
@@ -131,8 +137,8 @@ type Counters struct {
 type Tracker struct {
 	opts      Options
 	coding    coding.Coding
-	jobs      map[string]*JobState
-	nodes     map[string]*SeqSet
+	jobs      map[string]*job
+	nodes     map[string]*seqSet
 	watermark time.Time
 	counters  Counters
 
@@ -151,8 +157,8 @@ func New(opts Options) (*Tracker, error) {
 	return &Tracker{
 		opts:       opts,
 		coding:     coding.Seed(opts.Cuts),
-		jobs:       make(map[string]*JobState),
-		nodes:      make(map[string]*SeqSet),
+		jobs:       make(map[string]*job),
+		nodes:      make(map[string]*seqSet),
 		dirtyJobs:  make(map[string]struct{}),
 		dirtyNodes: make(map[string]struct{}),
 	}, nil
@@ -174,6 +180,9 @@ func (t *Tracker) Counters() Counters { return t.counters }
 // Watermark is the latest interval end seen in any sample.
 func (t *Tracker) Watermark() time.Time { return t.watermark }
 
+// Nodes is the number of nodes that have sent samples.
+func (t *Tracker) Nodes() int { return len(t.nodes) }
+
 // Sample applies one sample. Applying the same (node, seq) twice returns
 // ErrDuplicate and changes nothing.
 func (t *Tracker) Sample(s *report.Sample) error {
@@ -189,7 +198,7 @@ func (t *Tracker) Sample(s *report.Sample) error {
 	case seqDuplicate:
 		return fmt.Errorf("%w: node %s seq %d", ErrDuplicate, s.Node, s.Seq)
 	case seqStale:
-		return fmt.Errorf("%w: node %s seq %d, highest %d", ErrStale, s.Node, s.Seq, seqs.High)
+		return fmt.Errorf("%w: node %s seq %d, highest %d", ErrStale, s.Node, s.Seq, seqs.high)
 	}
 	seqs.mark(s.Seq)
 	t.dirtyNodes[s.Node] = struct{}{}
@@ -241,27 +250,27 @@ func (t *Tracker) apply(id string, s *report.Sample, v metric.Values) error {
 		}
 		j = t.newJob(model.JobMeta{ID: id, Start: s.Start})
 	}
-	if j.Meta.Ended() && s.End.After(j.Meta.End.Add(t.opts.Grace)) {
-		return fmt.Errorf("%w: job %s ended %s, sample ends %s", ErrLate, id, j.Meta.End, s.End)
+	if j.meta.Ended() && s.End.After(j.meta.End.Add(t.opts.Grace)) {
+		return fmt.Errorf("%w: job %s ended %s, sample ends %s", ErrLate, id, j.meta.End, s.End)
 	}
 	idx := j.windowIndex(s.End, t.opts.Window)
-	if idx < j.Closed {
+	if idx < j.closed {
 		return fmt.Errorf("%w: job %s window %d already closed", ErrLate, id, idx)
 	}
 	secs := s.End.Sub(s.Start).Seconds()
-	j.addLive(s.Node, Slice{End: s.End, Seconds: secs, Values: v})
+	j.addLive(s.Node, slice{end: s.End, seconds: secs, values: v})
 	j.addWindow(idx, s.Node, secs, v)
-	if s.End.After(j.LastSample) {
-		j.LastSample = s.End
+	if s.End.After(j.lastSample) {
+		j.lastSample = s.End
 	}
 	j.dirty = true
 	t.dirtyJobs[id] = struct{}{}
-	t.closeWindows(j, j.LastSample)
+	t.closeWindows(j, j.lastSample)
 	return nil
 }
 
-func (t *Tracker) newJob(meta model.JobMeta) *JobState {
-	j := &JobState{Meta: meta, Live: make(map[string][]Slice), Open: make(map[int]*OpenWindow)}
+func (t *Tracker) newJob(meta model.JobMeta) *job {
+	j := newJob(meta)
 	t.jobs[meta.ID] = j
 	t.dirtyJobs[meta.ID] = struct{}{}
 	t.emit(Event{Kind: JobSeen, Job: meta.ID})
@@ -283,7 +292,7 @@ func (t *Tracker) JobEvent(e *report.JobEvent) error {
 		}
 		j = t.newJob(model.JobMeta{ID: e.Job, Start: e.Time})
 	}
-	m := &j.Meta
+	m := &j.meta
 	m.Announced = true
 	m.User = cmp.Or(e.User, m.User)
 	m.Account = cmp.Or(e.Account, m.Account)
@@ -309,8 +318,8 @@ func (t *Tracker) Tick() {
 	wm := t.watermark
 	for _, id := range t.sortedJobIDs() {
 		j := t.jobs[id]
-		if j.Finished {
-			if wm.Sub(j.Meta.End) > t.opts.KeepEnded {
+		if j.finished {
+			if wm.Sub(j.meta.End) > t.opts.KeepEnded {
 				delete(t.jobs, id)
 				t.gone = append(t.gone, id)
 			}
@@ -321,10 +330,10 @@ func (t *Tracker) Tick() {
 			t.evaluate(j)
 			j.dirty = false
 		}
-		if !j.Meta.Ended() && !j.LastSample.IsZero() && wm.Sub(j.LastSample) > t.opts.Silent {
-			j.Meta.End = j.LastSample // taken as ended: no samples for too long
+		if !j.meta.Ended() && !j.lastSample.IsZero() && wm.Sub(j.lastSample) > t.opts.Silent {
+			j.meta.End = j.lastSample // taken as ended: no samples for too long
 		}
-		if j.Meta.Ended() && wm.Sub(j.Meta.End) >= t.opts.Grace {
+		if j.meta.Ended() && wm.Sub(j.meta.End) >= t.opts.Grace {
 			t.finish(j)
 		}
 	}
@@ -340,20 +349,35 @@ func (t *Tracker) sortedJobIDs() []string {
 }
 
 // finish closes an ended job's open windows and clears its flags.
-func (t *Tracker) finish(j *JobState) {
+func (t *Tracker) finish(j *job) {
 	t.closeWindows(j, time.Time{}) // zero: close everything
-	for i := range j.Hyst {
-		if f := j.Hyst[i].Flag; f != nil {
-			f.Cleared = j.Meta.End
-			t.emit(Event{Kind: FlagCleared, Job: j.Meta.ID, Flag: f})
-			j.Hyst[i] = Hysteresis{}
-		}
+	for _, f := range j.holds.ClearAll(j.meta.End) {
+		t.emit(Event{Kind: FlagCleared, Job: j.meta.ID, Flag: f})
 	}
-	t.clearPatterns(j)
-	j.Finished = true
-	j.Live = map[string][]Slice{}
-	t.dirtyJobs[j.Meta.ID] = struct{}{}
-	t.emit(Event{Kind: JobEnded, Job: j.Meta.ID})
+	j.finished = true
+	j.live = map[string][]slice{}
+	t.dirtyJobs[j.meta.ID] = struct{}{}
+	t.emit(Event{Kind: JobEnded, Job: j.meta.ID})
+}
+
+// EventKind says what changed.
+type EventKind int
+
+// The kinds of change a tracker reports.
+const (
+	JobSeen      EventKind = iota + 1 // first sample or start event of a job
+	WindowClosed                      // a window closed; Window is set
+	FlagRaised                        // a flag was raised; Flag is set
+	FlagCleared                       // a flag was cleared; Flag is set
+	JobEnded                          // a job finished; its windows are closed
+)
+
+// Event is one change, for the caller to persist and report.
+type Event struct {
+	Kind   EventKind
+	Job    string
+	Window *model.Window
+	Flag   *model.Flag
 }
 
 func (t *Tracker) emit(e Event) { t.events = append(t.events, e) }
@@ -364,6 +388,3 @@ func (t *Tracker) Drain() []Event {
 	t.events = nil
 	return ev
 }
-
-// Nodes is the number of nodes that have sent samples.
-func (t *Tracker) Nodes() int { return len(t.nodes) }

@@ -10,6 +10,7 @@ import (
 
 	"sluice/pkg/coding"
 	"sluice/pkg/metric"
+	"sluice/pkg/model"
 	"sluice/pkg/report"
 	"sluice/pkg/tracker"
 )
@@ -152,7 +153,8 @@ func TestHysteresisRaisesOnceAndClears(t *testing.T) {
 	sum, _ := tr.Job("9")
 	require.Len(t, sum.ActiveFlags, 1)
 	f := sum.ActiveFlags[0]
-	assert.Equal(t, "critical:creates", f.Reason)
+	assert.Equal(t, model.HighRateOf(metric.Creates), f.Reason)
+	assert.Equal(t, "high_rate:creates", f.Reason.String())
 	assert.Equal(t, t0.Add(5*time.Second), f.Since, "since = first evaluation above the cut")
 	assert.InDelta(t, cut, f.Cut, 0)
 
@@ -199,7 +201,7 @@ func TestJobEndClosesWindowsAndClearsFlags(t *testing.T) {
 	assert.Equal(t, 1, kinds[tracker.WindowClosed])
 	assert.Equal(t, 1, kinds[tracker.JobEnded])
 	sum, _ := tr.Job("5")
-	assert.Equal(t, "ended", sum.State)
+	assert.Equal(t, model.JobEnded, sum.State)
 }
 
 func TestSharedNodeUsesPerJobSplitWhenGiven(t *testing.T) {
@@ -237,8 +239,11 @@ func TestRestoreResumesExactly(t *testing.T) {
 	jobs, _ := a.DirtyJobs()
 	data, err := json.Marshal(jobs)
 	require.NoError(t, err)
-	var restored []tracker.JobState
+	var restored []model.JobRecord
 	require.NoError(t, json.Unmarshal(data, &restored))
+	for i := range restored {
+		restored[i].Signature = jobs[i].Signature // the store keeps it in a bucket of its own
+	}
 	nodes := a.DirtyNodes()
 	b := newTracker(t, opts)
 	require.NoError(t, b.Restore(restored, nodes, a.Watermark()))

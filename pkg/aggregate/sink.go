@@ -1,0 +1,76 @@
+package aggregate
+
+import (
+	"errors"
+
+	"sluice/pkg/ingest"
+	"sluice/pkg/model"
+	"sluice/pkg/report"
+	"sluice/pkg/tracker"
+)
+
+// sink is the service as package ingest sees it: each message applied
+// under the service lock.
+type sink struct{ s *Service }
+
+func (k sink) Sample(smp *report.Sample) error {
+	k.s.mu.Lock()
+	err := k.s.tr.Sample(smp)
+	k.s.mu.Unlock()
+	return refusal(err)
+}
+
+func (k sink) JobEvent(e *report.JobEvent) error {
+	k.s.mu.Lock()
+	err := k.s.tr.JobEvent(e)
+	k.s.mu.Unlock()
+	return refusal(err)
+}
+
+func (k sink) Heartbeat(hb *report.Heartbeat) error {
+	k.s.mu.Lock()
+	a, shared := agentOf(hb, k.s.agents[hb.Node])
+	k.s.agents[hb.Node] = a
+	if shared {
+		k.s.shares.Observe(a.CPUShare)
+	}
+	k.s.mu.Unlock()
+	return nil
+}
+
+// refusal names the reason a tracker refusal is counted under.
+func refusal(err error) error {
+	if err == nil {
+		return nil
+	}
+	reason := "other"
+	switch {
+	case errors.Is(err, tracker.ErrDuplicate):
+		reason = "duplicate"
+	case errors.Is(err, tracker.ErrStale):
+		reason = "stale"
+	case errors.Is(err, tracker.ErrBadInterval):
+		reason = "bad_interval"
+	case errors.Is(err, tracker.ErrLate):
+		reason = "late"
+	}
+	return ingest.Refuse(reason, err)
+}
+
+// agentOf turns a heartbeat into the node's agent status; prev, the
+// status from the node's previous heartbeat, gives the CPU share, and
+// shared says there was one to give it.
+func agentOf(hb *report.Heartbeat, prev model.Agent) (a model.Agent, shared bool) {
+	a = model.Agent{
+		Node: hb.Node, Version: hb.Version, LastSeen: hb.Time, Interval: hb.Interval,
+		CPUSeconds: hb.CPUSeconds, RSSBytes: hb.RSSBytes, Queued: hb.Queued, Dropped: hb.Dropped,
+	}
+	if dt := hb.Time.Sub(prev.LastSeen).Seconds(); prev.Node != "" && dt > 0 && hb.CPUSeconds >= prev.CPUSeconds {
+		a.CPUShare = (hb.CPUSeconds - prev.CPUSeconds) / dt
+		shared = true
+	}
+	for _, c := range hb.Sources {
+		a.Sources = append(a.Sources, model.AgentSource{Name: c.Name, Instances: c.Instances, MicrosPerRead: c.MicrosPerRead, OK: c.OK, Malformed: c.Malformed})
+	}
+	return a, shared
+}

@@ -1,0 +1,117 @@
+package tracker
+
+import (
+	"iter"
+	"maps"
+	"slices"
+	"time"
+
+	"sluice/pkg/coding"
+	"sluice/pkg/flagging"
+	"sluice/pkg/matcher"
+	"sluice/pkg/metric"
+	"sluice/pkg/model"
+	"sluice/pkg/signature"
+)
+
+// job is everything the tracker holds about one job, in the form its work
+// needs; records.go converts it to and from the state file's JobRecord.
+type job struct {
+	meta model.JobMeta
+	// live holds each node's recent samples, newest last, for the live
+	// window.
+	live map[string][]slice
+	// open holds the windows still taking samples, by index.
+	open map[int]*openWindow
+	// closed is the number of windows closed so far; also the index below
+	// which samples are late.
+	closed     int
+	lastWindow *model.Window
+	lastSample time.Time
+	// liveRates, liveLevels and liveNodes are the latest live evaluation.
+	liveRates  metric.Rates
+	liveLevels coding.Levels
+	liveNodes  int
+	holds      flagging.Holds
+	// flagsRaised numbers the job's flags (flagging.FlagID).
+	flagsRaised int
+	finished    bool
+	signature   signature.Signature
+	match       *matcher.Job // rebuilt from the windows after a restart
+
+	dirty bool // samples since the last evaluation
+}
+
+func newJob(meta model.JobMeta) *job {
+	return &job{meta: meta, live: map[string][]slice{}, open: map[int]*openWindow{}, holds: flagging.Holds{}}
+}
+
+// slice is one sample's contribution to a job on one node.
+type slice struct {
+	end     time.Time
+	seconds float64
+	values  metric.Values
+}
+
+// accum sums one node's samples in a window.
+type accum struct {
+	seconds float64
+	values  metric.Values
+}
+
+// openWindow accumulates a window's samples per node. list holds the same
+// accumulators in arrival order, so that closing a window of thousands of
+// nodes walks a slice, not a map.
+type openWindow struct {
+	nodes map[string]*accum
+	list  []*accum
+}
+
+func newOpenWindow() *openWindow { return &openWindow{nodes: map[string]*accum{}} }
+
+// accums returns the window's accumulators.
+func (w *openWindow) accums() iter.Seq[*accum] {
+	if len(w.list) == len(w.nodes) {
+		return slices.Values(w.list)
+	}
+	return maps.Values(w.nodes)
+}
+
+// add counts secs and v for node.
+func (w *openWindow) add(node string, secs float64, v metric.Values) {
+	a := w.nodes[node]
+	if a == nil {
+		a = &accum{}
+		w.nodes[node] = a
+		w.list = append(w.list, a)
+	}
+	a.seconds += secs
+	a.values.Add(v)
+}
+
+func (j *job) windowIndex(end time.Time, w time.Duration) int {
+	if !end.After(j.meta.Start) {
+		return 0
+	}
+	// A sample ending exactly on a boundary belongs to the window it ends.
+	return int((end.Sub(j.meta.Start) - 1) / w)
+}
+
+func (j *job) addLive(node string, s slice) {
+	j.live[node] = append(j.live[node], s)
+}
+
+func (j *job) addWindow(idx int, node string, secs float64, v metric.Values) {
+	w := j.open[idx]
+	if w == nil {
+		w = newOpenWindow()
+		j.open[idx] = w
+	}
+	w.add(node, secs, v)
+}
+
+// nextFlagID numbers a new flag of the job.
+func (j *job) nextFlagID() string {
+	j.flagsRaised++
+	return flagging.FlagID(j.meta.ID, j.flagsRaised)
+}
