@@ -235,7 +235,7 @@ func Run(o Options) (*Result, error) {
 	}
 	tr.SetCoding(c)
 	starts := jobStarts(jobs, o)
-	flags, samples, err := replay(tr, jobs, starts, o)
+	flags, samples, err := replay(tr, jobs, starts, o, nil)
 	if err != nil {
 		return nil, err
 	}
@@ -317,8 +317,9 @@ type flagRecord struct {
 
 // replay feeds the jobs through the tracker, interleaved: job k starts a
 // few minutes after job k-1, so that dozens run at once. It returns every
-// pattern flag raised and the number of samples sent.
-func replay(tr *tracker.Tracker, jobs []sim.LabelledJob, starts []time.Time, o Options) ([]flagRecord, int, error) {
+// pattern flag raised and the number of samples sent. ticked, if not nil,
+// is called after every tick, before the tick's events are drained.
+func replay(tr *tracker.Tracker, jobs []sim.LabelledJob, starts []time.Time, o Options, ticked func()) ([]flagRecord, int, error) {
 	type running struct {
 		j      *sim.LabelledJob
 		s      *sim.Stream
@@ -336,6 +337,9 @@ func replay(tr *tracker.Tracker, jobs []sim.LabelledJob, starts []time.Time, o O
 		sample  report.Sample
 	)
 	collect := func() {
+		if ticked != nil {
+			ticked()
+		}
 		for _, e := range tr.Drain() {
 			if e.Kind == tracker.FlagRaised && e.Flag != nil && e.Flag.Pattern != "" {
 				flags = append(flags, flagRecord{job: e.Job, pattern: e.Flag.Pattern, raised: e.Flag.Raised})

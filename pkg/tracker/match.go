@@ -39,7 +39,7 @@ func (t *Tracker) matchWindow(j *job, w *model.Window) {
 	}
 	v := matcher.ViewOf(w)
 	for i, vd := range t.matcherOf(j).Window(v) {
-		t.stepPattern(j, lib.Pattern(i), vd, &v, w.End)
+		t.stepPattern(j, lib.Pattern(i), vd, false, &v, w.End)
 	}
 }
 
@@ -58,15 +58,18 @@ func (t *Tracker) matchOpen(j *job) {
 	// beside the cut points: the low bound is only a bound.
 	shown := matcher.View{Window: o.High.Window, Levels: j.liveLevels, Grades: j.signature.Live, Rates: j.liveRates,
 		Nodes: j.liveNodes, BusiestShare: o.High.BusiestShare, NodeSpread: o.High.NodeSpread}
+	// Every verdict of an open-window evaluation is provisional, an
+	// example's too (it is its latest closed-window verdict again): it may
+	// complete a run, never count as one more window.
 	for i, vd := range t.matcherOf(j).Open(o) {
-		t.stepPattern(j, lib.Pattern(i), vd, &shown, j.lastSample)
+		t.stepPattern(j, lib.Pattern(i), vd, true, &shown, j.lastSample)
 	}
 }
 
 // stepPattern hands one verdict to the pattern's hold.
-func (t *Tracker) stepPattern(j *job, p *pattern.Pattern, vd matcher.Verdict, shown *matcher.View, now time.Time) {
+func (t *Tracker) stepPattern(j *job, p *pattern.Pattern, vd matcher.Verdict, provisional bool, shown *matcher.View, now time.Time) {
 	ev := flagging.Evaluation{
-		Holds: vd.Matched, Provisional: vd.Open, At: now, Since: t.matchSince(j, vd, now),
+		Holds: vd.Matched, Provisional: provisional, At: now, Since: t.matchSince(j, vd, now),
 		Score: vd.Score, Value: math.NaN(),
 	}
 	opts := flagging.Options{RaiseAfter: p.RaiseAfter, ClearAfter: p.ClearAfter}

@@ -1,6 +1,7 @@
 package tracker_test
 
 import (
+	"strings"
 	"testing"
 	"time"
 
@@ -85,4 +86,61 @@ func TestMetadataStormRaisesOnePatternFlag(t *testing.T) {
 
 func jobEnd(id string, at time.Time) *report.JobEvent {
 	return &report.JobEvent{Type: report.JobEnd, Job: id, Node: "bw007", Time: at}
+}
+
+// burstExample is an example pattern of one window: creates at grade 6.
+const burstExample = `schema: 1
+name: create_burst
+title: Create burst
+severity: warning
+description: d
+rationale: r
+advice: follow your site's policy
+raise_after: 1
+clear_after: 2
+example:
+  method: sellers
+  metrics: [creates]
+  grades:
+    creates: "6"
+`
+
+// TestExampleFlagsCountClosedWindowsOnly: the live evaluations between
+// two closed windows repeat an example's latest closed-window verdict;
+// they may raise (provisionally) but must not count as windows, so the
+// flag clears after clear_after closed windows that do not match, not
+// after as many ticks.
+func TestExampleFlagsCountClosedWindowsOnly(t *testing.T) {
+	p, err := pattern.Parse("burst.yaml", strings.NewReader(burstExample))
+	require.NoError(t, err)
+	lib, err := matcher.Compile([]*pattern.Pattern{p})
+	require.NoError(t, err)
+	tr := newTracker(t, tracker.Options{Window: time.Minute, Live: 10 * time.Second, Grace: time.Second, Patterns: lib})
+	startJob(t, tr, "81236", "bw011")
+	var cleared []time.Time
+	raised := 0
+	for step := range 30 { // 10 s samples: window 0 a burst, then quiet
+		from := time.Duration(step) * 10 * time.Second
+		creates := 0
+		if step < 6 {
+			creates = 50_000 // 5,000/s, above the critical seed of 1,000/s
+		}
+		require.NoError(t, tr.Sample(sample("bw011", uint64(step+1), from, from+10*time.Second, []string{"81236"}, vals(metric.Creates, creates))))
+		tr.Tick()
+		for _, e := range tr.Drain() {
+			if e.Flag != nil && e.Flag.Pattern == "create_burst" {
+				switch e.Kind {
+				case tracker.FlagRaised:
+					raised++
+				case tracker.FlagCleared:
+					cleared = append(cleared, e.Flag.Cleared)
+				}
+			}
+		}
+	}
+	assert.Equal(t, 1, raised)
+	require.Len(t, cleared, 1)
+	// Window 0 matches; windows 1 and 2 do not. Window 2 closes at 3 min
+	// plus the grace, with the first sample after it.
+	assert.Equal(t, t0.Add(3*time.Minute), cleared[0], "cleared when the second quiet window closed, not after two quiet ticks")
 }
