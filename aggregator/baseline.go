@@ -111,7 +111,7 @@ func baselineShow(ctx context.Context, args []string, stdout io.Writer) error {
 // printBaseline writes one row per metric: what its cuts rest on, the cut
 // points (per node, per second) and the windows behind them, then the
 // days the baseline holds.
-func printBaseline(w io.Writer, b api.Baseline) {
+func printBaseline(w io.Writer, b api.BaselineReport) {
 	q := b.Quantiles
 	fmt.Fprintf(w, "horizon %d days, learned after %d non-idle windows; grades cut at p%g p%g p%g, levels at p%g (elevated) p%g (critical); recomputed %s\n\n",
 		b.HorizonDays, b.MinWindows, 100*q[0], 100*q[1], 100*q[2], 100*q[3], 100*q[4], stamp(b.Recomputed))

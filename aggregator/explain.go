@@ -37,7 +37,7 @@ func explainCmd(ctx context.Context, args []string, stdout io.Writer) error {
 	return nil
 }
 
-func printExplanation(w io.Writer, x api.Explanation, all bool) {
+func printExplanation(w io.Writer, x api.JobExplanation, all bool) {
 	j := x.Job
 	fmt.Fprintf(w, "job %s (%s, user %s): %s, %d closed windows, %d nodes\n",
 		dash(j.ID), dash(j.Name), dash(j.User), j.State, x.ClosedWindows, max(len(j.Nodes), j.NodesSeen))

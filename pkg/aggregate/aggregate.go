@@ -112,8 +112,8 @@ type Service struct {
 	mu          sync.Mutex
 	tr          *tracker.Tracker
 	learn       *learner
-	agents      map[string]model.Agent // latest heartbeat per node
-	shares      export.ShareHistogram  // every CPU share the heartbeats gave
+	agents      map[string]model.AgentStatus // latest heartbeat per node
+	shares      export.ShareHistogram        // every CPU share the heartbeats gave
 	att         *flagging.Attention
 	flushErr    error  // the last flush's, nil once one succeeds
 	storeErrors uint64 // failed flushes
@@ -156,7 +156,7 @@ func New(opts Options) (*Service, error) {
 		log:    opts.Logger,
 		tr:     tr,
 		learn:  learn,
-		agents: map[string]model.Agent{},
+		agents: map[string]model.AgentStatus{},
 		att:    flagging.NewAttention(nil, nil),
 		ready:  make(chan struct{}),
 	}, nil

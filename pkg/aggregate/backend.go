@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"slices"
 	"strings"
+	"time"
 
 	"sluice/pkg/api"
 	"sluice/pkg/baseline"
@@ -79,7 +80,7 @@ func forgotten(id string, ws []model.Window) model.Summary {
 	return sum
 }
 
-func (b backend) Explain(id string) (api.Explanation, error) {
+func (b backend) Explain(id string) (api.JobExplanation, error) {
 	s := b.s
 	s.mu.Lock()
 	sum, ok := s.tr.Job(id)
@@ -89,15 +90,15 @@ func (b backend) Explain(id string) (api.Explanation, error) {
 	if !ok {
 		ws, err := s.st.Windows(id)
 		if err != nil {
-			return api.Explanation{}, err
+			return api.JobExplanation{}, err
 		}
 		if len(ws) == 0 {
-			return api.Explanation{}, fmt.Errorf("no job %q: %w", id, api.ErrNotFound)
+			return api.JobExplanation{}, fmt.Errorf("no job %q: %w", id, api.ErrNotFound)
 		}
 		sum = forgotten(id, ws)
 		xs = explainWindows(s.opts.Tracker.Patterns, ws)
 	}
-	return api.Explanation{Job: sum, ClosedWindows: sum.Windows, Patterns: patternExplanations(s.opts.Tracker.Patterns, xs, sum.ActiveFlags)}, nil
+	return api.JobExplanation{Job: sum, ClosedWindows: sum.Windows, Patterns: patternExplanations(s.opts.Tracker.Patterns, xs, sum.ActiveFlags)}, nil
 }
 
 // explainWindows explains a job from its stored windows: the matcher's
@@ -223,9 +224,9 @@ func (b backend) isLive(id string) bool {
 	return false
 }
 
-func (b backend) Silence(r flagging.SilenceRequest) (model.Silence, error) {
+func (b backend) Silence(job, pattern string, d time.Duration, by, why string) (model.Silence, error) {
 	s := b.s
-	sl, err := flagging.NewSilence(r, s.opts.Now())
+	sl, err := flagging.NewSilence(job, pattern, d, by, why, s.opts.Now())
 	if err != nil {
 		return model.Silence{}, fmt.Errorf("silence: %v: %w", err, api.ErrBadRequest)
 	}
@@ -261,12 +262,12 @@ func (b backend) Silences() []model.Silence {
 	return out
 }
 
-func (b backend) Agents() []model.Agent {
+func (b backend) Agents() []model.AgentStatus {
 	s := b.s
 	s.mu.Lock()
 	agents := s.agentsLocked()
 	s.mu.Unlock()
-	slices.SortFunc(agents, func(a, b model.Agent) int { return strings.Compare(a.Node, b.Node) })
+	slices.SortFunc(agents, func(a, b model.AgentStatus) int { return strings.Compare(a.Node, b.Node) })
 	return agents
 }
 
@@ -277,7 +278,7 @@ func (b backend) Patterns() []*pattern.Pattern {
 	return nil
 }
 
-func (b backend) Baseline() api.Baseline {
+func (b backend) Baseline() api.BaselineReport {
 	b.s.mu.Lock()
 	defer b.s.mu.Unlock()
 	return b.s.learn.report()

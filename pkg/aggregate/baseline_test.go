@@ -72,17 +72,17 @@ func post(t *testing.T, svc *aggregate.Service, body []byte) api.ImportResult {
 	return res
 }
 
-func baselineReport(t *testing.T, svc *aggregate.Service) api.Baseline {
+func baselineReport(t *testing.T, svc *aggregate.Service) api.BaselineReport {
 	t.Helper()
 	resp, err := http.Get("http://" + svc.HTTPAddr() + "/api/v1/baseline")
 	require.NoError(t, err)
 	defer resp.Body.Close()
-	var b api.Baseline
+	var b api.BaselineReport
 	require.NoError(t, json.NewDecoder(resp.Body).Decode(&b))
 	return b
 }
 
-func creates(b api.Baseline) api.BaselineMetric {
+func creates(b api.BaselineReport) api.BaselineMetric {
 	i := slices.IndexFunc(b.Metrics, func(m api.BaselineMetric) bool { return m.Metric == "creates" })
 	return b.Metrics[i]
 }

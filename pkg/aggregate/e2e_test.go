@@ -343,7 +343,7 @@ func TestHeartbeatsBecomeAgentCost(t *testing.T) {
 	}
 	require.NoError(t, r.nc.Flush())
 	require.Eventually(t, func() bool { return r.svc.Snapshot().Ingest.Accepted["heartbeat"] == 2 }, 10*time.Second, 5*time.Millisecond)
-	var out struct{ Agents []smodel.Agent }
+	var out struct{ Agents []smodel.AgentStatus }
 	r.get("/api/v1/agents", &out)
 	require.Len(t, out.Agents, 1)
 	assert.InDelta(t, 0.005, out.Agents[0].CPUShare, 1e-12)

@@ -100,9 +100,9 @@ func (l *learner) drain(into map[baseline.Key]*baseline.Day) map[baseline.Key]*b
 }
 
 // report describes the baseline as of the last recompute.
-func (l *learner) report() api.Baseline {
+func (l *learner) report() api.BaselineReport {
 	o := l.b.Options()
-	r := api.Baseline{
+	r := api.BaselineReport{
 		Recomputed: l.recomputed, HorizonDays: o.Days, MinWindows: o.MinWindows,
 		Quantiles: coding.GradeQuantiles(o.ElevatedQuantile, o.CriticalQuantile), Rejected: l.b.Rejected(),
 	}
@@ -126,8 +126,8 @@ func (l *learner) report() api.Baseline {
 }
 
 // exported is the baseline part of a scrape.
-func (l *learner) exported() export.Baseline {
-	var e export.Baseline
+func (l *learner) exported() export.BaselineFigures {
+	var e export.BaselineFigures
 	for i, m := range l.th.Metrics {
 		e.Bases[i] = l.bases[i]
 		e.Windows[i], e.Idle[i] = m.Windows, m.Idle

@@ -65,8 +65,8 @@ func (s *Service) Snapshot() export.Snapshot {
 }
 
 // agentsLocked copies the agents' latest status; the caller holds mu.
-func (s *Service) agentsLocked() []model.Agent {
-	agents := make([]model.Agent, 0, len(s.agents))
+func (s *Service) agentsLocked() []model.AgentStatus {
+	agents := make([]model.AgentStatus, 0, len(s.agents))
 	for _, a := range s.agents {
 		agents = append(agents, a)
 	}

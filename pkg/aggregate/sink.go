@@ -60,8 +60,8 @@ func refusal(err error) error {
 // agentOf turns a heartbeat into the node's agent status; prev, the
 // status from the node's previous heartbeat, gives the CPU share, and
 // shared says there was one to give it.
-func agentOf(hb *report.Heartbeat, prev model.Agent) (a model.Agent, shared bool) {
-	a = model.Agent{
+func agentOf(hb *report.Heartbeat, prev model.AgentStatus) (a model.AgentStatus, shared bool) {
+	a = model.AgentStatus{
 		Node: hb.Node, Version: hb.Version, LastSeen: hb.Time, Interval: hb.Interval,
 		CPUSeconds: hb.CPUSeconds, RSSBytes: hb.RSSBytes, Queued: hb.Queued, Dropped: hb.Dropped,
 	}

@@ -50,8 +50,8 @@ func (c *Client) Job(ctx context.Context, id string) (JobDetail, error) {
 }
 
 // Explain returns how every pattern's latest verdict for a job came about.
-func (c *Client) Explain(ctx context.Context, id string) (Explanation, error) {
-	var out Explanation
+func (c *Client) Explain(ctx context.Context, id string) (JobExplanation, error) {
+	var out JobExplanation
 	err := c.get(ctx, "/api/v1/jobs/"+url.PathEscape(id)+"/explain", nil, &out)
 	return out, err
 }
@@ -105,29 +105,29 @@ func (c *Client) Silences(ctx context.Context) ([]model.Silence, error) {
 }
 
 // Agents lists every node's latest heartbeat.
-func (c *Client) Agents(ctx context.Context) ([]model.Agent, error) {
+func (c *Client) Agents(ctx context.Context) ([]model.AgentStatus, error) {
 	var out AgentList
 	err := c.get(ctx, "/api/v1/agents", nil, &out)
 	return out.Agents, err
 }
 
 // Patterns lists the patterns in force.
-func (c *Client) Patterns(ctx context.Context) ([]Pattern, error) {
+func (c *Client) Patterns(ctx context.Context) ([]PatternFile, error) {
 	var out PatternList
 	err := c.get(ctx, "/api/v1/patterns", nil, &out)
 	return out.Patterns, err
 }
 
 // Pattern returns one pattern in force.
-func (c *Client) Pattern(ctx context.Context, name string) (Pattern, error) {
-	var out Pattern
+func (c *Client) Pattern(ctx context.Context, name string) (PatternFile, error) {
+	var out PatternFile
 	err := c.get(ctx, "/api/v1/patterns/"+url.PathEscape(name), nil, &out)
 	return out, err
 }
 
 // Baseline returns the coding in force and the windows behind it.
-func (c *Client) Baseline(ctx context.Context) (Baseline, error) {
-	var out Baseline
+func (c *Client) Baseline(ctx context.Context) (BaselineReport, error) {
+	var out BaselineReport
 	err := c.get(ctx, "/api/v1/baseline", nil, &out)
 	return out, err
 }

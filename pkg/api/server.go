@@ -5,9 +5,9 @@ import (
 	"errors"
 	"fmt"
 	"net/http"
+	"time"
 
 	"sluice/pkg/baseline"
-	"sluice/pkg/flagging"
 	"sluice/pkg/model"
 	"sluice/pkg/pattern"
 )
@@ -19,15 +19,17 @@ type Backend interface {
 	// decided.
 	Jobs(running bool) []model.Summary
 	Job(id string) (JobDetail, error)
-	Explain(id string) (Explanation, error)
+	Explain(id string) (JobExplanation, error)
 	Flags(f FlagFilter) ([]model.Flag, error)
 	Acknowledge(id, by, why string) (model.Ack, error)
-	Silence(r flagging.SilenceRequest) (model.Silence, error)
+	// Silence silences the flags of job and pattern (either may be
+	// empty, not both) for d.
+	Silence(job, pattern string, d time.Duration, by, why string) (model.Silence, error)
 	Unsilence(id string) error
 	Silences() []model.Silence
-	Agents() []model.Agent
+	Agents() []model.AgentStatus
 	Patterns() []*pattern.Pattern
-	Baseline() Baseline
+	Baseline() BaselineReport
 	// BaselineDays copies the stored days of one origin, or of both merged
 	// per day when origin is empty, in day order.
 	BaselineDays(origin baseline.Origin) []DatedDay
@@ -119,7 +121,7 @@ func (s *server) baseline(w http.ResponseWriter, _ *http.Request) {
 }
 
 func (s *server) patterns(w http.ResponseWriter, _ *http.Request) {
-	out := PatternList{Patterns: []Pattern{}}
+	out := PatternList{Patterns: []PatternFile{}}
 	for _, p := range s.b.Patterns() {
 		ap, err := patternOf(p)
 		if err != nil {
@@ -147,12 +149,12 @@ func (s *server) pattern(w http.ResponseWriter, r *http.Request) {
 	fail(w, fmt.Errorf("%w: no pattern %q in force", ErrNotFound, name))
 }
 
-func patternOf(p *pattern.Pattern) (Pattern, error) {
+func patternOf(p *pattern.Pattern) (PatternFile, error) {
 	text, err := p.Marshal()
 	if err != nil {
-		return Pattern{}, fmt.Errorf("pattern %s: %w", p.Name, err)
+		return PatternFile{}, fmt.Errorf("pattern %s: %w", p.Name, err)
 	}
-	return Pattern{Name: p.Name, Title: p.Title, Severity: p.Severity, Kind: p.Kind(), Source: p.Source, File: string(text)}, nil
+	return PatternFile{Name: p.Name, Title: p.Title, Severity: p.Severity, Kind: p.Kind(), Source: p.Source, File: string(text)}, nil
 }
 
 func (s *server) flags(w http.ResponseWriter, r *http.Request) {
@@ -216,7 +218,7 @@ func (s *server) silence(w http.ResponseWriter, r *http.Request) {
 		fail(w, fmt.Errorf("%w: silence for: %v", ErrBadRequest, err))
 		return
 	}
-	sl, err := s.b.Silence(flagging.SilenceRequest{Job: req.Job, Pattern: req.Pattern, For: d, By: req.By, Why: req.Why})
+	sl, err := s.b.Silence(req.Job, req.Pattern, d, req.By, req.Why)
 	if err != nil {
 		fail(w, err)
 		return

@@ -47,10 +47,10 @@ type JobDetail struct {
 	ClosedWindows []model.Window `json:"closed_windows"`
 }
 
-// Explanation is what GET /api/v1/jobs/{id}/explain answers: every
+// JobExplanation is what GET /api/v1/jobs/{id}/explain answers: every
 // pattern's latest verdict for the job as the matcher decided it, most
 // relevant first (active flag, then matched, then by score).
-type Explanation struct {
+type JobExplanation struct {
 	Job           model.Summary        `json:"job"`
 	ClosedWindows int                  `json:"closed_windows"`
 	Patterns      []PatternExplanation `json:"patterns"`
@@ -100,12 +100,12 @@ type SilenceList struct {
 
 // AgentList is what GET /api/v1/agents answers, by node name.
 type AgentList struct {
-	Agents []model.Agent `json:"agents"`
+	Agents []model.AgentStatus `json:"agents"`
 }
 
-// Pattern is one pattern in force, as GET /api/v1/patterns lists it; File
+// PatternFile is one pattern in force, as GET /api/v1/patterns lists it; File
 // is its file text (schema 1).
-type Pattern struct {
+type PatternFile struct {
 	Name     string         `json:"name"`
 	Title    string         `json:"title"`
 	Severity model.Severity `json:"severity"`
@@ -116,12 +116,12 @@ type Pattern struct {
 
 // PatternList is what GET /api/v1/patterns answers, in library order.
 type PatternList struct {
-	Patterns []Pattern `json:"patterns"`
+	Patterns []PatternFile `json:"patterns"`
 }
 
-// Baseline is what GET /api/v1/baseline answers: the coding in force and
+// BaselineReport is what GET /api/v1/baseline answers: the coding in force and
 // the windows behind it.
-type Baseline struct {
+type BaselineReport struct {
 	Recomputed  time.Time        `json:"recomputed"`
 	HorizonDays int              `json:"horizon_days"`
 	MinWindows  uint64           `json:"min_windows"`

@@ -24,7 +24,7 @@ import (
 //   - each window's "held" follows from the condition cells it shows
 //     (all of All, one of Any, enough nodes), so no cell contradicts it;
 //   - on a running job, its verdict is the flag machine's: a matched
-//     verdict has a hold
+//     verdict has a streak
 //     whose latest score is the explanation's, an active flag carries
 //     the same score, and a score the job lists is the explained one.
 func TestExplanationIsTheDecision(t *testing.T) {
@@ -53,7 +53,7 @@ func TestExplanationIsTheDecision(t *testing.T) {
 				if x.Rule != nil {
 					checkRule(t, ps[i].Rule, x, where)
 				}
-				if sum.Running() { // a job's end clears its holds; its last verdicts stay explained
+				if sum.Running() { // a job's end clears its streaks; its last verdicts stay explained
 					checkDecision(t, sum, x, where)
 				}
 				checked++
@@ -109,10 +109,10 @@ func checkDecision(t *testing.T, sum model.Summary, x matcher.Explanation, where
 	t.Helper()
 	listed, ok := sum.PatternScores[x.Pattern]
 	if x.Matched {
-		require.True(t, ok, "%s: a matched verdict has a hold", where)
+		require.True(t, ok, "%s: a matched verdict has a streak", where)
 	}
 	if ok {
-		require.Equal(t, x.Score, listed, "%s: the hold's latest score is the explained one", where)
+		require.Equal(t, x.Score, listed, "%s: the streak's latest score is the explained one", where)
 	}
 	for _, f := range sum.ActiveFlags {
 		if f.Reason == model.PatternOf(x.Pattern) {

@@ -86,7 +86,7 @@ type Snapshot struct {
 	// an ended job is skipped.
 	Jobs      []model.Summary
 	Cuts      coding.Cuts
-	Baseline  Baseline
+	Baseline  BaselineFigures
 	Patterns  []PatternInfo // the pattern library in force
 	Watermark time.Time     // latest interval end seen; zero leaves out the lag
 	Now       time.Time
@@ -95,7 +95,7 @@ type Snapshot struct {
 	// first while their series fit; zero (or less) gives none, and every
 	// qualifying job counts as dropped.
 	MaxJobSeries int
-	Agents       []model.Agent // latest heartbeat per node
+	Agents       []model.AgentStatus // latest heartbeat per node
 	// AgentShares is every CPU share the agents' heartbeats reported.
 	AgentShares ShareHistogram
 	// BrokerConnected is whether the aggregator's connection to its NATS
@@ -104,8 +104,8 @@ type Snapshot struct {
 	BrokerConnected bool
 }
 
-// Baseline is what the scrape says about the learned baseline.
-type Baseline struct {
+// BaselineFigures is what the scrape says about the learned baseline.
+type BaselineFigures struct {
 	// Bases says, per metric, whether its cut points in force are learned
 	// or seed.
 	Bases coding.Bases
@@ -224,7 +224,7 @@ func (c *Collector) Collect(ch chan<- prometheus.Metric) {
 	ch <- s.AgentShares.metric()
 }
 
-func collectAgents(agents []model.Agent, ch chan<- prometheus.Metric, counter func(*prometheus.Desc, uint64, ...string), gauge func(*prometheus.Desc, float64, ...string)) {
+func collectAgents(agents []model.AgentStatus, ch chan<- prometheus.Metric, counter func(*prometheus.Desc, uint64, ...string), gauge func(*prometheus.Desc, float64, ...string)) {
 	for _, a := range agents {
 		gauge(descAgentSeen, float64(a.LastSeen.UnixNano())/1e9, a.Node)
 		ch <- constMetric(descAgentCPU, prometheus.CounterValue, a.CPUSeconds, a.Node)

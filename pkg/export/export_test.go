@@ -66,7 +66,7 @@ func fixed() export.Snapshot {
 	in.Rejected["sample/duplicate"] = 3
 	in.Rejected["sample/truncated"] = 1
 	in.Duplicates = 3
-	agents := []model.Agent{
+	agents := []model.AgentStatus{
 		{Node: "bw001", Version: "dev", LastSeen: t0, Interval: 5 * time.Second, CPUSeconds: 12.5, CPUShare: 0.0008, RSSBytes: 14 << 20,
 			Sources: []model.AgentSource{{Name: "lustre", Instances: 2, MicrosPerRead: 21.5, OK: true}}},
 		{Node: "bw002", Version: "dev", LastSeen: t0.Add(-time.Second), Interval: 5 * time.Second, CPUSeconds: 30, CPUShare: 0.003, RSSBytes: 15 << 20, Queued: 4, Dropped: 2,

@@ -72,28 +72,21 @@ func Covers(s model.Silence, f *model.Flag, now time.Time) bool {
 	return err == nil && r == f.Reason
 }
 
-// SilenceRequest is what someone asks to silence.
-type SilenceRequest struct {
-	Job     string
-	Pattern string // a pattern name or a reason such as "high_rate:creates"
-	For     time.Duration
-	By, Why string
-}
-
-// NewSilence checks req and returns the silence it asks for as of now;
-// AddSilence puts it in force.
-func NewSilence(req SilenceRequest, now time.Time) (model.Silence, error) {
+// NewSilence checks and returns the silence by asks for as of now: the
+// flags of job (empty: every job) and pattern (a pattern name or a
+// reason; empty: every flag), for d; AddSilence puts it in force.
+func NewSilence(job, pattern string, d time.Duration, by, why string, now time.Time) (model.Silence, error) {
 	switch {
-	case req.For < MinSilence || req.For > MaxSilence:
-		return model.Silence{}, fmt.Errorf("for %s: must be between %s and %s", req.For, MinSilence, MaxSilence)
-	case req.Job == "" && req.Pattern == "":
+	case d < MinSilence || d > MaxSilence:
+		return model.Silence{}, fmt.Errorf("for %s: must be between %s and %s", d, MinSilence, MaxSilence)
+	case job == "" && pattern == "":
 		return model.Silence{}, errors.New("a silence needs a job, a pattern, or both")
-	case strings.TrimSpace(req.By) == "" || strings.TrimSpace(req.Why) == "":
+	case strings.TrimSpace(by) == "" || strings.TrimSpace(why) == "":
 		return model.Silence{}, errors.New("say who silences and why (by, why)")
 	}
 	s := model.Silence{
-		ID:  fmt.Sprintf("%d-%s-%s", now.UnixNano(), cmp.Or(req.Job, "any"), cmp.Or(req.Pattern, "any")),
-		Job: req.Job, Pattern: req.Pattern, Until: now.Add(req.For), By: req.By, Why: req.Why, Created: now,
+		ID:  fmt.Sprintf("%d-%s-%s", now.UnixNano(), cmp.Or(job, "any"), cmp.Or(pattern, "any")),
+		Job: job, Pattern: pattern, Until: now.Add(d), By: by, Why: why, Created: now,
 	}
 	return s, nil
 }

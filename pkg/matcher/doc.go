@@ -7,8 +7,8 @@
 // # Basics
 //
 // [Compile] turns patterns (package pattern: the schema) into a [Library]
-// shared by every job; each job gets a [Job] from [Library.NewJob].
-// [Job.Window] takes one closed window as a [View] and returns every
+// shared by every job; each job gets a [JobMatch] from [Library.NewMatch].
+// [JobMatch.Window] takes one closed window as a [View] and returns every
 // pattern's [Verdict], in time proportional to the patterns' lengths, not
 // to the job's age:
 //
@@ -23,7 +23,7 @@
 //   - a euclidean example compares the last windows with the pattern at
 //     the one offset where they line up; its score is 1 − distance/max.
 //
-// [Job.Open] evaluates rule patterns once more with the window still open
+// [JobMatch.Open] evaluates rule patterns once more with the window still open
 // as a provisional next window, without changing any state. The open
 // window is given as two bounds ([Open]): "at least" conditions must hold
 // on its counts so far spread over the whole window, "at most" ones on its
@@ -31,7 +31,7 @@
 // Example patterns are scored on closed windows only; grades of part of a
 // window are not comparable with those of whole ones.
 //
-// [Job.Explain] reads back how the latest verdict of a pattern came
+// [JobMatch.Explain] reads back how the latest verdict of a pattern came
 // about: a rule's windows (and the open window's bounds) with each
 // condition's test and value, or an example's grades beside the job's.
 // The job keeps the last few closed windows for this (as many as the
@@ -83,7 +83,7 @@
 //
 // A Job is not safe for concurrent use. Its state is not persisted: the
 // aggregator rebuilds it after a restart by replaying the job's stored
-// windows ([Job.Window] on each, in order), which gives the same state.
+// windows ([JobMatch.Window] on each, in order), which gives the same state.
 //
 // Grades are ordinal, but the Sellers and Shape costs treat them as evenly
 // spaced numbers (|a−b|, (a−b)²): grade 1 against 2 costs as much as 5

@@ -86,7 +86,7 @@ type ExampleRow struct {
 }
 
 // Explain returns the explanation of pattern i's latest verdict.
-func (j *Job) Explain(i int) Explanation {
+func (j *JobMatch) Explain(i int) Explanation {
 	e := j.lib.entries[i]
 	v := j.latest[i]
 	x := Explanation{
@@ -104,7 +104,7 @@ func (j *Job) Explain(i int) Explanation {
 // explainRule lays out the windows the rule's state covers: the last N
 // closed ones, or the last N-1 and the open window when the verdict
 // counted it.
-func (j *Job) explainRule(r *pattern.Rule, open bool) *RuleExplanation {
+func (j *JobMatch) explainRule(r *pattern.Rule, open bool) *RuleExplanation {
 	x := &RuleExplanation{K: r.Hold.K, N: r.Hold.N, MinNodes: r.MinNodes}
 	closed := r.Hold.N
 	if open {
@@ -166,7 +166,7 @@ func shortLevel(l coding.Level) string {
 
 // explainExample puts the job's latest closed windows beside the example,
 // right-aligned: the last window of each is the newest.
-func (j *Job) explainExample(ex *pattern.Example) *ExampleExplanation {
+func (j *JobMatch) explainExample(ex *pattern.Example) *ExampleExplanation {
 	m := ex.Len()
 	ws := j.recentWindows(m)
 	x := &ExampleExplanation{Method: ex.Method.String()}

@@ -19,12 +19,12 @@ type Verdict struct {
 	// or the oldest window of a rule's last n that held. -1 when unknown.
 	Start int
 	// Open says the verdict counted the open window as a provisional next
-	// window (rules only, from Job.Open).
+	// window (rules only, from JobMatch.Open).
 	Open bool
 }
 
-// Job is one job's matching state against every pattern of a library.
-type Job struct {
+// JobMatch is one job's matching state against every pattern of a library.
+type JobMatch struct {
 	lib     *Library
 	rules   []RuleState // by entry; zero for examples
 	sellers []*Sellers
@@ -43,10 +43,10 @@ type Job struct {
 	open   *Open
 }
 
-// NewJob returns a job's fresh state.
-func (l *Library) NewJob() *Job {
+// NewMatch returns a job's fresh matching state.
+func (l *Library) NewMatch() *JobMatch {
 	n := len(l.entries)
-	j := &Job{
+	j := &JobMatch{
 		lib: l, rules: make([]RuleState, n),
 		sellers: make([]*Sellers, n), shapes: make([]*Shape, n),
 		closed: make([]Verdict, n), latest: make([]Verdict, n),
@@ -72,11 +72,11 @@ func (l *Library) NewJob() *Job {
 }
 
 // Windows is the number of closed windows pushed.
-func (j *Job) Windows() int { return j.windows }
+func (j *JobMatch) Windows() int { return j.windows }
 
 // Window pushes one closed window and returns each pattern's verdict, in
 // library order. The slice is reused by the next call.
-func (j *Job) Window(v View) []Verdict {
+func (j *JobMatch) Window(v View) []Verdict {
 	copy(j.grades[:], v.Grades[:])
 	for _, h := range j.hists {
 		h.Push(j.grades[:])
@@ -93,7 +93,7 @@ func (j *Job) Window(v View) []Verdict {
 }
 
 // remember keeps v among the last lib.keep closed windows.
-func (j *Job) remember(v View) {
+func (j *JobMatch) remember(v View) {
 	if len(j.recent) < cap(j.recent) {
 		j.recent = append(j.recent, v)
 		return
@@ -104,7 +104,7 @@ func (j *Job) remember(v View) {
 
 // recentWindows returns up to n of the latest closed windows, oldest
 // first.
-func (j *Job) recentWindows(n int) []View {
+func (j *JobMatch) recentWindows(n int) []View {
 	n = min(n, len(j.recent))
 	out := make([]View, 0, n)
 	for k := len(j.recent) - n; k < len(j.recent); k++ {
@@ -113,7 +113,7 @@ func (j *Job) recentWindows(n int) []View {
 	return out
 }
 
-func (j *Job) score(i int, e entry, v *View, idx int) Verdict {
+func (j *JobMatch) score(i int, e entry, v *View, idx int) Verdict {
 	p := e.p
 	if p.Rule != nil {
 		st := &j.rules[i]
@@ -156,7 +156,7 @@ func ruleStart(st *RuleState, idx int) int {
 // closed-window verdict, since grades of part of a window are not
 // comparable with those of whole ones. No matching state changes: the
 // provisional push is thrown away. The slice is reused by the next call.
-func (j *Job) Open(o Open) []Verdict {
+func (j *JobMatch) Open(o Open) []Verdict {
 	j.open = &o
 	for i, e := range j.lib.entries {
 		if e.p.Rule == nil {
@@ -172,13 +172,13 @@ func (j *Job) Open(o Open) []Verdict {
 
 // Verdicts returns the latest evaluation's verdicts, in library order;
 // the slice is the job's own and changes with the next evaluation.
-func (j *Job) Verdicts() []Verdict { return j.latest }
+func (j *JobMatch) Verdicts() []Verdict { return j.latest }
 
 // Replay returns a job's state rebuilt from its closed windows, in order:
 // the same state the live job reached, since matching depends on nothing
 // else.
-func (l *Library) Replay(windows []model.Window) *Job {
-	j := l.NewJob()
+func (l *Library) Replay(windows []model.Window) *JobMatch {
+	j := l.NewMatch()
 	for i := range windows {
 		j.Window(ViewOf(&windows[i]))
 	}

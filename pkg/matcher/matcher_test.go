@@ -46,7 +46,7 @@ func windowOf(wb, wo, cr, sy coding.Grade) matcher.View {
 func TestSellersFindsTheExampleInsideAJob(t *testing.T) {
 	lib, err := matcher.Compile([]*pattern.Pattern{example(t)})
 	require.NoError(t, err)
-	job := lib.NewJob()
+	job := lib.NewMatch()
 	noise := []matcher.View{windowOf(3, 3, 0, 0), windowOf(2, 2, 0, 0), windowOf(3, 3, 0, 0)}
 	for _, v := range noise {
 		job.Window(v)
@@ -82,7 +82,7 @@ rule:
 func TestRuleKOfNAndLive(t *testing.T) {
 	lib, err := matcher.Compile([]*pattern.Pattern{parse(t, "storm.yaml", storm)})
 	require.NoError(t, err)
-	job := lib.NewJob()
+	job := lib.NewMatch()
 	crit := matcher.View{Nodes: 4}
 	crit.Levels[metric.Creates] = coding.Critical
 	calm := matcher.View{Nodes: 4}
@@ -116,11 +116,11 @@ func TestReplayGivesTheSameState(t *testing.T) {
 	for range 60 {
 		windows = append(windows, randomView(r))
 	}
-	a := lib.NewJob()
+	a := lib.NewMatch()
 	for _, w := range windows {
 		a.Window(w)
 	}
-	b := lib.NewJob()
+	b := lib.NewMatch()
 	for _, w := range windows {
 		b.Window(w)
 	}
@@ -172,7 +172,7 @@ func library100(t testing.TB) *matcher.Library {
 // patterns (target <= 50 us).
 func BenchmarkWindow100Patterns(b *testing.B) {
 	lib := library100(b)
-	job := lib.NewJob()
+	job := lib.NewMatch()
 	r := rand.New(rand.NewPCG(1, 1))
 	views := make([]matcher.View, 64)
 	for i := range views {
@@ -191,13 +191,13 @@ func BenchmarkWindow100Patterns(b *testing.B) {
 func TestMemoryPerJob(t *testing.T) {
 	lib := library100(t)
 	const jobs = 500
-	keep := make([]*matcher.Job, jobs)
+	keep := make([]*matcher.JobMatch, jobs)
 	runtime.GC()
 	var before, after runtime.MemStats
 	runtime.ReadMemStats(&before)
 	v := randomView(rand.New(rand.NewPCG(2, 2)))
 	for i := range keep {
-		keep[i] = lib.NewJob()
+		keep[i] = lib.NewMatch()
 		keep[i].Window(v)
 	}
 	runtime.GC()

@@ -2,8 +2,8 @@ package model
 
 import "time"
 
-// Agent is what the latest heartbeats of one node's agent say.
-type Agent struct {
+// AgentStatus is what the latest heartbeats of one node's agent say.
+type AgentStatus struct {
 	Node     string        `json:"node"`
 	Version  string        `json:"version"`
 	LastSeen time.Time     `json:"last_seen"` // the heartbeat's own time

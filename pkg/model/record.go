@@ -26,9 +26,9 @@ type JobRecord struct {
 	LiveRates  metric.Rates  `json:"live_rates"`
 	LiveLevels coding.Levels `json:"live_levels"`
 	LiveNodes  int           `json:"live_nodes"`
-	// Holds is the raise-and-clear state of every reason that is building
+	// Streaks is the raise-and-clear state of every reason that is building
 	// up or has an active flag, by reason.
-	Holds map[Reason]HoldRecord `json:"holds,omitempty"`
+	Streaks map[Reason]StreakRecord `json:"streaks,omitempty"`
 	// FlagsRaised counts the flags raised on the job; the next flag's id
 	// ends in FlagsRaised+1.
 	FlagsRaised int  `json:"flags_raised,omitempty"`
@@ -39,10 +39,10 @@ type JobRecord struct {
 	Signature []byte `json:"-"`
 
 	// LegacyRates and LegacyPatterns are how schema 1 files written before
-	// Holds kept the same state; the store folds them into Holds on load
+	// Streaks kept the same state; the store folds them into Streaks on load
 	// (Upgrade) and never writes them.
-	LegacyRates    []HoldRecord          `json:"hyst,omitempty"`
-	LegacyPatterns map[string]HoldRecord `json:"patterns,omitempty"`
+	LegacyRates    []StreakRecord          `json:"hyst,omitempty"`
+	LegacyPatterns map[string]StreakRecord `json:"patterns,omitempty"`
 }
 
 // SliceRecord is one sample's contribution to a job on one node.
@@ -63,10 +63,10 @@ type OpenRecord struct {
 	Nodes map[string]AccumRecord `json:"nodes"`
 }
 
-// HoldRecord is one reason's raise-and-clear state: how many evaluations
+// StreakRecord is one reason's raise-and-clear state: how many evaluations
 // in a row held (Above) or did not while flagged (Below), since when the
 // current run holds, the latest score, and the active flag if any.
-type HoldRecord struct {
+type StreakRecord struct {
 	Above int       `json:"above,omitempty"`
 	Below int       `json:"below,omitempty"`
 	Since time.Time `json:"since,omitzero"`
@@ -74,17 +74,17 @@ type HoldRecord struct {
 	Flag  *Flag     `json:"flag,omitempty"`
 }
 
-// Upgrade folds the schema 1 fields into Holds: a high-rate state by its
+// Upgrade folds the schema 1 fields into Streaks: a high-rate state by its
 // metric's position, a pattern state by its name.
 func (r *JobRecord) Upgrade() {
-	add := func(reason Reason, h HoldRecord) {
+	add := func(reason Reason, h StreakRecord) {
 		if h.Above == 0 && h.Flag == nil {
 			return // nothing building up and no flag: nothing to keep
 		}
-		if r.Holds == nil {
-			r.Holds = map[Reason]HoldRecord{}
+		if r.Streaks == nil {
+			r.Streaks = map[Reason]StreakRecord{}
 		}
-		r.Holds[reason] = h
+		r.Streaks[reason] = h
 	}
 	for i, h := range r.LegacyRates {
 		if i < int(metric.Count) {

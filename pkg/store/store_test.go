@@ -31,7 +31,7 @@ func TestRoundTrip(t *testing.T) {
 	job.LiveRates[metric.Creates] = 2500
 	job.LiveLevels[metric.Creates] = coding.Critical
 	flag := model.Flag{ID: "81234-1", Job: "81234", Reason: model.HighRateOf(metric.Creates), Metric: metric.Creates, Level: coding.Critical, Value: 2500, Cut: 1000, Since: t0, Raised: t0}
-	job.Holds = map[model.Reason]model.HoldRecord{flag.Reason: {Above: 3, Since: t0, Score: 1, Flag: &flag}}
+	job.Streaks = map[model.Reason]model.StreakRecord{flag.Reason: {Above: 3, Since: t0, Score: 1, Flag: &flag}}
 	job.FlagsRaised = 1
 	w0 := model.Window{Job: "81234", Index: 0, Start: t0, End: t0.Add(time.Minute), Nodes: 2}
 	w1 := model.Window{Job: "81234", Index: 1, Start: t0.Add(time.Minute), End: t0.Add(2 * time.Minute), Nodes: 2}
@@ -54,7 +54,7 @@ func TestRoundTrip(t *testing.T) {
 	assert.Equal(t, job.LiveRates, st.Jobs[0].LiveRates)
 	assert.Equal(t, job.LiveLevels, st.Jobs[0].LiveLevels)
 	assert.Equal(t, job.Open[0].Nodes["bw007"], st.Jobs[0].Open[0].Nodes["bw007"])
-	assert.Equal(t, job.Holds, st.Jobs[0].Holds)
+	assert.Equal(t, job.Streaks, st.Jobs[0].Streaks)
 	assert.Equal(t, 1, st.Jobs[0].FlagsRaised)
 	assert.Equal(t, seqs, st.Nodes["bw007"])
 	assert.True(t, st.Watermark.Equal(t0.Add(5*time.Second)))
@@ -130,7 +130,7 @@ func TestBaselineDaysRoundTrip(t *testing.T) {
 // TestJobOfSchemaOneIsUpgraded reads a job record as the state file held
 // it before the raise-and-clear state moved into one map (testdata/store):
 // the high-rate flag on creates and the metadata_storm flag come back as
-// holds, by reason, with their counts and flags.
+// streaks, by reason, with their counts and flags.
 func TestJobOfSchemaOneIsUpgraded(t *testing.T) {
 	s := storetest.MustOpen(t)
 	require.NoError(t, s.PutRaw("jobs", "81234", fixture.Read(t, "store", "job_v1.json")))
@@ -140,13 +140,13 @@ func TestJobOfSchemaOneIsUpgraded(t *testing.T) {
 	j := st.Jobs[0]
 	assert.Nil(t, j.LegacyRates)
 	assert.Nil(t, j.LegacyPatterns)
-	require.Len(t, j.Holds, 2)
-	rate := j.Holds[model.HighRateOf(metric.Creates)]
+	require.Len(t, j.Streaks, 2)
+	rate := j.Streaks[model.HighRateOf(metric.Creates)]
 	require.NotNil(t, rate.Flag)
 	assert.Equal(t, model.HighRateOf(metric.Creates), rate.Flag.Reason, `"critical:creates" is read as high_rate:creates`)
 	assert.Equal(t, model.SeverityWarning, rate.Flag.Severity)
 	assert.Positive(t, rate.Above)
-	storm := j.Holds[model.PatternOf("metadata_storm")]
+	storm := j.Streaks[model.PatternOf("metadata_storm")]
 	require.NotNil(t, storm.Flag)
 	assert.Equal(t, model.SeverityCritical, storm.Flag.Severity)
 	assert.Equal(t, "metadata_storm", storm.Flag.Pattern)

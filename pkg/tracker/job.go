@@ -32,18 +32,18 @@ type job struct {
 	liveRates  metric.Rates
 	liveLevels coding.Levels
 	liveNodes  int
-	holds      flagging.Holds
+	streaks    flagging.Streaks
 	// flagsRaised numbers the job's flags (flagging.FlagID).
 	flagsRaised int
 	finished    bool
 	signature   signature.Signature
-	match       *matcher.Job // rebuilt from the windows after a restart
+	match       *matcher.JobMatch // rebuilt from the windows after a restart
 
 	dirty bool // samples since the last evaluation
 }
 
 func newJob(meta model.JobMeta) *job {
-	return &job{meta: meta, live: map[string][]slice{}, open: map[int]*openWindow{}, holds: flagging.Holds{}}
+	return &job{meta: meta, live: map[string][]slice{}, open: map[int]*openWindow{}, streaks: flagging.Streaks{}}
 }
 
 // slice is one sample's contribution to a job on one node.

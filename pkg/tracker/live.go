@@ -61,7 +61,7 @@ func (t *Tracker) stepRate(j *job, id metric.ID, rate float64) {
 	cut := t.coding.Levels[id].Critical
 	ev := flagging.Evaluation{Holds: rate > cut, At: j.lastSample, Score: 1, Value: rate}
 	opts := flagging.Options{RaiseAfter: t.opts.RaiseAfter, ClearAfter: t.opts.ClearAfter}
-	f, change := j.holds.Step(model.HighRateOf(id), opts, ev, func(*flagging.Hold) *model.Flag {
+	f, change := j.streaks.Step(model.HighRateOf(id), opts, ev, func(*flagging.Streak) *model.Flag {
 		return &model.Flag{
 			ID: j.nextFlagID(), Job: j.meta.ID, Metric: id, Level: coding.Critical,
 			Value: rate, Peak: rate, Cut: cut, Nodes: j.liveNodes, Severity: model.SeverityWarning,

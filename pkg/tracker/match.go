@@ -23,15 +23,15 @@ func (t *Tracker) Replay(id string, windows []model.Window) {
 }
 
 // matcherOf returns the job's matcher state, made on first use.
-func (t *Tracker) matcherOf(j *job) *matcher.Job {
+func (t *Tracker) matcherOf(j *job) *matcher.JobMatch {
 	if j.match == nil {
-		j.match = t.opts.Patterns.NewJob()
+		j.match = t.opts.Patterns.NewMatch()
 	}
 	return j.match
 }
 
 // matchWindow has the matcher score a closed window against every pattern
-// and steps each pattern's hold with its verdict.
+// and steps each pattern's streak with its verdict.
 func (t *Tracker) matchWindow(j *job, w *model.Window) {
 	lib := t.opts.Patterns
 	if lib == nil {
@@ -66,17 +66,17 @@ func (t *Tracker) matchOpen(j *job) {
 	}
 }
 
-// stepPattern hands one verdict to the pattern's hold.
+// stepPattern hands one verdict to the pattern's streak.
 func (t *Tracker) stepPattern(j *job, p *pattern.Pattern, vd matcher.Verdict, provisional bool, shown *matcher.View, now time.Time) {
 	ev := flagging.Evaluation{
 		Holds: vd.Matched, Provisional: provisional, At: now, Since: t.matchSince(j, vd, now),
 		Score: vd.Score, Value: math.NaN(),
 	}
 	opts := flagging.Options{RaiseAfter: p.RaiseAfter, ClearAfter: p.ClearAfter}
-	f, change := j.holds.Step(model.PatternOf(p.Name), opts, ev, func(*flagging.Hold) *model.Flag {
+	f, change := j.streaks.Step(model.PatternOf(p.Name), opts, ev, func(*flagging.Streak) *model.Flag {
 		return t.patternFlag(j, p, shown)
 	})
-	if _, held := j.holds[model.PatternOf(p.Name)]; held || change != flagging.Unchanged {
+	if _, held := j.streaks[model.PatternOf(p.Name)]; held || change != flagging.Unchanged {
 		t.dirtyJobs[j.meta.ID] = struct{}{}
 	}
 	t.report(j, f, change)

@@ -65,7 +65,7 @@ func (j *job) record() model.JobRecord {
 	r := model.JobRecord{
 		Meta: j.meta, Closed: j.closed, LastSample: j.lastSample,
 		LiveRates: j.liveRates, LiveLevels: j.liveLevels, LiveNodes: j.liveNodes,
-		Holds: j.holds.Records(), FlagsRaised: j.flagsRaised, Finished: j.finished,
+		Streaks: j.streaks.Records(), FlagsRaised: j.flagsRaised, Finished: j.finished,
 		Live:      make(map[string][]model.SliceRecord, len(j.live)),
 		Open:      make(map[int]model.OpenRecord, len(j.open)),
 		Signature: sig,
@@ -98,7 +98,7 @@ func jobOf(r *model.JobRecord) *job {
 	j.meta.Nodes = slices.Clone(r.Meta.Nodes)
 	j.closed, j.lastSample = r.Closed, r.LastSample
 	j.liveRates, j.liveLevels, j.liveNodes = r.LiveRates, r.LiveLevels, r.LiveNodes
-	j.holds = flagging.FromRecords(r.Holds)
+	j.streaks = flagging.FromRecords(r.Streaks)
 	j.flagsRaised, j.finished = r.FlagsRaised, r.Finished
 	for n, recs := range r.Live {
 		ss := make([]slice, len(recs))

@@ -21,7 +21,7 @@
 // A sample's walk is one way down: the tracker keeps the window sums, has
 // package coding code a closing window, appends it to the job's signature,
 // gives it to the job's matcher.Job and hands each verdict to the job's
-// flagging.Holds; nothing it calls calls back.
+// flagging.Streaks; nothing it calls calls back.
 //
 // # Caveats
 //
@@ -351,7 +351,7 @@ func (t *Tracker) sortedJobIDs() []string {
 // finish closes an ended job's open windows and clears its flags.
 func (t *Tracker) finish(j *job) {
 	t.closeWindows(j, time.Time{}) // zero: close everything
-	for _, f := range j.holds.ClearAll(j.meta.End) {
+	for _, f := range j.streaks.ClearAll(j.meta.End) {
 		t.emit(Event{Kind: FlagCleared, Job: j.meta.ID, Flag: f})
 	}
 	j.finished = true

@@ -39,7 +39,7 @@ func summarize(j *job) model.Summary {
 		LiveGrades:  j.signature.Live,
 		Signature:   make(map[string]string, metric.Count),
 		Windows:     j.closed,
-		ActiveFlags: j.holds.Active(),
+		ActiveFlags: j.streaks.Active(),
 	}
 	if s.ActiveFlags == nil {
 		s.ActiveFlags = []model.Flag{}
@@ -55,7 +55,7 @@ func summarize(j *job) model.Summary {
 		w := *j.lastWindow
 		s.LastWindow = &w
 	}
-	for r, h := range j.holds {
+	for r, h := range j.streaks {
 		if r.Kind == model.PatternMatch && h.Score > 0 {
 			if s.PatternScores == nil {
 				s.PatternScores = map[string]float64{}

@@ -13,7 +13,7 @@
 // [Row] at a time, and [Reader.Each] (or the shorthand [Read]) calls a
 // function for every good row until the end of the input. A malformed row
 // is not fatal: it comes back as a [*RowError] carrying its line number
-// and reason, it is counted in [Stats] (the first [MaxErrors] are kept),
+// and reason, it is counted in [ReadTotals] (the first [MaxErrors] are kept),
 // and reading goes on with the next line. Only a missing or wrong header
 // ([ErrHeader]), a read error from the underlying reader, a cancelled
 // context or an error from the caller's function stop the reader.
@@ -91,7 +91,7 @@
 //     which jobs or nodes they came from.
 //   - [Row.Day] is a [time.Time] at UTC midnight. The writer prints the UTC
 //     calendar day of whatever time it is given and drops the time of day.
-//   - [Stats.Windows] stops at 2^64-1 instead of wrapping.
+//   - [ReadTotals.Windows] stops at 2^64-1 instead of wrapping.
 //   - Offset counts the bytes of the lines parsed so far, not the bytes the
 //     reader has buffered ahead; it reaches the file size at the end.
 package windowcsv

@@ -44,7 +44,7 @@ type result struct {
 	errs   []string // RowError texts, in order
 	lines  []int    // RowError line numbers, in order
 	fatal  error    // the error that ended reading, nil for io.EOF
-	stats  windowcsv.Stats
+	stats  windowcsv.ReadTotals
 	offset int64
 }
 

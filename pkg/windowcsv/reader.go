@@ -13,8 +13,8 @@ import (
 	"time"
 )
 
-// MaxErrors is how many row errors [Stats.Errors] keeps; later ones are
-// only counted in [Stats.Malformed].
+// MaxErrors is how many row errors [ReadTotals.Errors] keeps; later ones are
+// only counted in [ReadTotals.Malformed].
 const MaxErrors = 100
 
 // maxLine is the longest line the reader parses, line end included; it is
@@ -70,8 +70,8 @@ func (e *RowError) Error() string {
 // Is reports whether target is [ErrMalformed].
 func (e *RowError) Is(target error) bool { return target == ErrMalformed }
 
-// Stats counts what a [Reader] has read so far.
-type Stats struct {
+// ReadTotals counts what a [Reader] has read so far.
+type ReadTotals struct {
 	// Lines is the number of lines read: comments, blank lines, the
 	// header and rows, good or not.
 	Lines int
@@ -99,7 +99,7 @@ type Reader struct {
 	header  bool // header read
 	columns int  // 3 or 4, from the header
 	line    int  // number of the last line read
-	stats   Stats
+	stats   ReadTotals
 
 	// The last day parsed, as text and as a time: rows come grouped by
 	// day, so most days are a 10-byte compare.
@@ -121,7 +121,7 @@ func (rd *Reader) Reset(r io.Reader) {
 	rd.br.Reset(r)
 	rd.off.Store(0) // not a struct copy: Offset may be running
 	rd.err, rd.header, rd.columns, rd.line = nil, false, 0, 0
-	rd.stats = Stats{}
+	rd.stats = ReadTotals{}
 	rd.dayOK = false
 }
 
@@ -132,7 +132,7 @@ func (rd *Reader) Reset(r io.Reader) {
 func (rd *Reader) Offset() int64 { return rd.off.Load() }
 
 // Stats returns the counts so far. The Errors slice is a copy.
-func (rd *Reader) Stats() Stats {
+func (rd *Reader) Stats() ReadTotals {
 	s := rd.stats
 	s.Lines = rd.line
 	s.Errors = slices.Clone(s.Errors)
@@ -190,7 +190,7 @@ func (rd *Reader) Next() (Row, error) {
 // (returned as it is), or when ctx is done (its error is returned), which
 // it checks every few thousand lines. The end of the input gives a nil
 // error.
-func (rd *Reader) Each(ctx context.Context, fn func(Row) error) (Stats, error) {
+func (rd *Reader) Each(ctx context.Context, fn func(Row) error) (ReadTotals, error) {
 	if err := ctx.Err(); err != nil {
 		return rd.Stats(), err
 	}
@@ -220,7 +220,7 @@ func (rd *Reader) Each(ctx context.Context, fn func(Row) error) (Stats, error) {
 
 // Read reads a whole window-value file from r, calling fn for every good
 // row; it is NewReader(r).Each(ctx, fn).
-func Read(ctx context.Context, r io.Reader, fn func(Row) error) (Stats, error) {
+func Read(ctx context.Context, r io.Reader, fn func(Row) error) (ReadTotals, error) {
 	return NewReader(r).Each(ctx, fn)
 }
 

@@ -464,7 +464,7 @@ func TestReset(t *testing.T) {
 	require.Error(t, err)
 	rd.Reset(strings.NewReader("day,metric,rate,count\n2024-03-02,opens,1,5\n"))
 	require.Zero(t, rd.Offset())
-	require.Equal(t, windowcsv.Stats{}, rd.Stats())
+	require.Equal(t, windowcsv.ReadTotals{}, rd.Stats())
 	r, err := rd.Next()
 	require.NoError(t, err)
 	require.Equal(t, row(t, "2024-03-02", metric.Opens, 1, 5), r)

@@ -5,13 +5,14 @@
 //
 // # Basics
 //
-// A [Holds] keeps one [Hold] per reason that is building up or flagged, for
-// one job. [Holds.Step] takes one evaluation of a reason: RaiseAfter
-// evaluations in a row that hold raise a flag, ClearAfter in a row that do
-// not clear it. An evaluation of the window still open is provisional: it
-// may complete a run and raise (a flag one minute into the window that
-// would complete it), but it never counts towards clearing and leaves no
-// trace when it does not raise. A high-rate reason is evaluated on every
+// A [Streaks] keeps one [Streak] per reason that is building up or
+// flagged, for one job. [Streaks.Step] takes one evaluation of a reason:
+// RaiseAfter evaluations in a row that hold raise a flag, ClearAfter in a
+// row that do not clear it. An evaluation of the window still open is
+// provisional: it may complete a run and raise (a flag one minute into the
+// window that would complete it), but it never counts as one more
+// evaluation in a row; when it holds without raising, only its score is
+// kept, until the next closed window. A high-rate reason is evaluated on every
 // live evaluation; a pattern on each closed window and, provisionally, on
 // the open one.
 //
@@ -51,7 +52,7 @@ type Evaluation struct {
 	// Since is when the condition began if a run starts now; zero means
 	// At.
 	Since time.Time
-	// Score is the evaluation's score, 0..1; it becomes the hold's and
+	// Score is the evaluation's score, 0..1; it becomes the streak's and
 	// its flag's latest score.
 	Score float64
 	// Value, unless NaN, becomes the flag's latest value and raises its
@@ -59,8 +60,8 @@ type Evaluation struct {
 	Value float64
 }
 
-// Hold is one reason's raise-and-clear state for one job.
-type Hold struct {
+// Streak is one reason's raise-and-clear state for one job.
+type Streak struct {
 	Above int       // evaluations in a row that held
 	Below int       // evaluations in a row that did not, while flagged
 	Since time.Time // when the current run began
@@ -74,12 +75,12 @@ type Change uint8
 // The changes.
 const (
 	Unchanged Change = iota
-	Raise            // the caller must set Hold.Flag
-	Clear            // Hold.Flag is cleared; the caller reports it
+	Raise            // the caller must set Streak.Flag
+	Clear            // Streak.Flag is cleared; the caller reports it
 )
 
 // step applies e to h.
-func (o Options) step(h *Hold, e Evaluation) Change {
+func (o Options) step(h *Streak, e Evaluation) Change {
 	raiseAfter, clearAfter := max(o.RaiseAfter, 1), max(o.ClearAfter, 1)
 	h.Score = e.Score
 	if f := h.Flag; f != nil {
@@ -127,27 +128,27 @@ func sinceOf(e Evaluation) time.Time {
 	return e.Since
 }
 
-// idle reports whether the hold remembers nothing worth keeping.
-func (h *Hold) idle() bool { return h.Above == 0 && h.Flag == nil }
+// idle reports whether the streak remembers nothing worth keeping.
+func (h *Streak) idle() bool { return h.Above == 0 && h.Flag == nil }
 
-// Holds is one job's holds, by reason.
-type Holds map[model.Reason]*Hold
+// Streaks is one job's streaks, by reason.
+type Streaks map[model.Reason]*Streak
 
-// Raiser builds the flag a hold raises. It is given the hold (Since and
+// Raiser builds the flag a streak raises. It is given the streak (Since and
 // Score set) and returns the flag's content; Step fills in the reason,
 // Since, Raised and Score.
-type Raiser func(h *Hold) *model.Flag
+type Raiser func(h *Streak) *model.Flag
 
 // Step applies one evaluation of reason r. It returns the flag raised or
-// cleared by it, with the change; the flag is the hold's own (a cleared
+// cleared by it, with the change; the flag is the streak's own (a cleared
 // one is no longer held).
-func (hs Holds) Step(r model.Reason, o Options, e Evaluation, raise Raiser) (*model.Flag, Change) {
+func (hs Streaks) Step(r model.Reason, o Options, e Evaluation, raise Raiser) (*model.Flag, Change) {
 	h := hs[r]
 	if h == nil {
 		if !e.Holds {
 			return nil, Unchanged // nothing to remember
 		}
-		h = &Hold{}
+		h = &Streak{}
 		hs[r] = h
 	}
 	switch o.step(h, e) {
@@ -167,9 +168,9 @@ func (hs Holds) Step(r model.Reason, o Options, e Evaluation, raise Raiser) (*mo
 	return nil, Unchanged
 }
 
-// ClearAll clears every flag (the job ended at at) and forgets every hold;
+// ClearAll clears every flag (the job ended at at) and forgets every streak;
 // it returns the cleared flags in reason order.
-func (hs Holds) ClearAll(at time.Time) []*model.Flag {
+func (hs Streaks) ClearAll(at time.Time) []*model.Flag {
 	var out []*model.Flag
 	for _, r := range hs.reasons() {
 		if f := hs[r].Flag; f != nil {
@@ -182,7 +183,7 @@ func (hs Holds) ClearAll(at time.Time) []*model.Flag {
 }
 
 // Active returns copies of the active flags, in reason order.
-func (hs Holds) Active() []model.Flag {
+func (hs Streaks) Active() []model.Flag {
 	var out []model.Flag
 	for _, r := range hs.reasons() {
 		if f := hs[r].Flag; f != nil {
@@ -192,8 +193,9 @@ func (hs Holds) Active() []model.Flag {
 	return out
 }
 
-// Score returns the latest score of reason r and whether it is held.
-func (hs Holds) Score(r model.Reason) (float64, bool) {
+// Score returns the latest score of reason r and whether it has a
+// streak.
+func (hs Streaks) Score(r model.Reason) (float64, bool) {
 	h, ok := hs[r]
 	if !ok {
 		return 0, false
@@ -201,9 +203,9 @@ func (hs Holds) Score(r model.Reason) (float64, bool) {
 	return h.Score, true
 }
 
-// reasons lists the held reasons in a fixed order: high rates by metric,
+// reasons lists the reasons with a streak in a fixed order: high rates by metric,
 // then patterns by name.
-func (hs Holds) reasons() []model.Reason {
+func (hs Streaks) reasons() []model.Reason {
 	return slices.SortedFunc(maps.Keys(hs), compareReasons)
 }
 
@@ -227,14 +229,14 @@ func compareStrings(a, b string) int {
 	return 0
 }
 
-// Records returns the holds as the state file keeps them.
-func (hs Holds) Records() map[model.Reason]model.HoldRecord {
+// Records returns the streaks as the state file keeps them.
+func (hs Streaks) Records() map[model.Reason]model.StreakRecord {
 	if len(hs) == 0 {
 		return nil
 	}
-	out := make(map[model.Reason]model.HoldRecord, len(hs))
+	out := make(map[model.Reason]model.StreakRecord, len(hs))
 	for r, h := range hs {
-		rec := model.HoldRecord{Above: h.Above, Below: h.Below, Since: h.Since, Score: h.Score}
+		rec := model.StreakRecord{Above: h.Above, Below: h.Below, Since: h.Since, Score: h.Score}
 		if h.Flag != nil {
 			f := *h.Flag
 			f.Drivers = slices.Clone(f.Drivers)
@@ -245,11 +247,11 @@ func (hs Holds) Records() map[model.Reason]model.HoldRecord {
 	return out
 }
 
-// FromRecords rebuilds holds from the state file's records.
-func FromRecords(recs map[model.Reason]model.HoldRecord) Holds {
-	hs := make(Holds, len(recs))
+// FromRecords rebuilds streaks from the state file's records.
+func FromRecords(recs map[model.Reason]model.StreakRecord) Streaks {
+	hs := make(Streaks, len(recs))
 	for r, rec := range recs {
-		h := &Hold{Above: rec.Above, Below: rec.Below, Since: rec.Since, Score: rec.Score}
+		h := &Streak{Above: rec.Above, Below: rec.Below, Since: rec.Since, Score: rec.Score}
 		if rec.Flag != nil {
 			f := *rec.Flag
 			f.Drivers = slices.Clone(f.Drivers)
