@@ -33,7 +33,7 @@ func TestStormFlagsExplainAckSilenceLearn(t *testing.T) {
 	lib, err := loadLibrary("", true)
 	require.NoError(t, err)
 	svc := startService(t, func(o *aggregate.Options) {
-		o.Tracker = tracker.Options{Window: time.Minute, Live: 20 * time.Second, Grace: time.Second, Patterns: lib}
+		o.Tracker = tracker.Options{Window: time.Minute, Live: 20 * time.Second, Grace: time.Second, KeepEnded: time.Minute, Patterns: lib}
 	})
 	url := "http://" + svc.HTTPAddr()
 	nc, err := nats.Connect(svc.NATSURL())
@@ -124,6 +124,21 @@ func TestStormFlagsExplainAckSilenceLearn(t *testing.T) {
 	assert.Contains(t, ended, "ended")
 	assert.Contains(t, ended, "metadata_storm — Metadata storm (critical): score")
 	cli("patterns", "learn", "--job", "81234", "--name", "quill_storm", "--out", out)
+
+	// Two minutes later the tracker has forgotten the job (KeepEnded is a
+	// minute here); its stored windows still explain it and teach a pattern.
+	later := end.Add(3 * time.Minute)
+	b = wire.AppendSample(nil, &report.Sample{Node: nodes[1], Seq: 100, Start: later, End: later.Add(10 * time.Second)})
+	require.NoError(t, nc.Publish("sluice.default.sample."+nodes[1], b))
+	require.NoError(t, nc.Flush())
+	require.Eventually(t, func() bool { svc.Tick(); return !strings.Contains(cli("jobs", "--all"), "81234") }, 5*time.Second, 10*time.Millisecond)
+	gone := cli("explain", "81234")
+	assert.Contains(t, gone, "job 81234 (-, user -): ended, 4 closed windows")
+	assert.Contains(t, gone, "metadata_storm — Metadata storm (critical): score")
+	cli("patterns", "learn", "--job", "81234", "--name", "quill_storm", "--out", out)
+	data, err = os.ReadFile(out)
+	require.NoError(t, err)
+	assert.Contains(t, string(data), "creates:")
 }
 
 func applied(t *testing.T, url string) uint64 {
