@@ -28,7 +28,7 @@ import (
 	"sluice/pkg/options"
 )
 
-const usage = `usage: agent <command> [flags]
+const usage = `usage: agent <command> [options]
 
 commands:
   run         sample this node's counters and publish them (until SIGTERM)
@@ -37,7 +37,7 @@ commands:
   job start   record that a job started on this node (call from a prolog)
   job end     record that a job ended on this node (call from an epilog)
 
-Run "agent <command> -h" for the flags of a command.
+Run "agent <command> -h" for the options of a command.
 `
 
 func main() {
@@ -73,7 +73,7 @@ func run(ctx context.Context, args []string, stderr io.Writer) error {
 	return fmt.Errorf("unknown command %q", strings.Join(args, " "))
 }
 
-// common holds the flags every command shares.
+// common holds the options every command shares.
 type common struct {
 	node, stateDir, natsURL, prefix, cluster, logLevel string
 }
@@ -104,11 +104,11 @@ func runAgent(ctx context.Context, args []string, stderr io.Writer) error {
 	return a.Run(ctx)
 }
 
-// setup parses the flags shared by run, check and bench (with the
+// setup parses the options shared by run, check and bench (with the
 // environment and the --config file) and builds the agent.
-func setup(name string, args []string, stderr io.Writer, extra ...func(*flag.FlagSet)) (*nodeagent.Agent, *agentFlags, error) {
+func setup(name string, args []string, stderr io.Writer, extra ...func(*flag.FlagSet)) (*nodeagent.Agent, *agentOptions, error) {
 	fs := flag.NewFlagSet(name, flag.ContinueOnError)
-	var f agentFlags
+	var f agentOptions
 	f.register(fs)
 	for _, e := range extra {
 		e(fs)
@@ -136,17 +136,17 @@ func setup(name string, args []string, stderr io.Writer, extra ...func(*flag.Fla
 	return a, &f, err
 }
 
-// agentFlags are the options of run, check and bench.
-type agentFlags struct {
+// agentOptions are the options of run, check and bench.
+type agentOptions struct {
 	common
 	interval, jitter time.Duration
 	mappingFile      string
 	queueLimit       int
 	jobsFrom         string
-	sources          sourceFlags
+	sources          sourceOptions
 }
 
-func (f *agentFlags) register(fs *flag.FlagSet) {
+func (f *agentOptions) register(fs *flag.FlagSet) {
 	f.common.register(fs)
 	fs.DurationVar(&f.interval, "interval", 5*time.Second, "sampling interval (at least 100ms)")
 	fs.DurationVar(&f.jitter, "jitter", 0, "width of the window holding this node's sampling phase, a stable offset derived from its name (0: the whole interval; negative: sample on interval boundaries)")
@@ -182,12 +182,12 @@ const envPrefix = "SLUICE_AGENT_"
 // options of the agent's other commands.
 func parseWithOptions(fs *flag.FlagSet, args []string) error {
 	all := flag.NewFlagSet("all", flag.ContinueOnError)
-	var f agentFlags
+	var f agentOptions
 	f.register(all)
 	return options.Parse(fs, args, envPrefix, all)
 }
 
-func hookFlags(name string, c *common) (*flag.FlagSet, *string, *string) {
+func hookOptions(name string, c *common) (*flag.FlagSet, *string, *string) {
 	fs := flag.NewFlagSet(name, flag.ContinueOnError)
 	c.register(fs)
 	id := fs.String("id", "", "job id (required)")
@@ -210,14 +210,14 @@ func (c *common) hook(log *slog.Logger) nodeagent.HookConfig {
 	return nodeagent.HookConfig{StateDir: c.stateDir, Node: c.node, NATSURL: c.natsURL, Prefix: c.prefix, Cluster: c.cluster, Logger: log}
 }
 
-// hook is a parsed hook command: its common flags, job id and time.
+// hook is a parsed hook command: its common options, job id and time.
 type hook struct {
 	cfg nodeagent.HookConfig
 	id  string
 	at  time.Time
 }
 
-// parseHook parses a hook command's flags (after extra ones are added to
+// parseHook parses a hook command's options (after extra ones are added to
 // fs) and checks the id and time.
 func parseHook(cmd string, fs *flag.FlagSet, c *common, id, at *string, args []string, stderr io.Writer) (hook, error) {
 	if err := parseWithOptions(fs, args); err != nil {
@@ -239,7 +239,7 @@ func parseHook(cmd string, fs *flag.FlagSet, c *common, id, at *string, args []s
 
 func jobStart(ctx context.Context, args []string, stderr io.Writer) error {
 	var c common
-	fs, id, at := hookFlags("agent job start", &c)
+	fs, id, at := hookOptions("agent job start", &c)
 	user := fs.String("user", "", "job owner")
 	account := fs.String("account", "", "accounting project")
 	name := fs.String("name", "", "job name")
@@ -258,7 +258,7 @@ func jobStart(ctx context.Context, args []string, stderr io.Writer) error {
 
 func jobEnd(ctx context.Context, args []string, stderr io.Writer) error {
 	var c common
-	fs, id, at := hookFlags("agent job end", &c)
+	fs, id, at := hookOptions("agent job end", &c)
 	exit := fs.Int("exit-code", 0, "the job's exit code")
 	h, err := parseHook("job end", fs, &c, id, at, args, stderr)
 	if err != nil {

@@ -15,8 +15,8 @@ import (
 	"sluice/pkg/source/nfs"
 )
 
-// sourceFlags select and configure the counter sources.
-type sourceFlags struct {
+// sourceOptions select and configure the counter sources.
+type sourceOptions struct {
 	list         string
 	lustreRoot   string
 	nfsProc      string
@@ -29,7 +29,7 @@ type sourceFlags struct {
 // knownSources are the source kinds --sources may name, in reading order.
 var knownSources = []string{"lustre", "nfs", "block", "jobio"}
 
-func (f *sourceFlags) register(fs *flag.FlagSet) {
+func (f *sourceOptions) register(fs *flag.FlagSet) {
 	fs.StringVar(&f.list, "sources", strings.Join(knownSources, ","), "comma-separated counter sources to read: "+strings.Join(knownSources, ", "))
 	fs.StringVar(&f.lustreRoot, "source.lustre.root", "/sys/kernel/debug/lustre/llite", "directory holding one <instance>/stats file per Lustre client mount (Lustre before 2.12: /proc/fs/lustre/llite)")
 	fs.StringVar(&f.nfsProc, "source.nfs.procfs", "/proc", "procfs mount point holding self/mountstats (the agent's mount namespace)")
@@ -43,8 +43,8 @@ func (f *sourceFlags) register(fs *flag.FlagSet) {
 }
 
 // build makes the selected sources. A selected source whose directory does
-// not exist is an error naming the path and the flag that sets it.
-func (f *sourceFlags) build() ([]source.Source, error) {
+// not exist is an error naming the path and the option that sets it.
+func (f *sourceOptions) build() ([]source.Source, error) {
 	var out []source.Source
 	for _, name := range strings.Split(f.list, ",") {
 		name = strings.TrimSpace(name)

@@ -1,11 +1,11 @@
-// Package options gives a binary's flags two more sources with the same
-// names: environment variables and a YAML file. One documented set of names
-// serves all three.
+// Package options gives a binary's command-line options (a flag.FlagSet)
+// two more sources with the same names: environment variables and a YAML
+// file. One documented set of names serves all three.
 //
 // # Basics
 //
-// [Apply] fills every flag that was not given on the command line, first
-// from the environment (the flag name upper-cased, with '.' and '-' turned
+// [Apply] fills every option that was not given on the command line,
+// first from the environment (the option's name upper-cased, with '.' and '-' turned
 // into '_', behind a prefix: --source.lustre.root is
 // SLUICE_AGENT_SOURCE_LUSTRE_ROOT), then from the file. The file holds the
 // same names, either dotted or nested:
@@ -16,8 +16,8 @@
 //	    root: /proc/fs/lustre/llite
 //	nats.url: nats://broker.example:4222
 //
-// Precedence: command line, then environment, then file, then the flag's
-// default.
+// Precedence: command line, then environment, then file, then the
+// option's default.
 //
 // # Caveats
 //
@@ -106,7 +106,7 @@ func cmpOr(a, b string) string {
 	return b
 }
 
-// Apply fills the flags of fs that were not set on the command line from
+// Apply fills the options of fs that were not set on the command line from
 // the environment (names under envPrefix; lookup nil means os.LookupEnv)
 // and then from file (nil means no file). Call it after fs.Parse.
 func Apply(fs *flag.FlagSet, envPrefix string, lookup func(string) (string, bool), file map[string]string) error {
@@ -151,11 +151,11 @@ func names(fs *flag.FlagSet) []string {
 // <envPrefix>CONFIG variable) naming an options file, then fills what the
 // command line left unset from the environment and that file. Names in the
 // file that fs lacks but also (a set of the binary's other commands'
-// flags, may be nil) has are skipped, so one file can serve several
+// options, may be nil) has are skipped, so one file can serve several
 // commands; any other unknown name is an error. Positional arguments are
 // refused.
 func Parse(fs *flag.FlagSet, args []string, envPrefix string, also *flag.FlagSet) error {
-	config := fs.String("config", "", "YAML file of options, by the same names as the flags (env "+envPrefix+"CONFIG)")
+	config := fs.String("config", "", "YAML file of options, by the same names as on the command line (env "+envPrefix+"CONFIG)")
 	if err := fs.Parse(args); err != nil {
 		return err
 	}
