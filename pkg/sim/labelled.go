@@ -440,208 +440,311 @@ func (g *gen) drawBase(j *LabelledJob) profile {
 	return p
 }
 
-// inject sets the class's label, span, intensity and overlay.
+// inject sets the class's label, span, intensity and overlay. The intensity
+// is drawn first, then the span, then the class's form: a seed makes the
+// same population only while the draws keep that order.
 func (g *gen) inject(j *LabelledJob, minProblem int) {
-	r, ref := g.rng, &g.o.Reference
-	W, step := g.o.Window, g.o.Step
-	steps := j.Steps()
-	perWindow := int(W / step)
-	in := &j.inj
-	in.nodeSigma = 0.2
-	I := g.logUniform(1.5, 8)
-	j.Intensity = I
-
-	// span sets the injection from a random minute leaving at least
-	// minProblem windows, lasting to the end or at least minProblem
-	// windows.
-	span := func() {
-		latest := steps - minProblem*perWindow
-		on := r.IntN(latest + 1)
-		until := steps
-		if r.Float64() < 0.35 {
-			until = on + minProblem*perWindow + r.IntN(steps-on-minProblem*perWindow+1)
-		}
-		j.Onset, j.Until = time.Duration(on)*step, time.Duration(until)*step
-	}
-	add := func(id metric.ID, v float64) { in.add[id] += v }
-	replace := func(ids ...metric.ID) {
-		for _, id := range ids {
-			in.replace.Add(id)
-		}
-	}
-
+	j.inj.nodeSigma = 0.2
+	j.Intensity = g.logUniform(1.5, 8)
 	switch j.Class {
 	case ClassBurst:
-		d := 1 + r.IntN(4)
-		on := 0
-		if r.Float64() < 0.5 {
-			on = perWindow + r.IntN(max(steps-perWindow-d, 1))
-		}
-		j.Onset, j.Until = time.Duration(on)*step, time.Duration(min(on+d, steps))*step
-		if r.Float64() < 0.5 {
-			j.Variant = "create"
-			c := I * ref.critical(metric.Creates)
-			add(metric.Creates, c)
-			add(metric.Opens, c)
-			add(metric.Closes, c)
-			add(metric.MetaUpdates, c*g.uniform(0.5, 1)) // times and modes set
-			w := c * g.uniform(1, 3)
-			add(metric.WriteOps, w)
-			add(metric.WriteBytes, w*g.logUniform(1<<10, 64<<10))
-		} else {
-			j.Variant = "sync"
-			s := I * ref.critical(metric.Syncs)
-			add(metric.Syncs, s)
-			w := s * g.uniform(1, 4)
-			add(metric.WriteOps, w)
-			add(metric.WriteBytes, w*g.logUniform(64<<10, 4<<20))
-			add(metric.Opens, s)
-			add(metric.Closes, s)
-		}
+		g.injectBurst(j)
 	case ClassNoisyStart:
-		j.Variant = "start"
-		d := 2 + r.IntN(7)
-		j.Onset, j.Until = 0, time.Duration(min(d, steps))*step
-		I = g.logUniform(0.5, 5)
-		j.Intensity = I
-		add(metric.StatOps, I*ref.critical(metric.StatOps))
-		o := g.logUniform(0.3, 3) * max(ref.critical(metric.Opens), ref.critical(metric.Closes))
-		add(metric.Opens, o)
-		add(metric.Closes, o)
-		rb := g.logUniform(50e6, 1e9)
-		add(metric.ReadBytes, rb)
-		add(metric.ReadOps, rb/math.Exp2(float64(20+r.IntN(3))))
+		g.injectNoisyStart(j)
 	case ClassStreaming:
-		span()
-		j.Variant = []string{"read", "write", "both"}[r.IntN(3)]
-		dir := j.Variant
-		// The main direction (reads for "both") runs at I times its
-		// critical cut, capped at 6 GB/s per node; the other direction of
-		// "both" at 20% to 100% of it.
-		main := metric.ReadBytes
-		if dir == "write" {
-			main = metric.WriteBytes
-		}
-		rate := min(I*ref.critical(main), 6e9)
-		j.Intensity = rate / ref.critical(main)
-		mib := []int{1, 1, 1, 2, 4, 4, 4, 8, 16}[r.IntN(9)]
-		size := float64(mib << 20)
-		j.Variant += fmt.Sprintf(" %dMiB", mib)
-		replace(metric.ReadBytes, metric.ReadOps, metric.WriteBytes, metric.WriteOps)
-		switch dir {
-		case "read":
-			add(metric.ReadBytes, rate)
-			add(metric.ReadOps, rate/size)
-		case "write":
-			add(metric.WriteBytes, rate)
-			add(metric.WriteOps, rate/size)
-		default:
-			w := rate * g.uniform(0.2, 1)
-			add(metric.ReadBytes, rate)
-			add(metric.ReadOps, rate/size)
-			add(metric.WriteBytes, w)
-			add(metric.WriteOps, w/size)
-		}
+		g.span(j, minProblem)
+		g.injectStreaming(j)
 	case LabelMetadataStorm:
-		span()
-		j.Label = j.Class
-		switch r.IntN(2) {
-		case 0: // one file per task or step, often removed again
-			j.Variant = "create"
-			c := I * ref.critical(metric.Creates)
-			add(metric.Creates, c)
-			if r.Float64() < 0.6 {
-				add(metric.Removes, c*g.uniform(0.5, 1))
-			}
-			add(metric.Opens, c)
-			add(metric.Closes, c)
-			w := c * g.uniform(1, 3)
-			add(metric.WriteOps, w)
-			add(metric.WriteBytes, w*g.logUniform(256, 8<<10))
-			add(metric.StatOps, c*g.uniform(0.5, 2))
-			add(metric.MetaUpdates, c*g.uniform(0, 0.5))
-		case 1: // removing a huge tree
-			j.Variant = "unlink"
-			u := I * ref.critical(metric.Removes)
-			add(metric.Removes, u)
-			add(metric.StatOps, u*g.uniform(1, 2))
-			o := u * g.uniform(0, 0.02) // directories opened
-			add(metric.Opens, o)
-			add(metric.Closes, o)
-		}
-	case LabelStatStorm: // scanning a huge tree, again and again
-		span()
-		j.Label = j.Class
-		st := I * ref.critical(metric.StatOps)
-		add(metric.StatOps, st)
-		o := st * g.uniform(0, 0.02) // directories opened
-		add(metric.Opens, o)
-		add(metric.Closes, o)
+		g.startProblem(j, minProblem)
+		g.injectMetadataStorm(j)
+	case LabelStatStorm:
+		g.startProblem(j, minProblem)
+		g.injectStatStorm(j)
 	case LabelSmallWriteFlood:
-		span()
-		j.Label = j.Class
-		w := I * ref.critical(metric.WriteOps)
-		replace(metric.WriteBytes, metric.WriteOps)
-		add(metric.WriteOps, w)
-		add(metric.WriteBytes, w*g.logUniform(64, 16<<10))
+		g.startProblem(j, minProblem)
+		g.injectSmallWriteFlood(j)
 	case LabelOpenCloseChurn:
-		span()
-		j.Label = j.Class
-		o := I * max(ref.critical(metric.Opens), ref.critical(metric.Closes))
-		add(metric.Opens, o)
-		add(metric.Closes, o)
-		rd := o * g.uniform(1, 3)
-		add(metric.ReadOps, rd)
-		add(metric.ReadBytes, rd*g.logUniform(512, 16<<10))
-		add(metric.StatOps, o*g.uniform(0, 1))
+		g.startProblem(j, minProblem)
+		g.injectOpenCloseChurn(j)
 	case LabelFsyncStorm:
-		span()
-		j.Label = j.Class
-		s := I * ref.critical(metric.Syncs)
-		replace(metric.WriteBytes, metric.WriteOps, metric.Syncs)
-		add(metric.Syncs, s)
-		w := s * g.uniform(0.8, 1.3)
-		add(metric.WriteOps, w)
-		add(metric.WriteBytes, w*g.logUniform(512, 32<<10))
+		g.startProblem(j, minProblem)
+		g.injectFsyncStorm(j)
 	case LabelImbalancedIO:
-		span()
-		j.Label = j.Class
-		id, ops := metric.WriteBytes, metric.WriteOps
-		j.Variant = "write"
-		if r.Float64() < 0.4 {
-			id, ops, j.Variant = metric.ReadBytes, metric.ReadOps, "read"
-		}
-		need := ref.p90(id)
-		// One client moves at most about 5 GB/s: a wide job's intensity
-		// is capped by it, and a job too wide for 1.5 times the need is
-		// made narrower.
-		const clientMax = 5e9
-		for j.Nodes > 4 && 1.5*need*float64(j.Nodes) > clientMax {
-			j.Nodes /= 2
-			j.base.nodeFac = j.base.nodeFac[:j.Nodes]
-		}
-		I = min(I, clientMax/(need*float64(j.Nodes)))
-		j.Intensity = I
-		total := I * need * float64(j.Nodes) // the job's data rate, all on node 0
-		size := math.Exp2(float64(17 + r.IntN(6)))
-		in.node0[id] = total
-		in.node0[ops] = total / size
-		in.othersShare = g.uniform(0, 0.15)
-		replace(metric.ReadBytes, metric.ReadOps, metric.WriteBytes, metric.WriteOps)
+		g.startProblem(j, minProblem)
+		g.injectImbalancedIO(j)
 	case LabelStatPolling:
-		span()
-		j.Label = j.Class
-		need := ref.Cuts[metric.StatOps].Elevated
-		I = min(I, 0.6*ref.critical(metric.StatOps)/need)
-		j.Intensity = I
-		// The job waits: its other I/O falls to a trickle, and its data to
-		// a line of log now and then (at most 50 kB/s per node).
-		in.scale = g.uniform(0, 0.02)
-		in.dataCap = 50e3
-		in.nodeSigma = 0.05
-		add(metric.StatOps, I*need)
-		replace(metric.StatOps)
+		g.startProblem(j, minProblem)
+		g.injectStatPolling(j)
 	}
+}
+
+// stepsPerWindow is the number of sample intervals in a window.
+func (j *LabelledJob) stepsPerWindow() int { return int(j.window / j.step) }
+
+// setSpan bounds the injection to steps [on, until).
+func (j *LabelledJob) setSpan(on, until int) {
+	j.Onset, j.Until = time.Duration(on)*j.step, time.Duration(until)*j.step
+}
+
+// span sets the injection from a random minute leaving at least
+// minProblem windows, lasting to the end or at least minProblem windows.
+func (g *gen) span(j *LabelledJob, minProblem int) {
+	r := g.rng
+	steps, shortest := j.Steps(), minProblem*j.stepsPerWindow()
+	on := r.IntN(steps - shortest + 1)
+	until := steps
+	if r.Float64() < 0.35 {
+		until = on + shortest + r.IntN(steps-on-shortest+1)
+	}
+	j.setSpan(on, until)
+}
+
+// startProblem gives a problem class its span and its label, the pattern
+// of the same name.
+func (g *gen) startProblem(j *LabelledJob, minProblem int) {
+	g.span(j, minProblem)
+	j.Label = j.Class
+}
+
+// addRate adds v per node per second to metric id while the injection is
+// active.
+func (in *injection) addRate(id metric.ID, v float64) { in.add[id] += v }
+
+// replaceBackground drops the background of ids while the injection is
+// active, leaving only what it adds.
+func (in *injection) replaceBackground(ids ...metric.ID) {
+	for _, id := range ids {
+		in.replace.Add(id)
+	}
+}
+
+// addOpenClose adds n opens and as many closes per second: every file
+// opened is closed again.
+func (in *injection) addOpenClose(n float64) {
+	in.addRate(metric.Opens, n)
+	in.addRate(metric.Closes, n)
+}
+
+// addTransfers adds rate bytes per second to bytes in transfers of size
+// bytes, counted in ops.
+func (in *injection) addTransfers(bytes, ops metric.ID, rate, size float64) {
+	in.addRate(bytes, rate)
+	in.addRate(ops, rate/size)
+}
+
+// addWrites adds calls writes per second, each of a size drawn
+// log-uniformly in [lo, hi) bytes for the whole span.
+func (g *gen) addWrites(in *injection, calls, lo, hi float64) {
+	in.addRate(metric.WriteOps, calls)
+	in.addRate(metric.WriteBytes, calls*g.logUniform(lo, hi))
+}
+
+// addReads is addWrites for reads.
+func (g *gen) addReads(in *injection, calls, lo, hi float64) {
+	in.addRate(metric.ReadOps, calls)
+	in.addRate(metric.ReadBytes, calls*g.logUniform(lo, hi))
+}
+
+// injectBurst places a burst of 1 to 4 minutes, of creates or of syncs,
+// at the job's start (staging) or at a random minute after its first
+// window.
+func (g *gen) injectBurst(j *LabelledJob) {
+	r := g.rng
+	steps, perWindow := j.Steps(), j.stepsPerWindow()
+	d := 1 + r.IntN(4)
+	on := 0
+	if r.Float64() < 0.5 {
+		on = perWindow + r.IntN(max(steps-perWindow-d, 1))
+	}
+	j.setSpan(on, min(on+d, steps))
+	if r.Float64() < 0.5 {
+		g.burstOfCreates(j)
+	} else {
+		g.burstOfSyncs(j)
+	}
+}
+
+// burstOfCreates unpacks an input archive: files created, opened, written
+// in small pieces and closed, their times and modes set.
+func (g *gen) burstOfCreates(j *LabelledJob) {
+	in := &j.inj
+	j.Variant = "create"
+	c := j.Intensity * g.o.Reference.critical(metric.Creates)
+	in.addRate(metric.Creates, c)
+	in.addOpenClose(c)
+	in.addRate(metric.MetaUpdates, c*g.uniform(0.5, 1))
+	g.addWrites(in, c*g.uniform(1, 3), 1<<10, 64<<10)
+}
+
+// burstOfSyncs is a checkpoint flushing each file it writes.
+func (g *gen) burstOfSyncs(j *LabelledJob) {
+	in := &j.inj
+	j.Variant = "sync"
+	s := j.Intensity * g.o.Reference.critical(metric.Syncs)
+	in.addRate(metric.Syncs, s)
+	g.addWrites(in, s*g.uniform(1, 4), 64<<10, 4<<20)
+	in.addOpenClose(s)
+}
+
+// injectNoisyStart makes the first 2 to 8 minutes noisy: every rank
+// imports its libraries and reads its input. Its intensity, of the
+// critical stat cut, is drawn again: 0.5 to 5.
+func (g *gen) injectNoisyStart(j *LabelledJob) {
+	r, ref, in := g.rng, &g.o.Reference, &j.inj
+	j.Variant = "start"
+	d := 2 + r.IntN(7)
+	j.setSpan(0, min(d, j.Steps()))
+	j.Intensity = g.logUniform(0.5, 5)
+	in.addRate(metric.StatOps, j.Intensity*ref.critical(metric.StatOps))
+	in.addOpenClose(g.logUniform(0.3, 3) * max(ref.critical(metric.Opens), ref.critical(metric.Closes)))
+	rb := g.logUniform(50e6, 1e9)
+	in.addRate(metric.ReadBytes, rb)
+	in.addRate(metric.ReadOps, rb/math.Exp2(float64(20+r.IntN(3))))
+}
+
+// injectStreaming replaces the job's data with healthy streaming. The
+// main direction (reads for "both") runs at the intensity times its
+// critical cut, capped at 6 GB/s per node; the other direction of "both"
+// at 20% to 100% of it.
+func (g *gen) injectStreaming(j *LabelledJob) {
+	r, ref, in := g.rng, &g.o.Reference, &j.inj
+	dir := []string{"read", "write", "both"}[r.IntN(3)]
+	main := metric.ReadBytes
+	if dir == "write" {
+		main = metric.WriteBytes
+	}
+	rate := min(j.Intensity*ref.critical(main), 6e9)
+	j.Intensity = rate / ref.critical(main)
+	mib := []int{1, 1, 1, 2, 4, 4, 4, 8, 16}[r.IntN(9)]
+	size := float64(mib << 20)
+	j.Variant = dir + fmt.Sprintf(" %dMiB", mib)
+	in.replaceBackground(metric.ReadBytes, metric.ReadOps, metric.WriteBytes, metric.WriteOps)
+	switch dir {
+	case "read":
+		in.addTransfers(metric.ReadBytes, metric.ReadOps, rate, size)
+	case "write":
+		in.addTransfers(metric.WriteBytes, metric.WriteOps, rate, size)
+	default:
+		w := rate * g.uniform(0.2, 1)
+		in.addTransfers(metric.ReadBytes, metric.ReadOps, rate, size)
+		in.addTransfers(metric.WriteBytes, metric.WriteOps, w, size)
+	}
+}
+
+// injectMetadataStorm is a create storm or an unlink storm, half each.
+func (g *gen) injectMetadataStorm(j *LabelledJob) {
+	if g.rng.IntN(2) == 0 {
+		g.createStorm(j)
+	} else {
+		g.unlinkStorm(j)
+	}
+}
+
+// createStorm is one file per task or step, often removed again, with the
+// opens, small writes and stats each brings.
+func (g *gen) createStorm(j *LabelledJob) {
+	in := &j.inj
+	j.Variant = "create"
+	c := j.Intensity * g.o.Reference.critical(metric.Creates)
+	in.addRate(metric.Creates, c)
+	if g.rng.Float64() < 0.6 {
+		in.addRate(metric.Removes, c*g.uniform(0.5, 1))
+	}
+	in.addOpenClose(c)
+	g.addWrites(in, c*g.uniform(1, 3), 256, 8<<10)
+	in.addRate(metric.StatOps, c*g.uniform(0.5, 2))
+	in.addRate(metric.MetaUpdates, c*g.uniform(0, 0.5))
+}
+
+// unlinkStorm is a huge tree being removed: each file stated, each
+// directory opened.
+func (g *gen) unlinkStorm(j *LabelledJob) {
+	in := &j.inj
+	j.Variant = "unlink"
+	u := j.Intensity * g.o.Reference.critical(metric.Removes)
+	in.addRate(metric.Removes, u)
+	in.addRate(metric.StatOps, u*g.uniform(1, 2))
+	in.addOpenClose(u * g.uniform(0, 0.02))
+}
+
+// injectStatStorm is a huge tree scanned again and again: stats, and a
+// few opens of directories.
+func (g *gen) injectStatStorm(j *LabelledJob) {
+	in := &j.inj
+	st := j.Intensity * g.o.Reference.critical(metric.StatOps)
+	in.addRate(metric.StatOps, st)
+	in.addOpenClose(st * g.uniform(0, 0.02))
+}
+
+// injectSmallWriteFlood turns the job's writes into calls of 64 B to
+// 16 KiB.
+func (g *gen) injectSmallWriteFlood(j *LabelledJob) {
+	in := &j.inj
+	w := j.Intensity * g.o.Reference.critical(metric.WriteOps)
+	in.replaceBackground(metric.WriteBytes, metric.WriteOps)
+	g.addWrites(in, w, 64, 16<<10)
+}
+
+// injectOpenCloseChurn is an open, small read, close loop, with some
+// stats.
+func (g *gen) injectOpenCloseChurn(j *LabelledJob) {
+	ref, in := &g.o.Reference, &j.inj
+	o := j.Intensity * max(ref.critical(metric.Opens), ref.critical(metric.Closes))
+	in.addOpenClose(o)
+	g.addReads(in, o*g.uniform(1, 3), 512, 16<<10)
+	in.addRate(metric.StatOps, o*g.uniform(0, 1))
+}
+
+// injectFsyncStorm replaces the job's writes with a sync after about
+// every write of 512 B to 32 KiB.
+func (g *gen) injectFsyncStorm(j *LabelledJob) {
+	in := &j.inj
+	s := j.Intensity * g.o.Reference.critical(metric.Syncs)
+	in.replaceBackground(metric.WriteBytes, metric.WriteOps, metric.Syncs)
+	in.addRate(metric.Syncs, s)
+	g.addWrites(in, s*g.uniform(0.8, 1.3), 512, 32<<10)
+}
+
+// injectImbalancedIO puts the job's data, reads or writes, on its first
+// node; the others share 0% to 15% of it.
+func (g *gen) injectImbalancedIO(j *LabelledJob) {
+	r, in := g.rng, &j.inj
+	id, ops := metric.WriteBytes, metric.WriteOps
+	j.Variant = "write"
+	if r.Float64() < 0.4 {
+		id, ops, j.Variant = metric.ReadBytes, metric.ReadOps, "read"
+	}
+	need := g.o.Reference.p90(id)
+	// One client moves at most about 5 GB/s: a wide job's intensity
+	// is capped by it, and a job too wide for 1.5 times the need is
+	// made narrower.
+	const clientMax = 5e9
+	for j.Nodes > 4 && 1.5*need*float64(j.Nodes) > clientMax {
+		j.Nodes /= 2
+		j.base.nodeFac = j.base.nodeFac[:j.Nodes]
+	}
+	j.Intensity = min(j.Intensity, clientMax/(need*float64(j.Nodes)))
+	total := j.Intensity * need * float64(j.Nodes) // the job's data rate, all on node 0
+	size := math.Exp2(float64(17 + r.IntN(6)))
+	in.node0[id] = total
+	in.node0[ops] = total / size
+	in.othersShare = g.uniform(0, 0.15)
+	in.replaceBackground(metric.ReadBytes, metric.ReadOps, metric.WriteBytes, metric.WriteOps)
+}
+
+// injectStatPolling makes the job wait: its other I/O falls to a trickle,
+// and its data to a line of log now and then (at most 50 kB/s per node),
+// while every node stats above the elevated cut and below the critical
+// one.
+func (g *gen) injectStatPolling(j *LabelledJob) {
+	ref, in := &g.o.Reference, &j.inj
+	need := ref.Cuts[metric.StatOps].Elevated
+	j.Intensity = min(j.Intensity, 0.6*ref.critical(metric.StatOps)/need)
+	in.scale = g.uniform(0, 0.02)
+	in.dataCap = 50e3
+	in.nodeSigma = 0.05
+	in.addRate(metric.StatOps, j.Intensity*need)
+	in.replaceBackground(metric.StatOps)
 }
 
 // Stream replays a job's samples, one step at a time.
@@ -708,91 +811,147 @@ func (s *Stream) Next() ([]metric.Values, bool) {
 	}
 	i := s.i
 	s.i++
-	secs := j.step.Seconds()
-	t := time.Duration(i) * j.step
-	perWindow := int(j.window / j.step)
+	perWindow := j.stepsPerWindow()
 	w := i / perWindow
-	p := &j.base
+	t := time.Duration(i) * j.step
 	active := j.Class != ClassOrdinary && t >= j.Onset && t < j.Until
-	ck := p.ckpt
-	inCkpt := ck.every > 0 && w%ck.every == ck.every-1 && i%perWindow >= ck.offset && i%perWindow < ck.offset+ck.minutes
+	inCkpt := j.base.ckpt.writing(w, i%perWindow)
 	var others metric.Rates // imbalanced_io: the other nodes' share, per node
 	if active && j.Nodes > 1 {
-		for k, v := range j.inj.node0 {
-			others[k] = v * j.inj.othersShare / float64(j.Nodes-1)
-		}
+		others = j.inj.othersRates(j.Nodes)
 	}
-	// Locals, copied in and out once per node: the loop below is the
-	// evaluation's hot path (and the race detector's).
+	// Locals filled in place, and each node's carry copied in and out
+	// once: the loop below is the evaluation's hot path (and the race
+	// detector's).
+	base := j.base.windowRates(w)
+	secs := j.step.Seconds()
+	for n := range s.out {
+		var noise [groups]float64
+		s.drawNoise(&noise)
+		var r metric.Rates
+		j.base.nodeRates(&r, &base, n, &noise)
+		if inCkpt {
+			j.base.ckpt.addMinute(&r, noise[gWrite])
+		}
+		if active {
+			s.addInjection(&r, n, &others)
+		}
+		s.out[n] = s.count(n, &r, secs)
+	}
+	return s.out, true
+}
+
+// writing says whether minute m of window w is one of the checkpoint's.
+func (c *checkpoint) writing(w, m int) bool {
+	return c.every > 0 && w%c.every == c.every-1 && m >= c.offset && m < c.offset+c.minutes
+}
+
+// addMinute adds one checkpoint minute to r: its large writes, varying with
+// the minute's write noise, and a file created, opened, synced and closed.
+func (c *checkpoint) addMinute(r *metric.Rates, writeNoise float64) {
+	r[metric.WriteBytes] += c.rate * writeNoise
+	r[metric.WriteOps] += c.rate / c.size * writeNoise
+	r[metric.Opens] += 1.0 / 60
+	r[metric.Closes] += 1.0 / 60
+	r[metric.Creates] += 1.0 / 60
+	r[metric.Syncs] += 1.0 / 60
+}
+
+// othersRates is what each of a job's other nodes moves while node 0
+// carries an imbalanced job's data: othersShare of it, spread evenly.
+func (in *injection) othersRates(nodes int) metric.Rates {
+	var others metric.Rates
+	for k, v := range in.node0 {
+		others[k] = v * in.othersShare / float64(nodes-1)
+	}
+	return others
+}
+
+// windowRates is the background in window w, before the node and minute
+// factors.
+func (p *profile) windowRates(w int) metric.Rates {
 	var base metric.Rates
-	wf := p.winFactor[w]
+	wf := &p.winFactor[w]
 	for id, x := range p.rates {
 		base[id] = x * wf[groupOf[id]]
 	}
-	for n := range s.out {
-		nf := p.nodeFac[n]
-		var noise [groups]float64
-		bits := s.rng.Uint64()
-		for k := range noise {
-			if k == 6 {
-				bits = s.rng.Uint64()
-			}
-			noise[k] = minuteNoise[bits&(noiseSize-1)]
-			bits >>= noiseBits
-		}
-		var r metric.Rates
-		for id := range metric.Count {
-			g := groupOf[id]
-			r[id] = base[id] * nf[g] * noise[g]
-		}
-		if inCkpt {
-			r[metric.WriteBytes] += ck.rate * noise[gWrite]
-			r[metric.WriteOps] += ck.rate / ck.size * noise[gWrite]
-			r[metric.Opens] += 1.0 / 60
-			r[metric.Closes] += 1.0 / 60
-			r[metric.Creates] += 1.0 / 60
-			r[metric.Syncs] += 1.0 / 60
-		}
-		if active {
-			in := &j.inj
-			if in.scale > 0 {
-				for id := range r {
-					r[id] *= in.scale
-				}
-				for _, b := range [][2]metric.ID{{metric.ReadBytes, metric.ReadOps}, {metric.WriteBytes, metric.WriteOps}} {
-					if x := r[b[0]]; x > in.dataCap {
-						r[b[0]], r[b[1]] = in.dataCap, r[b[1]]*in.dataCap/x
-					}
-				}
-			}
-			f := s.injF[n] * injNoise[s.rng.Uint64()&(noiseSize-1)]
-			for id := range metric.Count {
-				if in.replace.Has(id) {
-					r[id] = 0
-				}
-				r[id] += in.add[id] * f
-			}
-			if in.node0 != (metric.Rates{}) {
-				for id := range metric.Count {
-					if n == 0 {
-						r[id] += in.node0[id] * f
-					} else {
-						r[id] += others[id] * f
-					}
-				}
-			}
-		}
-		carry := s.carry[n]
-		var v metric.Values
-		for id := range metric.Count {
-			x := r[id]*secs + carry[id]
-			c := math.Floor(x)
-			carry[id] = x - c
-			v[id] = uint64(c)
-		}
-		s.carry[n], s.out[n] = carry, v
+	return base
+}
+
+// nodeRates sets r to node n's background this step: the window's rates
+// base times the node's and the minute's factors of each metric's group.
+func (p *profile) nodeRates(r, base *metric.Rates, n int, noise *[groups]float64) {
+	nf := &p.nodeFac[n]
+	for id := range metric.Count {
+		g := groupOf[id]
+		r[id] = base[id] * nf[g] * noise[g]
 	}
-	return s.out, true
+}
+
+// drawNoise draws one node's minute-to-minute factor per metric group into
+// noise, ten bits of a random word each (a word holds six).
+func (s *Stream) drawNoise(noise *[groups]float64) {
+	bits := s.rng.Uint64()
+	for k := range noise {
+		if k == 6 {
+			bits = s.rng.Uint64()
+		}
+		noise[k] = minuteNoise[bits&(noiseSize-1)]
+		bits >>= noiseBits
+	}
+}
+
+// addInjection applies the active injection to node n's rates r; others
+// is what an imbalanced job's other nodes each move.
+func (s *Stream) addInjection(r *metric.Rates, n int, others *metric.Rates) {
+	in := &s.j.inj
+	if in.scale > 0 {
+		in.quieten(r)
+	}
+	f := s.injF[n] * injNoise[s.rng.Uint64()&(noiseSize-1)]
+	for id := range metric.Count {
+		if in.replace.Has(id) {
+			r[id] = 0
+		}
+		r[id] += in.add[id] * f
+	}
+	if in.node0 != (metric.Rates{}) {
+		share := others
+		if n == 0 {
+			share = &in.node0
+		}
+		for id := range metric.Count {
+			r[id] += share[id] * f
+		}
+	}
+}
+
+// quieten scales the background down while the job waits and caps its
+// data at dataCap bytes per second, keeping each transfer's size.
+func (in *injection) quieten(r *metric.Rates) {
+	for id := range r {
+		r[id] *= in.scale
+	}
+	for _, b := range [][2]metric.ID{{metric.ReadBytes, metric.ReadOps}, {metric.WriteBytes, metric.WriteOps}} {
+		if x := r[b[0]]; x > in.dataCap {
+			r[b[0]], r[b[1]] = in.dataCap, r[b[1]]*in.dataCap/x
+		}
+	}
+}
+
+// count turns node n's rates over secs seconds into whole counts, carrying
+// each fraction to the next step so that rounding loses nothing.
+func (s *Stream) count(n int, r *metric.Rates, secs float64) metric.Values {
+	carry := s.carry[n]
+	var v metric.Values
+	for id := range metric.Count {
+		x := r[id]*secs + carry[id]
+		c := math.Floor(x)
+		carry[id] = x - c
+		v[id] = uint64(c)
+	}
+	s.carry[n] = carry
+	return v
 }
 
 // Classes lists the generator's classes in their mix order.
