@@ -402,100 +402,147 @@ func replay(tr *tracker.Tracker, jobs []sim.LabelledJob, starts []time.Time, o O
 	return flags, samples, nil
 }
 
-// score turns the flags into the rows.
+// score turns the flags into the rows, the outcomes and the benign counts.
 func score(res *Result, ps []*pattern.Pattern, jobs []sim.LabelledJob, starts []time.Time, flags []flagRecord, o Options) {
-	byID := make(map[string]int, len(jobs))
 	for i := range jobs {
-		byID[jobs[i].ID] = i
 		res.Jobs[jobs[i].Class]++
 	}
-	firstAny := map[int]map[string]time.Time{}
-	// first[p][job]: the first flag of p on job at or after the onset;
-	// any[p][job]: flagged at all.
-	first := map[string]map[int]time.Time{}
-	anyFlag := map[string]map[int]bool{}
-	for _, f := range flags {
-		i, ok := byID[f.job]
-		if !ok {
-			continue
-		}
-		if anyFlag[f.pattern] == nil {
-			anyFlag[f.pattern], first[f.pattern] = map[int]bool{}, map[int]time.Time{}
-		}
-		anyFlag[f.pattern][i] = true
-		if firstAny[i] == nil {
-			firstAny[i] = map[string]time.Time{}
-		}
-		if t, ok := firstAny[i][f.pattern]; !ok || f.raised.Before(t) {
-			firstAny[i][f.pattern] = f.raised
-		}
-		onset := starts[i].Add(jobs[i].Onset)
-		if f.raised.Before(onset) {
-			continue
-		}
-		if t, ok := first[f.pattern][i]; !ok || f.raised.Before(t) {
-			first[f.pattern][i] = f.raised
-		}
-	}
+	x := indexFlags(jobs, starts, flags)
 	for _, p := range ps {
-		row := Row{Pattern: p.Name, Builtin: len(p.Source) >= 8 && p.Source[:8] == "builtin/", Others: map[string]int{}}
-		for i := range jobs {
-			j := &jobs[i]
-			flagged := anyFlag[p.Name][i]
-			benign := j.Label == "" || (j.Label == sim.LabelHeavyStreaming && p.Name != sim.LabelHeavyStreaming)
-			switch {
-			case j.Label == p.Name:
-				row.Positives++
-				if t, ok := first[p.Name][i]; ok {
-					row.Found++
-					row.Delays = append(row.Delays, t.Sub(starts[i].Add(j.Onset)).Seconds()/o.Window.Seconds())
-				}
-			case benign:
-				row.Benign++
-				if flagged {
-					row.FalseFlags++
-				}
-			case flagged:
-				row.Others[j.Label]++
-			}
-			if flagged {
-				row.Flagged++
-				if j.Label == p.Name {
-					row.Correct++
-				}
-			}
-		}
-		slices.Sort(row.Delays)
-		res.Rows = append(res.Rows, row)
+		res.Rows = append(res.Rows, x.row(p, jobs, starts, o.Window))
 	}
 	for i := range jobs {
 		j := &jobs[i]
-		fl := firstAny[i]
-		_, found := first[j.Label][i]
-		odd := j.Label != "" && !found
-		for p, t := range fl {
-			odd = odd || p != j.Label || t.Before(starts[i].Add(j.Onset))
-		}
-		if odd {
-			out := Outcome{Job: j.ID, Class: j.Class, Label: j.Label, Variant: j.Variant, Nodes: j.Nodes, Windows: j.Windows(),
-				Onset: j.Onset, Until: j.Until, Intensity: j.Intensity, Flags: map[string]time.Duration{}}
-			for p, t := range fl {
-				out.Flags[p] = t.Sub(starts[i])
-			}
+		if out, odd := x.outcome(i, j, starts[i]); odd {
 			res.Outcomes = append(res.Outcomes, out)
 		}
-		if j.Label != "" && j.Label != sim.LabelHeavyStreaming {
+		if !benign(j) {
 			continue
 		}
 		res.Benign++
-		for p, m := range anyFlag {
-			if p != sim.LabelHeavyStreaming && m[i] {
-				res.BenignFlagged++
-				res.FlaggedByClass[j.Class]++
-				break
+		if x.flaggedByProblem(i) {
+			res.BenignFlagged++
+			res.FlaggedByClass[j.Class]++
+		}
+	}
+}
+
+// jobFlags indexes the flags by job (its index in the jobs) and pattern.
+type jobFlags struct {
+	// firstAny[job][p]: the first flag of p on job;
+	// first[p][job]: the first flag of p on job at or after the onset;
+	// flagged[p][job]: p flagged job at all.
+	firstAny map[int]map[string]time.Time
+	first    map[string]map[int]time.Time
+	flagged  map[string]map[int]bool
+}
+
+// indexFlags indexes the flags raised on the jobs; a flag on a job not
+// among them is left out.
+func indexFlags(jobs []sim.LabelledJob, starts []time.Time, flags []flagRecord) *jobFlags {
+	byID := make(map[string]int, len(jobs))
+	for i := range jobs {
+		byID[jobs[i].ID] = i
+	}
+	x := &jobFlags{firstAny: map[int]map[string]time.Time{}, first: map[string]map[int]time.Time{}, flagged: map[string]map[int]bool{}}
+	for _, f := range flags {
+		if i, ok := byID[f.job]; ok {
+			x.add(i, f, starts[i].Add(jobs[i].Onset))
+		}
+	}
+	return x
+}
+
+// add records flag f on job i, whose injection began at onset.
+func (x *jobFlags) add(i int, f flagRecord, onset time.Time) {
+	if x.flagged[f.pattern] == nil {
+		x.flagged[f.pattern], x.first[f.pattern] = map[int]bool{}, map[int]time.Time{}
+	}
+	x.flagged[f.pattern][i] = true
+	if x.firstAny[i] == nil {
+		x.firstAny[i] = map[string]time.Time{}
+	}
+	keepEarliest(x.firstAny[i], f.pattern, f.raised)
+	if !f.raised.Before(onset) {
+		keepEarliest(x.first[f.pattern], i, f.raised)
+	}
+}
+
+// keepEarliest sets m[k] to t unless it holds an earlier time.
+func keepEarliest[K comparable](m map[K]time.Time, k K, t time.Time) {
+	if old, ok := m[k]; !ok || t.Before(old) {
+		m[k] = t
+	}
+}
+
+// benign says whether nothing was injected into the job or only healthy
+// streaming, which is a positive for heavy_streaming alone.
+func benign(j *sim.LabelledJob) bool {
+	return j.Label == "" || j.Label == sim.LabelHeavyStreaming
+}
+
+// row scores pattern p on the jobs. A job labelled p is a positive; any
+// other benign job counts for its false flags.
+func (x *jobFlags) row(p *pattern.Pattern, jobs []sim.LabelledJob, starts []time.Time, window time.Duration) Row {
+	row := Row{Pattern: p.Name, Builtin: len(p.Source) >= 8 && p.Source[:8] == "builtin/", Others: map[string]int{}}
+	for i := range jobs {
+		j := &jobs[i]
+		flagged := x.flagged[p.Name][i]
+		switch {
+		case j.Label == p.Name:
+			row.Positives++
+			if t, ok := x.first[p.Name][i]; ok {
+				row.Found++
+				row.Delays = append(row.Delays, t.Sub(starts[i].Add(j.Onset)).Seconds()/window.Seconds())
+			}
+		case benign(j):
+			row.Benign++
+			if flagged {
+				row.FalseFlags++
+			}
+		case flagged:
+			row.Others[j.Label]++
+		}
+		if flagged {
+			row.Flagged++
+			if j.Label == p.Name {
+				row.Correct++
 			}
 		}
 	}
+	slices.Sort(row.Delays)
+	return row
+}
+
+// outcome returns job i's outcome if its flags disagree with its label: a
+// missed positive, a flag of another pattern, or a flag before the onset.
+func (x *jobFlags) outcome(i int, j *sim.LabelledJob, start time.Time) (Outcome, bool) {
+	fl := x.firstAny[i]
+	_, found := x.first[j.Label][i]
+	odd := j.Label != "" && !found
+	for p, t := range fl {
+		odd = odd || p != j.Label || t.Before(start.Add(j.Onset))
+	}
+	if !odd {
+		return Outcome{}, false
+	}
+	out := Outcome{Job: j.ID, Class: j.Class, Label: j.Label, Variant: j.Variant, Nodes: j.Nodes, Windows: j.Windows(),
+		Onset: j.Onset, Until: j.Until, Intensity: j.Intensity, Flags: map[string]time.Duration{}}
+	for p, t := range fl {
+		out.Flags[p] = t.Sub(start)
+	}
+	return out, true
+}
+
+// flaggedByProblem says whether a pattern other than heavy_streaming
+// flagged job i.
+func (x *jobFlags) flaggedByProblem(i int) bool {
+	for p, m := range x.flagged {
+		if p != sim.LabelHeavyStreaming && m[i] {
+			return true
+		}
+	}
+	return false
 }
 
 // jobStarts spaces the jobs' starts 1 to 11 minutes apart (about one job
