@@ -451,27 +451,16 @@ func quantityList() string {
 	return strings.Join(names, ", ")
 }
 
+// example decodes the example: its method, last (KS only), metrics and
+// one grade string per metric, all of the same length.
 func (d *decoder) example(n *yaml.Node) *Example {
 	m, ok := d.mapping(n, "example", exampleKeys...)
 	if !ok {
 		return nil
 	}
 	e := &Example{}
-	if mn, ok := m.vals["method"]; !ok {
-		d.need(m, "method", "; want sellers, ks or euclidean")
-	} else if s, ok := d.str(mn, "example.method"); ok {
-		if err := e.Method.UnmarshalText([]byte(s)); err != nil {
-			d.fail(mn, "example.method", "%v", err)
-		}
-	}
-	if ln, ok := m.vals["last"]; ok {
-		if v, ok := d.integer(ln, "example.last", 1, MaxLast); ok {
-			if e.Method != KS {
-				d.fail(m.keys["last"], "example.last", "only for method ks")
-			}
-			e.Last = v
-		}
-	}
+	d.exampleMethod(m, e)
+	d.exampleLast(m, e)
 	d.need(m, "metrics", "; e.g. metrics: [creates, stat_ops]")
 	d.need(m, "grades", "; e.g. grades: {creates: \"566666\"}")
 	mn, hasMetrics := m.vals["metrics"]
@@ -479,12 +468,57 @@ func (d *decoder) example(n *yaml.Node) *Example {
 	if !hasMetrics || !hasGrades {
 		return e
 	}
-	// metrics: a list of distinct metric names.
-	if mn.Kind != yaml.SequenceNode || len(mn.Content) == 0 {
-		d.fail(mn, "example.metrics", "want a non-empty list of metric names, got %s", describe(mn))
+	index, ok := d.exampleMetrics(mn, e)
+	if !ok {
 		return e
 	}
-	index := map[metric.ID]int{} // position in metrics
+	if gn.Kind != yaml.MappingNode {
+		d.fail(gn, "example.grades", "want a mapping from metric names to grade strings, got %s", describe(gn))
+		return e
+	}
+	keys := d.gradeKeys(gn, index)
+	d.exampleGrades(e, mn, gn, index, keys)
+	return e
+}
+
+// exampleMethod decodes the required example.method.
+func (d *decoder) exampleMethod(m mapping, e *Example) {
+	mn, ok := m.vals["method"]
+	if !ok {
+		d.need(m, "method", "; want sellers, ks or euclidean")
+		return
+	}
+	if s, ok := d.str(mn, "example.method"); ok {
+		if err := e.Method.UnmarshalText([]byte(s)); err != nil {
+			d.fail(mn, "example.method", "%v", err)
+		}
+	}
+}
+
+// exampleLast decodes example.last, which only method ks takes; the method
+// must be decoded first.
+func (d *decoder) exampleLast(m mapping, e *Example) {
+	ln, ok := m.vals["last"]
+	if !ok {
+		return
+	}
+	if v, ok := d.integer(ln, "example.last", 1, MaxLast); ok {
+		if e.Method != KS {
+			d.fail(m.keys["last"], "example.last", "only for method ks")
+		}
+		e.Last = v
+	}
+}
+
+// exampleMetrics decodes example.metrics, a list of distinct metric names,
+// into e.Metrics and returns each metric's position in the list; ok is
+// false when mn is not a non-empty list.
+func (d *decoder) exampleMetrics(mn *yaml.Node, e *Example) (index map[metric.ID]int, ok bool) {
+	if mn.Kind != yaml.SequenceNode || len(mn.Content) == 0 {
+		d.fail(mn, "example.metrics", "want a non-empty list of metric names, got %s", describe(mn))
+		return nil, false
+	}
+	index = map[metric.ID]int{}
 	for i, item := range mn.Content {
 		field := fmt.Sprintf("example.metrics[%d]", i)
 		s, ok := d.str(item, field)
@@ -503,12 +537,13 @@ func (d *decoder) example(n *yaml.Node) *Example {
 		index[id] = i
 		e.Metrics = append(e.Metrics, id)
 	}
-	// grades: a mapping from exactly those metrics to grade strings.
-	if gn.Kind != yaml.MappingNode {
-		d.fail(gn, "example.grades", "want a mapping from metric names to grade strings, got %s", describe(gn))
-		return e
-	}
-	byMetric := map[metric.ID]*yaml.Node{}
+	return index, true
+}
+
+// gradeKeys checks the keys of example.grades, a mapping gn, against the
+// metrics listed (index) and returns each valid metric's key node.
+func (d *decoder) gradeKeys(gn *yaml.Node, index map[metric.ID]int) map[metric.ID]*yaml.Node {
+	keys := map[metric.ID]*yaml.Node{}
 	for i := 0; i+1 < len(gn.Content); i += 2 {
 		k := gn.Content[i]
 		if k.Kind != yaml.ScalarNode || k.ShortTag() != "!!str" {
@@ -521,44 +556,33 @@ func (d *decoder) example(n *yaml.Node) *Example {
 		case err != nil:
 			d.fail(k, field, "%v", err)
 			continue
-		case byMetric[id] != nil:
-			d.fail(k, field, "given twice (first on line %d)", byMetric[id].Line)
+		case keys[id] != nil:
+			d.fail(k, field, "given twice (first on line %d)", keys[id].Line)
 			continue
 		}
-		byMetric[id] = k
+		keys[id] = k
 		if _, ok := index[id]; !ok {
 			d.fail(k, field, "%s is not in example.metrics", id)
 		}
 	}
+	return keys
+}
+
+// exampleGrades decodes the grade string of each metric listed into
+// e.Grades; every string must have as many windows as the first good one.
+func (d *decoder) exampleGrades(e *Example, mn, gn *yaml.Node, index map[metric.ID]int, keys map[metric.ID]*yaml.Node) {
 	e.Grades = make([][]coding.Grade, len(e.Metrics))
 	var first metric.ID
 	firstLen := -1
 	for t, id := range e.Metrics {
-		k := byMetric[id]
+		k := keys[id]
 		if k == nil {
 			i := index[id]
 			d.fail(mn.Content[i], fmt.Sprintf("example.metrics[%d]", i), "%s has no grade string in example.grades", id)
 			continue
 		}
-		vn := valueOf(gn, k)
-		field := "example.grades." + id.String()
-		if vn.Kind != yaml.ScalarNode || vn.ShortTag() != "!!str" {
-			d.fail(vn, field, "want a quoted string of grade digits (e.g. \"566666\"), got %s", describe(vn))
-			continue
-		}
-		gs, err := coding.ParseGrades(vn.Value)
-		switch {
-		case err != nil:
-			d.fail(vn, field, "%v", err)
-			continue
-		case len(gs) == 0:
-			d.fail(vn, field, "no grades; want 1 to %d", MaxWindows)
-			continue
-		case len(gs) > MaxWindows:
-			d.fail(vn, field, "%d grades; at most %d windows", len(gs), MaxWindows)
-			continue
-		case firstLen >= 0 && len(gs) != firstLen:
-			d.fail(vn, field, "%d windows, but %s has %d; every metric needs the same number", len(gs), first, firstLen)
+		gs, ok := d.gradeString(valueOf(gn, k), "example.grades."+id.String(), first, firstLen)
+		if !ok {
 			continue
 		}
 		if firstLen < 0 {
@@ -566,7 +590,30 @@ func (d *decoder) example(n *yaml.Node) *Example {
 		}
 		e.Grades[t] = gs
 	}
-	return e
+}
+
+// gradeString decodes one metric's grade string vn: 1 to MaxWindows
+// grades, and firstLen of them when metric first had firstLen (-1 when no
+// metric came before).
+func (d *decoder) gradeString(vn *yaml.Node, field string, first metric.ID, firstLen int) ([]coding.Grade, bool) {
+	if vn.Kind != yaml.ScalarNode || vn.ShortTag() != "!!str" {
+		d.fail(vn, field, "want a quoted string of grade digits (e.g. \"566666\"), got %s", describe(vn))
+		return nil, false
+	}
+	gs, err := coding.ParseGrades(vn.Value)
+	switch {
+	case err != nil:
+		d.fail(vn, field, "%v", err)
+	case len(gs) == 0:
+		d.fail(vn, field, "no grades; want 1 to %d", MaxWindows)
+	case len(gs) > MaxWindows:
+		d.fail(vn, field, "%d grades; at most %d windows", len(gs), MaxWindows)
+	case firstLen >= 0 && len(gs) != firstLen:
+		d.fail(vn, field, "%d windows, but %s has %d; every metric needs the same number", len(gs), first, firstLen)
+	default:
+		return gs, true
+	}
+	return nil, false
 }
 
 // valueOf returns the value of key node k in mapping n.
