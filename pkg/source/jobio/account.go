@@ -229,121 +229,155 @@ func (s *Source) readStat(j *job, pid int) (ProcStat, bool) {
 //     debt before it counts: the kernel adds a reaped child's totals to its
 //     parent (kernel/exit.c, wait_task_zombie).
 func (s *Source) account(j *job, mark uint64, markOK bool) {
-	gen := s.gen
+	j.clearReadFlags()
+	s.sampleListed(j)
+	s.sampleUnlisted(j)
+	if len(j.reaped) > 0 {
+		j.list = slices.DeleteFunc(j.list, func(p *proc) bool { return p.dropped })
+	}
+	j.passDebts()
+	if len(j.reaped) > 0 || s.anyLeaving(j) {
+		s.reparentOrphans(j)
+	}
+	for _, r := range j.reaped {
+		r.close()
+	}
+	clear(j.reaped)
+	j.resolveNewParents()
+	j.count(markOK)
+	j.mark, j.hasMark = mark, markOK
+}
+
+// clearReadFlags starts a read: no process is sampled, created, leaving or
+// revived yet, and none reaped.
+func (j *job) clearReadFlags() {
 	for _, p := range j.list {
 		p.sampled, p.created, p.leaving, p.revived = false, false, false, false
 	}
 	j.reaped = j.reaped[:0]
+}
 
-	// Listed processes.
+// sampleListed samples the processes in s.pids, tracking those seen for
+// the first time.
+func (s *Source) sampleListed(j *job) {
 	for _, pid := range s.pids {
-		if p := j.procs[pid]; p != nil {
-			p.listed = gen
-			switch s.sample(j, p) {
-			case sampleOK:
-				if p.departed { // moved back in
-					p.departed, p.revived = false, true
-				}
-				continue
-			case sampleFailed:
-				continue
-			case sampleGone: // reaped, and the pid reused by a new process
-				j.reaped = append(j.reaped, p)
-				delete(j.procs, pid)
-				p.dropped = true
-			}
+		if p := j.procs[pid]; p != nil && s.resample(j, p) {
+			continue
 		}
 		if p := s.newProc(j, pid); p != nil {
 			j.procs[pid] = p
 			j.list = append(j.list, p)
 		}
 	}
+}
 
-	// Processes no longer listed: zombies, moved out, or reaped.
+// resample samples a tracked process that is listed now. It reports false
+// when the process was reaped and its pid reused by a new process.
+func (s *Source) resample(j *job, p *proc) bool {
+	p.listed = s.gen
+	switch s.sample(j, p) {
+	case sampleOK:
+		if p.departed { // moved back in
+			p.departed, p.revived = false, true
+		}
+	case sampleGone:
+		j.reap(p)
+		return false
+	}
+	return true
+}
+
+// sampleUnlisted samples the tracked processes no longer listed: zombies,
+// processes moved out, or reaped ones. One that departed at an earlier
+// read is frozen: its growth is not the job's.
+func (s *Source) sampleUnlisted(j *job) {
 	for _, p := range j.list {
-		if p.dropped || p.listed == gen {
+		if p.dropped || p.listed == s.gen {
 			continue
 		}
 		wasDeparted := p.departed
 		switch s.sample(j, p) {
 		case sampleGone:
-			j.reaped = append(j.reaped, p)
-			delete(j.procs, p.key.pid)
-			p.dropped = true
+			j.reap(p)
 		case sampleOK:
 			if wasDeparted {
-				p.sampled = false // frozen: its growth is not the job's
+				p.sampled = false
 			} else {
 				p.departed, p.leaving = true, true
 			}
 		}
 	}
+}
 
-	if len(j.reaped) > 0 {
-		j.list = slices.DeleteFunc(j.list, func(p *proc) bool { return p.dropped })
-	}
+// reap stops tracking a process that was reaped; it is closed, and goes
+// from j.list, later in the read.
+func (j *job) reap(p *proc) {
+	j.reaped = append(j.reaped, p)
+	delete(j.procs, p.key.pid)
+	p.dropped = true
+}
 
-	// Reaped processes: hand their counts to the nearest tracked ancestor
-	// as debt, then close them.
+// passDebts hands what each reaped process owes to its nearest tracked
+// ancestor as debt.
+func (j *job) passDebts() {
 	for _, r := range j.reaped {
-		var owed [nProcIO]uint64
-		for i := range owed {
-			owed[i] = satAdd(r.last[i], r.debt[i])
-		}
-		if !r.hasLast {
-			owed = r.debt // never counted: nothing of its own was seen
-		}
+		owed := r.owed()
 		if a := j.ancestor(r.parent); a != nil {
 			for i := range owed {
 				a.debt[i] = satAdd(a.debt[i], owed[i])
 			}
 		}
 	}
+}
 
-	// Orphans: the kernel reparents a process's children when it exits
-	// (kernel/exit.c, forget_original_parent), so read their new parent.
-	if len(j.reaped) > 0 || s.anyLeaving(j) {
-		for _, p := range j.list {
-			if p.parent.pid != 0 && !p.created && j.parentLeft(p.parent) {
-				if st, ok := s.readStat(j, p.key.pid); ok {
-					p.ppid = st.PPID
-				}
-				p.parent = j.resolveParent(p)
+// owed is what a reaped process leaves to its parent: its last values and
+// its unpaid debt, or only the debt if it was never counted (nothing of its
+// own was seen).
+func (p *proc) owed() [nProcIO]uint64 {
+	if !p.hasLast {
+		return p.debt
+	}
+	var owed [nProcIO]uint64
+	for i := range owed {
+		owed[i] = satAdd(p.last[i], p.debt[i])
+	}
+	return owed
+}
+
+// reparentOrphans reads the new parent of each process whose parent was
+// reaped or departed at this read: the kernel reparents a process's
+// children when it exits (kernel/exit.c, forget_original_parent).
+func (s *Source) reparentOrphans(j *job) {
+	for _, p := range j.list {
+		if p.parent.pid != 0 && !p.created && j.parentLeft(p.parent) {
+			if st, ok := s.readStat(j, p.key.pid); ok {
+				p.ppid = st.PPID
 			}
+			p.parent = j.resolveParent(p)
 		}
 	}
-	for _, r := range j.reaped {
-		r.close()
-	}
-	clear(j.reaped)
+}
 
-	// New processes: find their parent among the tracked ones.
+// resolveNewParents finds the parent of each process first seen at this
+// read among the tracked ones.
+func (j *job) resolveNewParents() {
 	for _, p := range j.list {
 		if p.created {
 			p.parent = j.resolveParent(p)
 		}
 	}
+}
 
-	// Count.
+// count adds the growth of each process sampled at this read to the job's
+// totals, after paying the process's debt from it, and makes the values
+// read the process's new base. markOK says whether this read's mark is
+// valid.
+func (j *job) count(markOK bool) {
 	for _, p := range j.list {
 		if !p.sampled {
 			continue
 		}
-		var d [nProcIO]uint64
-		switch {
-		case !p.hasLast:
-			if markOK && j.hasMark && p.key.start >= j.mark {
-				d = p.cur // started since the last read: all of it is the job's
-			}
-		case p.revived:
-			// A new base: what it did outside the job is not the job's.
-		default:
-			for i := range d {
-				if p.cur[i] >= p.last[i] {
-					d[i] = p.cur[i] - p.last[i]
-				}
-			}
-		}
+		d := j.growth(p, markOK)
 		for i := range d {
 			pay := min(d[i], p.debt[i])
 			d[i] -= pay
@@ -352,7 +386,29 @@ func (s *Source) account(j *job, mark uint64, markOK bool) {
 		}
 		p.last, p.hasLast = p.cur, true
 	}
-	j.mark, j.hasMark = mark, markOK
+}
+
+// growth is what process p did for the job since the last read: all of it
+// if it was first seen now and started since the last read's mark, its
+// growth counter by counter if it was counted before (none for a counter
+// that went down), and nothing if it is back in the job.
+func (j *job) growth(p *proc, markOK bool) [nProcIO]uint64 {
+	var d [nProcIO]uint64
+	switch {
+	case !p.hasLast:
+		if markOK && j.hasMark && p.key.start >= j.mark {
+			d = p.cur
+		}
+	case p.revived:
+		// A new base: what it did outside the job is not the job's.
+	default:
+		for i := range d {
+			if p.cur[i] >= p.last[i] {
+				d[i] = p.cur[i] - p.last[i]
+			}
+		}
+	}
+	return d
 }
 
 // ancestor returns the nearest tracked ancestor of a process whose parent

@@ -271,6 +271,31 @@ func (s *Source) keepBuf(b []byte) {
 // one keeps its state, and one not found any more is marked lost (reported
 // once more, then dropped).
 func (s *Source) walk() error {
+	if err := s.checkRoot(); err != nil {
+		return err
+	}
+	s.walks++
+	errs := s.findJobDirs()
+	for rel, m := range s.matches {
+		if m.walk != s.walks {
+			delete(s.matches, rel) // not seen by this walk
+		}
+	}
+	s.walked, s.sinceWalk = true, 0
+	s.takeFound()
+	if len(errs) == 0 {
+		// A job not found is lost, unless part of the tree could not be
+		// read: then each job's own listing decides.
+		s.markLost()
+	}
+	s.sortIDs()
+	return errors.Join(errs...)
+}
+
+// checkRoot checks that the cgroup root is a directory, and forgets every
+// job if it is not; a missing root gives an error wrapping
+// source.ErrNoData.
+func (s *Source) checkRoot() error {
 	fi, err := os.Stat(s.cgroupRoot)
 	if err != nil {
 		s.dropAll()
@@ -283,56 +308,79 @@ func (s *Source) walk() error {
 		s.dropAll()
 		return fmt.Errorf("jobio: cgroup root %s is not a directory", s.cgroupRoot)
 	}
-	s.walks++
+	return nil
+}
+
+// findJobDirs lists the tree breadth first, filling s.walkFound with each
+// job id found and its directory, and returns the errors of the
+// directories that could not be listed.
+func (s *Source) findJobDirs() []error {
 	var errs []error
-	found := s.walkFound
-	clear(found)
+	clear(s.walkFound)
 	queue := append(s.walkQueue[:0], walkDir{"", 0})
 	for i := 0; i < len(queue); i++ {
-		d := queue[i]
-		path := s.cgroupRoot
-		if d.rel != "" {
-			path += "/" + d.rel
-		}
-		names, err := s.subdirNames(path)
-		if err != nil {
-			if !vanished(err) {
-				errs = append(errs, fmt.Errorf("jobio: walking %s: %w", path, err))
-			}
-			continue
-		}
-		for _, nm := range names {
-			rel := append(s.relBuf[:0], d.rel...)
-			if d.rel != "" {
-				rel = append(rel, '/')
-			}
-			rel = append(rel, s.nameBuf[nm.off:nm.end]...)
-			s.relBuf = rel
-			m, isJob := s.match(rel)
-			if isJob {
-				// The top-most match of an id wins: breadth first, a
-				// shallower directory is seen before any deeper one, and the
-				// walk does not descend into a job.
-				if _, ok := found[m.id]; !ok && m.id != "" {
-					found[m.id] = m.rel
-				}
-				continue
-			}
-			if d.depth+1 < s.maxDepth {
-				queue = append(queue, walkDir{m.rel, d.depth + 1})
-			}
+		var err error
+		if queue, err = s.visit(queue[i], queue); err != nil {
+			errs = append(errs, err)
 		}
 	}
 	clear(queue)
 	s.walkQueue = queue[:0]
-	for rel, m := range s.matches {
-		if m.walk != s.walks {
-			delete(s.matches, rel) // not seen by this walk
+	return errs
+}
+
+// visit lists directory d: a subdirectory JobPattern matches is a job
+// (recorded in s.walkFound if it captures an id) and is not descended
+// into; any other is appended to queue while within MaxDepth. A directory
+// gone meanwhile is no error.
+func (s *Source) visit(d walkDir, queue []walkDir) ([]walkDir, error) {
+	path := s.cgroupRoot
+	if d.rel != "" {
+		path += "/" + d.rel
+	}
+	names, err := s.subdirNames(path)
+	if err != nil {
+		if vanished(err) {
+			return queue, nil
+		}
+		return queue, fmt.Errorf("jobio: walking %s: %w", path, err)
+	}
+	for _, nm := range names {
+		m, isJob := s.match(s.childRel(d.rel, nm))
+		if isJob {
+			// The top-most match of an id wins: breadth first, a
+			// shallower directory is seen before any deeper one, and the
+			// walk does not descend into a job.
+			if _, ok := s.walkFound[m.id]; !ok && m.id != "" {
+				s.walkFound[m.id] = m.rel
+			}
+			continue
+		}
+		if d.depth+1 < s.maxDepth {
+			queue = append(queue, walkDir{m.rel, d.depth + 1})
 		}
 	}
-	s.walked, s.sinceWalk = true, 0
+	return queue, nil
+}
+
+// childRel returns subdirectory nm of directory rel, relative to the
+// cgroup root, in s.relBuf: valid until the next call.
+func (s *Source) childRel(rel string, nm nameSpan) []byte {
+	b := append(s.relBuf[:0], rel...)
+	if rel != "" {
+		b = append(b, '/')
+	}
+	b = append(b, s.nameBuf[nm.off:nm.end]...)
+	s.relBuf = b
+	return b
+}
+
+// takeFound makes the jobs of s.walkFound the jobs found: a new id gets a
+// new job, and a job whose directory moved is pointed at the new one.
+// Every job found lists its subtree afresh at its next read.
+func (s *Source) takeFound() {
 	s.found = s.found[:0]
-	for id, rel := range found {
+	for id, rel := range s.walkFound {
 		s.found = append(s.found, id)
 		j := s.jobs[id]
 		if j == nil {
@@ -346,15 +394,15 @@ func (s *Source) walk() error {
 		j.relist = true // every RescanEvery reads, each job's subtree too
 	}
 	slices.Sort(s.found)
+}
+
+// markLost marks lost every job the walk did not find.
+func (s *Source) markLost() {
 	for id, j := range s.jobs {
-		// A job not found is lost, unless part of the tree could not be
-		// read: then each job's own listing decides.
-		if _, ok := found[id]; !ok && len(errs) == 0 {
+		if _, ok := s.walkFound[id]; !ok {
 			j.lost = true
 		}
 	}
-	s.sortIDs()
-	return errors.Join(errs...)
 }
 
 // dirMatch is JobPattern's verdict on a directory, kept between walks so

@@ -207,78 +207,16 @@ type listState struct {
 // which the next read sees.
 func (s *Source) listDir(j *job, n *dirNode, st *listState) bool {
 	reused := s.reuse(j, n)
-	if !reused {
-		n.dir.close()
-		n.procs.close()
-		if n.depth < s.maxDepth {
-			d, err := openDir(n.path)
-			switch {
-			case err == nil:
-				n.dir = d
-				// The count is taken before the listing: a subdirectory
-				// made in between shows as a change at the next read, not
-				// as one missed until the next walk.
-				nl, err := d.nlink()
-				if err != nil {
-					st.trusted = false
-				}
-				n.nlink = nl
-			case vanished(err):
-				return false
-			default:
-				j.errs.add(err)
-				st.trusted = false
-			}
-		}
-		s.openProcs(j, n, &st.trusted)
+	if !reused && !s.reopen(j, n, st) {
+		return false
 	}
 	if n.depth >= s.maxDepth {
 		return true
 	}
 	quick := reused && st.quick && n.nlink >= 2
-	old := append(s.oldScratch[:0], n.children...)
-	clear(n.children)
-	n.children = n.children[:0]
-	if n.dir.valid() && !(quick && n.nlink == 2) {
-		unknown := false
-		err := n.dir.rewind()
-		if err == nil {
-			err = eachSubdirIn(n.dir, n.path, s.dbuf, func(name []byte) {
-				for i, c := range old {
-					if c != nil && c.name == string(name) {
-						n.children = append(n.children, c)
-						old[i] = nil
-						return
-					}
-				}
-				n.children = append(n.children, newDirNode(n.path, string(name), n.depth+1))
-				unknown = true
-			}, func() bool {
-				return !quick || unknown || 2+uint64(len(n.children)) != n.nlink
-			})
-		}
-		if err != nil {
-			if vanished(err) {
-				for _, c := range old {
-					if c != nil {
-						n.children = append(n.children, c) // for the caller to close
-					}
-				}
-				clear(old)
-				s.oldScratch = old[:0]
-				return false
-			}
-			j.errs.add(err)
-			st.trusted = false
-		}
+	if !s.listSubdirs(j, n, st, quick) {
+		return false
 	}
-	for _, c := range old {
-		if c != nil {
-			c.closeTree() // no longer listed
-		}
-	}
-	clear(old)
-	s.oldScratch = old[:0]
 	n.children = slices.DeleteFunc(n.children, func(c *dirNode) bool {
 		if s.listDir(j, c, st) {
 			return false
@@ -286,15 +224,128 @@ func (s *Source) listDir(j *job, n *dirNode, st *listState) bool {
 		c.closeTree()
 		return true
 	})
-	if n.dir.valid() {
-		switch k := uint64(len(n.children)); {
-		case n.nlink != 2+k:
+	st.checkCount(n)
+	return true
+}
+
+// reopen opens n again by path, closing what was kept for it: its
+// directory, if within MaxDepth, and its cgroup.procs, whose pids it
+// reads. It reports false when n has gone.
+func (s *Source) reopen(j *job, n *dirNode, st *listState) bool {
+	n.dir.close()
+	n.procs.close()
+	if n.depth < s.maxDepth && !s.reopenDir(j, n, st) {
+		return false
+	}
+	s.openProcs(j, n, &st.trusted)
+	return true
+}
+
+// reopenDir opens n's directory to keep and takes its link count. It
+// reports false when the directory has gone; any other failure is recorded
+// and makes the listing untrusted.
+func (s *Source) reopenDir(j *job, n *dirNode, st *listState) bool {
+	d, err := openDir(n.path)
+	switch {
+	case err == nil:
+		n.dir = d
+		// The count is taken before the listing: a subdirectory
+		// made in between shows as a change at the next read, not
+		// as one missed until the next walk.
+		nl, err := d.nlink()
+		if err != nil {
 			st.trusted = false
-		case k > 0:
-			st.counted = true
 		}
+		n.nlink = nl
+	case vanished(err):
+		return false
+	default:
+		j.errs.add(err)
+		st.trusted = false
 	}
 	return true
+}
+
+// listSubdirs lists n's subdirectories into n.children, keeping the nodes
+// of those already known, adding the others and closing those no longer
+// there; a quick listing (see listDir) may stop early or not list at all.
+// It reports false when n has gone, leaving every known node in n.children
+// for the caller to close.
+func (s *Source) listSubdirs(j *job, n *dirNode, st *listState, quick bool) bool {
+	old := append(s.oldScratch[:0], n.children...)
+	clear(n.children)
+	n.children = n.children[:0]
+	gone := false
+	if n.dir.valid() && !(quick && n.nlink == 2) {
+		err := s.readSubdirs(n, old, quick)
+		switch {
+		case err == nil:
+		case vanished(err):
+			gone = true
+		default:
+			j.errs.add(err)
+			st.trusted = false
+		}
+	}
+	for _, c := range old {
+		switch {
+		case c == nil:
+		case gone:
+			n.children = append(n.children, c) // for the caller to close
+		default:
+			c.closeTree() // no longer listed
+		}
+	}
+	clear(old)
+	s.oldScratch = old[:0]
+	return !gone
+}
+
+// readSubdirs reads n's subdirectories through its kept descriptor into
+// n.children, taking each known one out of old and making a node for each
+// other. A quick read stops once every subdirectory the link count
+// promises is found, and all of them are known.
+func (s *Source) readSubdirs(n *dirNode, old []*dirNode, quick bool) error {
+	if err := n.dir.rewind(); err != nil {
+		return err
+	}
+	unknown := false
+	return eachSubdirIn(n.dir, n.path, s.dbuf, func(name []byte) {
+		if !n.keepKnown(old, name) {
+			n.children = append(n.children, newDirNode(n.path, string(name), n.depth+1))
+			unknown = true
+		}
+	}, func() bool {
+		return !quick || unknown || 2+uint64(len(n.children)) != n.nlink
+	})
+}
+
+// keepKnown moves the node of subdirectory name from old to n.children,
+// and reports whether old held it.
+func (n *dirNode) keepKnown(old []*dirNode, name []byte) bool {
+	for i, c := range old {
+		if c != nil && c.name == string(name) {
+			n.children = append(n.children, c)
+			old[i] = nil
+			return true
+		}
+	}
+	return false
+}
+
+// checkCount compares the link count of a kept directory n with the
+// subdirectories listed: a mismatch makes the listing untrusted, and a
+// match with subdirectories shows that the filesystem counts them.
+func (st *listState) checkCount(n *dirNode) {
+	if !n.dir.valid() {
+		return
+	}
+	switch k := uint64(len(n.children)); {
+	case n.nlink != 2+k:
+		st.trusted = false
+	case k > 0:
+		st.counted = true
+	}
 }
 
 // reuse reads n's cgroup.procs through its kept descriptor, for listDir,
