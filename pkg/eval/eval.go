@@ -15,7 +15,7 @@
 // node per minute, start and end events, Tick after every minute. Every
 // pattern flag raised is recorded against the job's label.
 //
-// Per pattern P (Row): recall is the share of jobs labelled P that got a
+// Per pattern P (PatternResult): recall is the share of jobs labelled P that got a
 // P flag raised at or after the onset; precision the share of jobs flagged
 // with P that are labelled P; false flags are P flags on benign jobs per
 // 1,000 benign jobs, where a benign job is one labelled "" or, for every
@@ -90,8 +90,8 @@ func (o Options) withDefaults() Options {
 	return o
 }
 
-// Row is one pattern's figures.
-type Row struct {
+// PatternResult is one pattern's figures.
+type PatternResult struct {
 	Pattern string
 	// Builtin is set when the pattern is a built-in (its Source starts
 	// with "builtin/"): the targets apply to it.
@@ -114,25 +114,25 @@ type Row struct {
 }
 
 // Recall is Found/Positives, NaN without positives.
-func (r Row) Recall() float64 { return ratio(r.Found, r.Positives) }
+func (r PatternResult) Recall() float64 { return ratio(r.Found, r.Positives) }
 
 // Precision is Correct/Flagged, NaN when nothing was flagged.
-func (r Row) Precision() float64 { return ratio(r.Correct, r.Flagged) }
+func (r PatternResult) Precision() float64 { return ratio(r.Correct, r.Flagged) }
 
 // FalsePer1000 is the false flags per 1,000 benign jobs.
-func (r Row) FalsePer1000() float64 { return 1000 * ratio(r.FalseFlags, r.Benign) }
+func (r PatternResult) FalsePer1000() float64 { return 1000 * ratio(r.FalseFlags, r.Benign) }
 
 // MedianDelay and P90Delay are quantiles of Delays (nearest rank), NaN
 // when nothing was found.
-func (r Row) MedianDelay() float64 { return quantile(r.Delays, 0.5) }
+func (r PatternResult) MedianDelay() float64 { return quantile(r.Delays, 0.5) }
 
 // P90Delay is the 90th percentile of Delays.
-func (r Row) P90Delay() float64 { return quantile(r.Delays, 0.9) }
+func (r PatternResult) P90Delay() float64 { return quantile(r.Delays, 0.9) }
 
 // Misses lists the targets the row misses; a pattern without labelled
 // positives is held only to precision, since every flag it raises lands
 // on a job injected with something else or nothing.
-func (r Row) Misses() []string {
+func (r PatternResult) Misses() []string {
 	var m []string
 	if r.Positives > 0 {
 		if !(r.Recall() >= RecallTarget) {
@@ -157,7 +157,7 @@ type Result struct {
 	// Jobs counts the labelled jobs by class.
 	Jobs map[string]int
 	// Rows holds one row per pattern, in library order.
-	Rows []Row
+	Rows []PatternResult
 	// Benign is the number of benign jobs (label "" or heavy_streaming);
 	// BenignFlagged those flagged by any pattern but heavy_streaming.
 	Benign, BenignFlagged int
@@ -194,14 +194,14 @@ type Outcome struct {
 // BenignFlaggedShare is BenignFlagged/Benign.
 func (r *Result) BenignFlaggedShare() float64 { return ratio(r.BenignFlagged, r.Benign) }
 
-// Row returns the named pattern's row.
-func (r *Result) Row(name string) (Row, bool) {
+// Row returns the named pattern's result row.
+func (r *Result) Row(name string) (PatternResult, bool) {
 	for _, row := range r.Rows {
 		if row.Pattern == name {
 			return row, true
 		}
 	}
-	return Row{}, false
+	return PatternResult{}, false
 }
 
 // Run evaluates the library on the labelled scenarios.
@@ -320,86 +320,107 @@ type flagRecord struct {
 // pattern flag raised and the number of samples sent. ticked, if not nil,
 // is called after every tick, before the tick's events are drained.
 func replay(tr *tracker.Tracker, jobs []sim.LabelledJob, starts []time.Time, o Options, ticked func()) ([]flagRecord, int, error) {
-	type running struct {
-		j      *sim.LabelledJob
-		s      *sim.Stream
-		start  time.Time
-		step   int
-		seq    []uint64
-		idList []string
-	}
-	var (
-		flags   []flagRecord
-		active  []*running
-		next    int
-		samples int
-		now     = o.Start
-		sample  report.Sample
-	)
-	collect := func() {
-		if ticked != nil {
-			ticked()
-		}
-		for _, e := range tr.Drain() {
-			if e.Kind == tracker.FlagRaised && e.Flag != nil && e.Flag.Pattern != "" {
-				flags = append(flags, flagRecord{job: e.Job, pattern: e.Flag.Pattern, raised: e.Flag.Raised})
+	r := &replayer{tr: tr, ticked: ticked}
+	next, now := 0, o.Start
+	for next < len(jobs) || len(r.active) > 0 {
+		for ; next < len(jobs) && !starts[next].After(now); next++ {
+			if err := r.start(&jobs[next], starts[next]); err != nil {
+				return nil, 0, err
 			}
-		}
-	}
-	for next < len(jobs) || len(active) > 0 {
-		for next < len(jobs) && !starts[next].After(now) {
-			j := &jobs[next]
-			r := &running{j: j, s: j.Stream(), start: starts[next], seq: make([]uint64, j.Nodes), idList: []string{j.ID}}
-			err := tr.JobEvent(&report.JobEvent{Type: report.JobStart, Job: j.ID, Node: j.NodeNames[0], Time: r.start,
-				User: j.User, Account: j.Account, Name: j.Name, Nodes: j.NodeNames})
-			if err != nil {
-				return nil, 0, fmt.Errorf("eval: job %s start: %w", j.ID, err)
-			}
-			active = append(active, r)
-			next++
 		}
 		end := now.Add(o.Step)
-		keep := active[:0]
-		for _, r := range active {
-			vals, ok := r.s.Next()
-			if !ok {
-				continue
-			}
-			for k, v := range vals {
-				r.seq[k]++
-				sample = report.Sample{Node: r.j.NodeNames[k], Seq: r.seq[k], Start: now, End: end, Jobs: r.idList, Values: v}
-				if err := tr.Sample(&sample); err != nil {
-					return nil, 0, fmt.Errorf("eval: job %s: %w", r.j.ID, err)
-				}
-				samples++
-			}
-			r.step++
-			if r.step == r.j.Steps() {
-				err := tr.JobEvent(&report.JobEvent{Type: report.JobEnd, Job: r.j.ID, Node: r.j.NodeNames[0], Time: end})
-				if err != nil {
-					return nil, 0, fmt.Errorf("eval: job %s end: %w", r.j.ID, err)
-				}
-				continue
-			}
-			keep = append(keep, r)
+		if err := r.step(now, end); err != nil {
+			return nil, 0, err
 		}
-		active = keep
-		tr.Tick()
-		collect()
+		r.tick()
 		now = end
 	}
 	// A node outside every job moves the watermark on so that the last
 	// jobs' windows close and the jobs end.
 	for i := range 3 {
-		sample = report.Sample{Node: "bw-idle", Seq: uint64(i + 1), Start: now, End: now.Add(o.Step)}
+		sample := report.Sample{Node: "bw-idle", Seq: uint64(i + 1), Start: now, End: now.Add(o.Step)}
 		if err := tr.Sample(&sample); err != nil {
 			return nil, 0, fmt.Errorf("eval: %w", err)
 		}
 		now = now.Add(o.Step)
-		tr.Tick()
-		collect()
+		r.tick()
 	}
-	return flags, samples, nil
+	return r.flags, r.samples, nil
+}
+
+// replayer is one replay's state: the jobs running, the flags raised and
+// the samples sent so far.
+type replayer struct {
+	tr      *tracker.Tracker
+	ticked  func()
+	active  []*running
+	flags   []flagRecord
+	samples int
+	sample  report.Sample // reused
+}
+
+// running is one job being replayed.
+type running struct {
+	j      *sim.LabelledJob
+	s      *sim.Stream
+	step   int
+	seq    []uint64
+	idList []string
+}
+
+// start announces a job and makes it running.
+func (r *replayer) start(j *sim.LabelledJob, at time.Time) error {
+	err := r.tr.JobEvent(&report.JobEvent{Type: report.JobStart, Job: j.ID, Node: j.NodeNames[0], Time: at,
+		User: j.User, Account: j.Account, Name: j.Name, Nodes: j.NodeNames})
+	if err != nil {
+		return fmt.Errorf("eval: job %s start: %w", j.ID, err)
+	}
+	r.active = append(r.active, &running{j: j, s: j.Stream(), seq: make([]uint64, j.Nodes), idList: []string{j.ID}})
+	return nil
+}
+
+// step sends every running job's samples for [now, end) and ends the jobs
+// whose last step it was.
+func (r *replayer) step(now, end time.Time) error {
+	keep := r.active[:0]
+	for _, job := range r.active {
+		vals, ok := job.s.Next()
+		if !ok {
+			continue
+		}
+		for k, v := range vals {
+			job.seq[k]++
+			r.sample = report.Sample{Node: job.j.NodeNames[k], Seq: job.seq[k], Start: now, End: end, Jobs: job.idList, Values: v}
+			if err := r.tr.Sample(&r.sample); err != nil {
+				return fmt.Errorf("eval: job %s: %w", job.j.ID, err)
+			}
+			r.samples++
+		}
+		job.step++
+		if job.step < job.j.Steps() {
+			keep = append(keep, job)
+			continue
+		}
+		err := r.tr.JobEvent(&report.JobEvent{Type: report.JobEnd, Job: job.j.ID, Node: job.j.NodeNames[0], Time: end})
+		if err != nil {
+			return fmt.Errorf("eval: job %s end: %w", job.j.ID, err)
+		}
+	}
+	r.active = keep
+	return nil
+}
+
+// tick ticks the tracker and keeps the pattern flags it raised.
+func (r *replayer) tick() {
+	r.tr.Tick()
+	if r.ticked != nil {
+		r.ticked()
+	}
+	for _, e := range r.tr.Drain() {
+		if e.Kind == tracker.FlagRaised && e.Flag != nil && e.Flag.Pattern != "" {
+			r.flags = append(r.flags, flagRecord{job: e.Job, pattern: e.Flag.Pattern, raised: e.Flag.Raised})
+		}
+	}
 }
 
 // score turns the flags into the rows, the outcomes and the benign counts.
@@ -483,8 +504,8 @@ func benign(j *sim.LabelledJob) bool {
 
 // row scores pattern p on the jobs. A job labelled p is a positive; any
 // other benign job counts for its false flags.
-func (x *jobFlags) row(p *pattern.Pattern, jobs []sim.LabelledJob, starts []time.Time, window time.Duration) Row {
-	row := Row{Pattern: p.Name, Builtin: len(p.Source) >= 8 && p.Source[:8] == "builtin/", Others: map[string]int{}}
+func (x *jobFlags) row(p *pattern.Pattern, jobs []sim.LabelledJob, starts []time.Time, window time.Duration) PatternResult {
+	row := PatternResult{Pattern: p.Name, Builtin: len(p.Source) >= 8 && p.Source[:8] == "builtin/", Others: map[string]int{}}
 	for i := range jobs {
 		j := &jobs[i]
 		flagged := x.flagged[p.Name][i]

@@ -112,7 +112,7 @@ rule:
 
 // TestRowFigures checks the row arithmetic on hand-made counts.
 func TestRowFigures(t *testing.T) {
-	r := eval.Row{Pattern: "p", Positives: 20, Found: 19, Flagged: 20, Correct: 19, Benign: 500, FalseFlags: 1,
+	r := eval.PatternResult{Pattern: "p", Positives: 20, Found: 19, Flagged: 20, Correct: 19, Benign: 500, FalseFlags: 1,
 		Delays: []float64{0.5, 0.9, 1.0, 1.1, 1.2, 1.3, 1.4, 1.5, 1.6, 1.7, 1.8, 1.9, 2.0, 2.1, 2.2, 2.3, 2.4, 2.5, 3.5}}
 	assert.InDelta(t, 0.95, r.Recall(), 1e-12)
 	assert.InDelta(t, 0.95, r.Precision(), 1e-12)
@@ -124,8 +124,8 @@ func TestRowFigures(t *testing.T) {
 	r.Found, r.Correct = 18, 18
 	r.Delays = []float64{2.5, 3, 3}
 	assert.Len(t, r.Misses(), 3, "recall, delay and precision")
-	assert.Contains(t, eval.Row{Positives: 3}.Misses(), "never flagged")
-	assert.Empty(t, eval.Row{}.Misses(), "no positives and no flags: nothing to hold it to")
+	assert.Contains(t, eval.PatternResult{Positives: 3}.Misses(), "never flagged")
+	assert.Empty(t, eval.PatternResult{}.Misses(), "no positives and no flags: nothing to hold it to")
 }
 
 func TestOptionsDefaults(t *testing.T) {

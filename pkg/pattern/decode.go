@@ -371,13 +371,13 @@ func (d *decoder) condition(n *yaml.Node, path string, minNodes int) (Condition,
 			c.Quantity = q
 		}
 	}
-	var ops []Op // the comparisons given, in file order
+	var ops []Comparison // the comparisons given, in file order
 	for op := LevelAtLeast; op <= Above; op++ {
 		if _, ok := m.keys[op.String()]; ok {
 			ops = append(ops, op)
 		}
 	}
-	slices.SortFunc(ops, func(a, b Op) int { return m.keys[a.String()].Line - m.keys[b.String()].Line })
+	slices.SortFunc(ops, func(a, b Comparison) int { return m.keys[a.String()].Line - m.keys[b.String()].Line })
 	var opKey *yaml.Node
 	for _, op := range ops {
 		kn := m.keys[op.String()]

@@ -149,14 +149,14 @@ type Rule struct {
 	Any []Condition
 }
 
-// Op is a condition's comparison.
-type Op uint8
+// Comparison is a condition's comparison.
+type Comparison uint8
 
 // The comparisons. Level and grade comparisons apply to a metric, Below
 // and Above to a derived quantity.
 const (
 	// LevelAtLeast is `level:`: the metric's level is at least Level.
-	LevelAtLeast Op = iota + 1
+	LevelAtLeast Comparison = iota + 1
 	// LevelAtMost is `level_at_most:`.
 	LevelAtMost
 	// GradeAtLeast is `grade_at_least:`.
@@ -169,7 +169,7 @@ const (
 	Above
 )
 
-// opKeys are the YAML keys of the comparisons, indexed by Op.
+// opKeys are the YAML keys of the comparisons, indexed by Comparison.
 var opKeys = [...]string{
 	LevelAtLeast: "level",
 	LevelAtMost:  "level_at_most",
@@ -180,7 +180,7 @@ var opKeys = [...]string{
 }
 
 // String returns the comparison's key in pattern files.
-func (o Op) String() string {
+func (o Comparison) String() string {
 	if o > 0 && int(o) < len(opKeys) {
 		return opKeys[o]
 	}
@@ -188,14 +188,14 @@ func (o Op) String() string {
 }
 
 // onMetric reports whether the comparison applies to a metric.
-func (o Op) onMetric() bool { return o >= LevelAtLeast && o <= GradeAtMost }
+func (o Comparison) onMetric() bool { return o >= LevelAtLeast && o <= GradeAtMost }
 
 // Condition is one test of a window. Metric is used by the level and grade
 // comparisons, Quantity by Below and Above; Level, Grade or Value is the
 // operand of Op.
 type Condition struct {
 	// Op is the comparison.
-	Op Op
+	Op Comparison
 	// Metric is the subject of a level or grade comparison.
 	Metric metric.ID
 	// Quantity is the subject of Below and Above.
