@@ -12,9 +12,11 @@
 // "system.slice/<scheduler>.scope/job_81234/step_0". Per id the top-most
 // matching directory is the job's cgroup (breadth first, so the shallowest;
 // the walk does not descend into a job). The walk runs on the first read and
-// then every [Options.RescanEvery] reads; [Source.Jobs] returns the ids it
-// found, for the agent to reconcile with the scheduler hooks' records. A
-// known job's own subtree is kept listed between reads and checked at every
+// then every [Options.RescanEvery] reads; [Source.Jobs] returns the ids of
+// the jobs the last read reported (those the walks found, and a job whose
+// cgroup has gone at the read that reports it once more, rule 7), for the
+// agent to list as running and reconcile with the scheduler hooks'
+// records. A known job's own subtree is kept listed between reads and checked at every
 // read (see Cost), so that a new job step's processes are seen at the next
 // read, not at the next walk.
 //
@@ -88,8 +90,12 @@
 //     devices; the first read of the cgroup and a sum that went down (the
 //     cgroup was recreated) set a new base.
 //  7. A job whose cgroup has gone is reported once more, with whatever its
-//     zombies still added, so that the agent sees the last interval; the
-//     read after that drops it.
+//     zombies and the reaps inside the job still added, so that the agent
+//     sees the last interval; the read after that drops it. The read that
+//     reports it once more notices the removal either by its walk (the job
+//     is not found) or by the job's own listing, and [Source.Jobs] names
+//     the job at that read in both cases, so that the sample of that
+//     interval lists the job its reading is for.
 //  8. A process that exits between the listing of cgroup.procs and the read
 //     of its files (ENOENT, ESRCH) is skipped silently.
 //

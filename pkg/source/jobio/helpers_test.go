@@ -3,8 +3,10 @@ package jobio_test
 import (
 	"context"
 	"fmt"
+	"maps"
 	"os"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 	"testing"
@@ -194,4 +196,9 @@ func removeFile(tr *tree, rel string) error {
 // removeProcFile removes /proc/<pid>/<name>.
 func removeProcFile(tr *tree, pid int, name string) error {
 	return os.Remove(filepath.Join(tr.proc, strconv.Itoa(pid), name))
+}
+
+// mapKeys returns the job ids of readings, sorted.
+func mapKeys(m map[string]source.Reading) []string {
+	return slices.Sorted(maps.Keys(m))
 }

@@ -306,16 +306,90 @@ func TestRuleJobRemovedIsReportedOnceMore(t *testing.T) {
 
 	// The job ends: 601 reads 50 more and exits (a zombie, its parent is
 	// the step daemon outside the job), and the scheduler removes the
-	// cgroup. The job is reported once more, with the zombie's last 50.
+	// cgroup. The job is reported once more, with the zombie's last 50, and
+	// is still listed as running: its last interval is in that reading.
 	tr.setIO(601, rchar(1150))
 	tr.rmdir(jobDir)
 	got := read(t, src)
 	require.Contains(t, got, "7")
 	require.Equal(t, uint64(150), got["7"].Counters["proc.rchar"])
-	require.Empty(t, src.Jobs(), "the walk no longer finds it")
+	require.Equal(t, []string{"7"}, src.Jobs(), "the job of the last reading")
 
 	// Then it is dropped.
 	require.Empty(t, read(t, src))
+	require.Empty(t, src.Jobs())
+}
+
+// TestRuleJobRemovedKeepsItsLastInterval removes a job's cgroup at the
+// moments the source can notice it: right before a walk (the walk no
+// longer finds it), between walks (its own listing fails), and right
+// before a walk that comes early because another job ended at the read
+// before. In each the read that notices it must report the job's last
+// interval and Jobs must name the job, and the read after must drop it.
+func TestRuleJobRemovedKeepsItsLastInterval(t *testing.T) {
+	t.Parallel()
+	const job8 = "system.slice/slurmstepd.scope/job_8"
+	tests := []struct {
+		name        string
+		rescanEvery int
+		// before runs after the base read and returns how many reads to do
+		// before job 7's removal; it may end job 8 meanwhile.
+		before func(tr *tree) int
+		// reaped says 601's last 50 reach the reading through its parent
+		// 600, which reaped it inside the job, not as a zombie.
+		reaped bool
+	}{
+		{name: "right before a walk", rescanEvery: 1},
+		{name: "between walks", rescanEvery: 100},
+		{name: "right before a walk, child reaped inside the job", rescanEvery: 1, reaped: true},
+		{name: "between walks, child reaped inside the job", rescanEvery: 100, reaped: true},
+		{name: "right before the walk another job's end brings", rescanEvery: 100, before: func(tr *tree) int {
+			tr.rmdir(job8) // noticed by its listing; the next read walks
+			return 1
+		}},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			t.Parallel()
+			tr := newJobTree(t)
+			tr.mkdir(job8 + "/step_0")
+			tr.spawn(600, 1, 50000, rchar(5000)) // 7's shell; its parent is outside the job
+			tr.spawn(601, 600, 60000, rchar(1000))
+			tr.setProcs(stepDir, 600, 601)
+			src := tr.source(jobio.Options{RescanEvery: tt.rescanEvery})
+			require.Equal(t, []string{"7", "8"}, mapKeys(read(t, src)))
+			tr.setIO(601, rchar(1100))
+			require.Equal(t, uint64(100), total(t, src, "7", "proc.rchar"))
+			if tt.before != nil {
+				for range tt.before(tr) {
+					read(t, src)
+				}
+			}
+
+			// 601 reads 50 more and exits. Either 600 reaps it, reading 5
+			// itself (5000+5+1150), and exits, or 601 stays a zombie beside
+			// 600; both are zombies then, and the cgroup goes.
+			tr.setIO(601, rchar(1150))
+			if tt.reaped {
+				tr.reap(601)
+				tr.setIO(600, rchar(6155))
+			}
+			tr.setProcs(stepDir)
+			tr.rmdir(jobDir)
+			got := read(t, src)
+			require.Contains(t, got, "7", "reported once more")
+			want := uint64(150)
+			if tt.reaped {
+				want = 155
+			}
+			require.Equal(t, want, got["7"].Counters["proc.rchar"], "its last interval")
+			require.Contains(t, src.Jobs(), "7", "listed with its last reading")
+
+			got = read(t, src)
+			require.NotContains(t, got, "7")
+			require.NotContains(t, src.Jobs(), "7")
+		})
+	}
 }
 
 func TestRuleJobWithoutWalkNoticesRemovalAtOnce(t *testing.T) {
@@ -328,7 +402,7 @@ func TestRuleJobWithoutWalkNoticesRemovalAtOnce(t *testing.T) {
 	tr.rmdir(jobDir)
 	tr.mkdir("system.slice/slurmstepd.scope/job_8")
 	require.Contains(t, read(t, src), "7", "reported once more")
-	require.Equal(t, []string{"7"}, src.Jobs(), "Jobs is the last walk's result")
+	require.Equal(t, []string{"7"}, src.Jobs(), "job 8 waits for the next walk")
 	// A job that ended makes the next read walk again.
 	got := read(t, src)
 	require.NotContains(t, got, "7")

@@ -85,7 +85,6 @@ type Source struct {
 
 	jobs      map[string]*job
 	ids       []string // keys of jobs, sorted; rebuilt when jobs change
-	found     []string // job ids at the last walk, sorted
 	walked    bool
 	sinceWalk int
 	gen       uint64 // read generation
@@ -162,10 +161,14 @@ func NewSource(opts Options, now func() time.Time) (*Source, error) {
 // Name returns "jobio", the prefix of every reading's key.
 func (s *Source) Name() string { return "jobio" }
 
-// Jobs returns the ids of the jobs found at the last walk of the cgroup
-// tree, sorted, for the agent to reconcile with the scheduler hooks'
-// records. It is nil before the first Read.
-func (s *Source) Jobs() []string { return slices.Clone(s.found) }
+// Jobs returns the ids of the jobs the last Read reported, sorted, for the
+// agent to list as running and to reconcile with the scheduler hooks'
+// records: the jobs the walks found, and a job whose cgroup has gone at the
+// read that reports it once more. That last reading holds the job's final
+// interval, so the job ran in it; leaving it out because the walk at the
+// same read no longer found its cgroup would drop that interval's I/O. It is
+// nil before the first Read.
+func (s *Source) Jobs() []string { return slices.Clone(s.ids) }
 
 // Close closes every kept descriptor (/proc/<pid>/io, cgroup directories,
 // cgroup.procs, io.stat, /proc/uptime) and forgets all jobs;
@@ -177,7 +180,7 @@ func (s *Source) Close() error {
 	}
 	clear(s.jobs)
 	clear(s.matches)
-	s.ids, s.found, s.walked = nil, nil, false
+	s.ids, s.walked = nil, false
 	return nil
 }
 
@@ -379,9 +382,7 @@ func (s *Source) childRel(rel string, nm nameSpan) []byte {
 // new job, and a job whose directory moved is pointed at the new one.
 // Every job found lists its subtree afresh at its next read.
 func (s *Source) takeFound() {
-	s.found = s.found[:0]
 	for id, rel := range s.walkFound {
-		s.found = append(s.found, id)
 		j := s.jobs[id]
 		if j == nil {
 			j = &job{id: id, key: "jobio:" + id, procs: make(map[int]*proc)}
@@ -393,7 +394,6 @@ func (s *Source) takeFound() {
 		}
 		j.relist = true // every RescanEvery reads, each job's subtree too
 	}
-	slices.Sort(s.found)
 }
 
 // markLost marks lost every job the walk did not find.
@@ -462,7 +462,7 @@ func (s *Source) dropAll() {
 		j.close()
 	}
 	clear(s.jobs)
-	s.ids, s.found, s.walked = s.ids[:0], nil, false
+	s.ids, s.walked = s.ids[:0], false
 }
 
 // sortIDs rebuilds s.ids from s.jobs.
