@@ -148,8 +148,9 @@ var nfsDefault = map[string]metric.ID{
 // NFS rows count calls. Left out: proc.read_bytes and proc.write_bytes (the
 // storage-level view of the same I/O), cancelled_write_bytes (a correction,
 // not I/O) and every iostat.* counter (block devices only, and already
-// inside rchar/wchar). On a shared node the per-job sample takes exactly the
-// metrics mapped here from this source, and the rest from the node.
+// inside rchar/wchar). Each job this source reports, alone on its node or
+// not, takes exactly the metrics mapped here from this source, and the rest
+// from the node.
 var jobioDefault = map[string]metric.ID{
 	"proc.rchar": metric.ReadBytes,
 	"proc.wchar": metric.WriteBytes,

@@ -70,7 +70,8 @@ type Config struct {
 	// samples on interval boundaries.
 	Jitter time.Duration
 	// JobsFrom says where running jobs are learnt from; empty means
-	// JobsFromBoth.
+	// JobsFromBoth. A job a per-job source gave values for is listed
+	// whatever JobsFrom says, so that its values are never dropped.
 	JobsFrom JobsFrom
 	// QueueLimit bounds the samples held while the broker is away; zero
 	// means 720 (one hour at the default interval).
@@ -303,7 +304,7 @@ func (a *Agent) Collect(ctx context.Context) (s report.Sample, ok bool, err erro
 	}
 	a.seq++
 	s.Node, s.Seq, s.Start, s.End = a.cfg.Node, a.seq, start, now
-	s.Jobs = a.runningJobs(start)
+	s.Jobs = split.listed(a.runningJobs(start))
 	s.PerJob = split.blocks(s.Jobs, s.Values, a.cfg.Mapping)
 	return s, true, errors.Join(errs...)
 }

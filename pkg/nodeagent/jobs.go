@@ -99,12 +99,33 @@ func (p *perJob) target(job string, node *metric.Values) *metric.Values {
 	return v
 }
 
-// blocks builds the per-job split of a shared node's sample: for each
-// running job, the per-job sources' values for the metrics they measure and
-// the node's values for the rest (which the filesystem client cannot split).
-// An exclusive node, or one without per-job sources, gets no split.
+// listed returns running with every job a per-job source gave values for
+// added, sorted: a job's own values are never dropped for want of a
+// listing, as when the hooks have no record of it (JobsFromHooks) or its
+// cgroup went at this very read.
+func (p *perJob) listed(running []string) []string {
+	n := len(running)
+	for job := range p.values {
+		if !slices.Contains(running[:n], job) {
+			running = append(running, job)
+		}
+	}
+	if len(running) > n {
+		slices.Sort(running)
+	}
+	return running
+}
+
+// blocks builds the per-job split of a sample: when a per-job source gave
+// readings, each listed job gets the per-job sources' values for the
+// metrics they measure (zero for a job they did not report) and the node's
+// values for the rest, which the filesystem client cannot split. A job
+// alone on the node is split too: the aggregator takes a job's block where
+// there is one and the node's values otherwise, so without a block its own
+// values would be lost, and its figures would change meaning whenever a
+// neighbour came or went. A node without per-job readings gets no split.
 func (p *perJob) blocks(jobs []string, node metric.Values, table mapping.Table) []report.JobValues {
-	if len(jobs) < 2 || len(p.sources) == 0 {
+	if len(p.sources) == 0 {
 		return nil
 	}
 	var covered [metric.Count]bool

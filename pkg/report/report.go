@@ -29,8 +29,9 @@ type Sample struct {
 	Jobs []string
 	// Values holds the node's deltas over the interval.
 	Values metric.Values
-	// PerJob optionally splits Values by job when several jobs share the
-	// node (for example from per-job cgroup counters).
+	// PerJob holds each job's own values where a per-job source (per-job
+	// cgroup counters) measured the node's jobs, whether one job or several
+	// run there; a job without a block is given Values.
 	PerJob []JobValues
 }
 

@@ -83,7 +83,8 @@
 //	list of string    jobs      ids of the jobs running on the node during
 //	                            the interval; may be empty
 //	values            values    the node's deltas over the interval
-//	list of per-job   per-job   optional split of the deltas by job
+//	list of per-job   per-job   optional: each job's own deltas where a
+//	                            per-job source measured them
 //
 // where each per-job item is:
 //
