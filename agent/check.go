@@ -49,6 +49,8 @@ func check(ctx context.Context, args []string, stdout, stderr io.Writer) error {
 	return nil
 }
 
+// metricNames lists the metrics a source gives, marked "per job" when they
+// go to each job's block rather than to the node's values.
 func metricNames(r nodeagent.SourceReport) string {
 	if len(r.Metrics) == 0 {
 		return "-"
@@ -56,6 +58,9 @@ func metricNames(r nodeagent.SourceReport) string {
 	var ns []string
 	for _, id := range r.Metrics {
 		ns = append(ns, id.String())
+	}
+	if r.PerJob {
+		return strings.Join(ns, " ") + ", per job"
 	}
 	return strings.Join(ns, " ")
 }

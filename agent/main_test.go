@@ -134,6 +134,20 @@ func TestCheckListsSourcesAndFailsWithoutData(t *testing.T) {
 	assert.Contains(t, out.String(), "all (collect)")
 }
 
+// TestCheckMarksPerJobMetrics runs agent check with the jobio source alone
+// over a node with one job (testdata/jobio/shared_node without job 81240):
+// its metrics are listed as going to each job's block.
+func TestCheckMarksPerJobMetrics(t *testing.T) {
+	tree := t.TempDir()
+	require.NoError(t, os.CopyFS(tree, os.DirFS("../testdata/jobio/shared_node")))
+	require.NoError(t, os.RemoveAll(filepath.Join(tree, "cgroup/system.slice/slurmstepd.scope/job_81240")))
+	var out, stderr bytes.Buffer
+	args := []string{"--sources", "jobio", "--state.dir", t.TempDir(),
+		"--source.jobio.cgroupfs", filepath.Join(tree, "cgroup"), "--source.jobio.procfs", filepath.Join(tree, "proc")}
+	require.NoError(t, check(context.Background(), args, &out, &stderr))
+	assert.Regexp(t, `jobio\s+1\s+read_bytes write_bytes read_ops write_ops, per job\s+ok`, out.String())
+}
+
 func TestExampleAgentConfigParses(t *testing.T) {
 	// The example names only real options: a wrong name would fail here.
 	var stderr bytes.Buffer

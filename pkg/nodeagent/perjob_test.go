@@ -149,3 +149,49 @@ func TestJobAloneKeepsNodeMetricsOfTheFilesystem(t *testing.T) {
 	require.Equal(t, uint64(4), v[metric.ReadOps])
 	require.Equal(t, uint64(60), v[metric.Opens], "the node's")
 }
+
+// TestCheckReportsWhatCollectGives checks agent check's claim about the
+// jobio source against what the samples then carry: every metric it lists
+// for the source reaches each reported job's block, alone or not.
+func TestCheckReportsWhatCollectGives(t *testing.T) {
+	t.Parallel()
+	for _, alone := range []bool{true, false} {
+		t.Run(map[bool]string{true: "a job alone", false: "two jobs"}[alone], func(t *testing.T) {
+			t.Parallel()
+			tree := t.TempDir()
+			require.NoError(t, os.CopyFS(tree, os.DirFS(fixture.Path(t, "jobio", "shared_node"))))
+			if alone {
+				require.NoError(t, os.RemoveAll(jobDir(tree, "81240")))
+			}
+			clk := &clock{t: t0}
+			jobs, err := jobio.NewSource(jobio.Options{CgroupRoot: filepath.Join(tree, "cgroup"), ProcRoot: filepath.Join(tree, "proc")}, clk.now)
+			require.NoError(t, err)
+			a, err := nodeagent.New(nodeagent.Config{
+				Node: "bw007", StateDir: t.TempDir(), Now: clk.now, JobsFrom: nodeagent.JobsFromCgroups,
+				Sources: []source.Source{jobs},
+			})
+			require.NoError(t, err)
+			reports, err := a.Check(context.Background())
+			require.NoError(t, err)
+			require.Len(t, reports, 1)
+			r := reports[0]
+			require.True(t, r.PerJob)
+			require.Equal(t, []metric.ID{metric.ReadBytes, metric.WriteBytes, metric.ReadOps, metric.WriteOps}, r.Metrics)
+
+			_, _, err = a.Collect(context.Background())
+			require.NoError(t, err)
+			clk.add(5 * time.Second)
+			for _, pid := range []string{"2110", "2210"} {
+				bumpProcIO(t, filepath.Join(tree, "proc", pid, "io"), map[string]uint64{"rchar": 1, "wchar": 1, "syscr": 1, "syscw": 1})
+			}
+			s, _, err := a.Collect(context.Background())
+			require.NoError(t, err)
+			require.Len(t, s.PerJob, len(r.Instances), "a block per job check reported")
+			for _, pj := range s.PerJob {
+				for _, id := range r.Metrics {
+					require.NotZero(t, pj.Values[id], "job %s, %s", pj.Job, id)
+				}
+			}
+		})
+	}
+}

@@ -18,6 +18,9 @@ type SourceReport struct {
 	Name      string
 	Instances []string    // reading keys
 	Metrics   []metric.ID // metrics its counters map to
+	// PerJob says its readings are per job (the jobio source): Metrics go
+	// to each reported job's block of the sample, not to the node's values.
+	PerJob    bool
 	Malformed int
 	Err       error // nil, or wrapping source.ErrNoData when there is nothing to read
 }
@@ -34,6 +37,7 @@ func (a *Agent) Check(ctx context.Context) ([]SourceReport, error) {
 		seen := map[metric.ID]bool{}
 		for _, rd := range readings {
 			r.Instances = append(r.Instances, rd.Key)
+			r.PerJob = r.PerJob || rd.Job != ""
 			r.Malformed += rd.Malformed
 			for name := range rd.Counters {
 				if id, ok := a.cfg.Mapping[src.Name()][name]; ok {
