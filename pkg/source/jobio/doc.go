@@ -1,7 +1,9 @@
-// Package jobio attributes I/O to the batch jobs sharing a node. A
-// filesystem client's counters (the lustre source) cover the whole node;
-// this source splits I/O by job through the kernel's per-process and
-// per-cgroup accounting.
+// Package jobio attributes I/O to the batch jobs on a node. A filesystem
+// client's counters (the lustre source) cover the whole node, so they
+// cannot tell jobs sharing it apart; this source measures each job through
+// the kernel's per-process and per-cgroup accounting, the same way whether
+// the job shares the node or is alone on it (the agent gives every job it
+// reports its own values).
 //
 // # Basics
 //
@@ -55,7 +57,10 @@
 //
 // A job's totals must never jump: a kernel counter that includes I/O from
 // outside the job, or that is counted twice, would show as a burst of I/O
-// that did not happen. The rules, each tested:
+// that did not happen. The rules, each tested on fixture trees, and
+// together on the running kernel by TestRealCgroupEveryByteCountedOnce
+// when the tests run as root (real processes, exits, reaps and cgroup
+// removals; each job's totals must equal what its processes report):
 //
 //  1. Per process the source keeps the values of its last read, keyed by
 //     pid and start time (/proc/<pid>/stat field 22), so a reused pid is a
