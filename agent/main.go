@@ -22,6 +22,7 @@ import (
 	"syscall"
 	"time"
 
+	"sluice/pkg/bus"
 	"sluice/pkg/jobstate"
 	"sluice/pkg/mapping"
 	"sluice/pkg/nodeagent"
@@ -75,7 +76,7 @@ func run(ctx context.Context, args []string, stderr io.Writer) error {
 
 // common holds the options every command shares.
 type common struct {
-	node, stateDir, natsURL, prefix, cluster, logLevel string
+	node, stateDir, natsURL, prefix, cluster, delivery, logLevel string
 }
 
 func (c *common) register(fs *flag.FlagSet) {
@@ -85,6 +86,7 @@ func (c *common) register(fs *flag.FlagSet) {
 	fs.StringVar(&c.natsURL, "nats.url", "nats://127.0.0.1:4222", "NATS broker URL (comma-separate several servers)")
 	fs.StringVar(&c.prefix, "nats.prefix", "sluice", "first subject token of every message")
 	fs.StringVar(&c.cluster, "nats.cluster", "default", "cluster name, the second subject token")
+	fs.StringVar(&c.delivery, "nats.delivery", "stream", `"stream": a sample or job event leaves the agent only once the broker's stream has stored it (JetStream); "core": plain NATS, at most once`)
 	fs.StringVar(&c.logLevel, "log.level", "info", "log level: debug, info, warn or error")
 }
 
@@ -130,7 +132,7 @@ func setup(name string, args []string, stderr io.Writer, extra ...func(*flag.Fla
 	}
 	a, err := nodeagent.New(nodeagent.Config{
 		Node: f.node, Interval: f.interval, Jitter: f.jitter, StateDir: f.stateDir,
-		Sources: sources, Mapping: table, NATSURL: f.natsURL, Prefix: f.prefix, Cluster: f.cluster,
+		Sources: sources, Mapping: table, NATSURL: f.natsURL, Prefix: f.prefix, Cluster: f.cluster, Delivery: bus.Delivery(f.delivery),
 		QueueLimit: f.queueLimit, JobsFrom: nodeagent.JobsFrom(f.jobsFrom), Logger: log,
 	})
 	return a, &f, err
@@ -207,7 +209,8 @@ func hookTime(at string) (time.Time, error) {
 }
 
 func (c *common) hook(log *slog.Logger) nodeagent.HookConfig {
-	return nodeagent.HookConfig{StateDir: c.stateDir, Node: c.node, NATSURL: c.natsURL, Prefix: c.prefix, Cluster: c.cluster, Logger: log}
+	return nodeagent.HookConfig{StateDir: c.stateDir, Node: c.node, NATSURL: c.natsURL, Prefix: c.prefix, Cluster: c.cluster,
+		Delivery: bus.Delivery(c.delivery), Logger: log}
 }
 
 // hook is a parsed hook command: its common options, job id and time.

@@ -19,6 +19,7 @@ import (
 
 	"sluice/pkg/aggregate"
 	"sluice/pkg/api"
+	"sluice/pkg/bus"
 	"sluice/pkg/metric"
 	"sluice/pkg/report"
 	"sluice/pkg/tracker"
@@ -43,7 +44,7 @@ func TestStormFlagsExplainAckSilenceLearn(t *testing.T) {
 	nodes := []string{"bw007", "bw008", "bw009", "bw010"}
 	for _, n := range nodes {
 		b := wire.AppendJobEvent(nil, &report.JobEvent{Type: report.JobStart, Job: "81234", Node: n, Nodes: nodes, User: "dorvane", Name: "quill-index", Time: t0})
-		require.NoError(t, nc.Publish("sluice.default.job."+n, b))
+		keyed(t, nc, "sluice.default.job."+n, b)
 	}
 	for step := range 24 {
 		from := t0.Add(time.Duration(step) * 10 * time.Second)
@@ -51,7 +52,7 @@ func TestStormFlagsExplainAckSilenceLearn(t *testing.T) {
 			var v metric.Values
 			v[metric.Creates], v[metric.StatOps], v[metric.WriteBytes] = 20000, 30000, 100_000
 			b := wire.AppendSample(nil, &report.Sample{Node: n, Seq: uint64(step + 1), Start: from, End: from.Add(10 * time.Second), Jobs: []string{"81234"}, Values: v})
-			require.NoError(t, nc.Publish("sluice.default.sample."+n, b))
+			keyed(t, nc, "sluice.default.sample."+n, b)
 		}
 		require.NoError(t, nc.Flush())
 		require.Eventually(t, func() bool { return applied(t, url) >= uint64(4*(step+1)) }, 5*time.Second, 5*time.Millisecond)
@@ -115,9 +116,9 @@ func TestStormFlagsExplainAckSilenceLearn(t *testing.T) {
 	// The job ends: explain and learn still answer for it.
 	end := t0.Add(4 * time.Minute)
 	b := wire.AppendJobEvent(nil, &report.JobEvent{Type: report.JobEnd, Job: "81234", Node: nodes[0], Time: end})
-	require.NoError(t, nc.Publish("sluice.default.job."+nodes[0], b))
+	keyed(t, nc, "sluice.default.job."+nodes[0], b)
 	b = wire.AppendSample(nil, &report.Sample{Node: nodes[0], Seq: 100, Start: end, End: end.Add(10 * time.Second)})
-	require.NoError(t, nc.Publish("sluice.default.sample."+nodes[0], b))
+	keyed(t, nc, "sluice.default.sample."+nodes[0], b)
 	require.NoError(t, nc.Flush())
 	require.Eventually(t, func() bool { svc.Tick(); return strings.Contains(cli("jobs", "--all"), "ended") }, 5*time.Second, 10*time.Millisecond)
 	ended := cli("explain", "81234")
@@ -129,7 +130,7 @@ func TestStormFlagsExplainAckSilenceLearn(t *testing.T) {
 	// minute here); its stored windows still explain it and teach a pattern.
 	later := end.Add(3 * time.Minute)
 	b = wire.AppendSample(nil, &report.Sample{Node: nodes[1], Seq: 100, Start: later, End: later.Add(10 * time.Second)})
-	require.NoError(t, nc.Publish("sluice.default.sample."+nodes[1], b))
+	keyed(t, nc, "sluice.default.sample."+nodes[1], b)
 	require.NoError(t, nc.Flush())
 	require.Eventually(t, func() bool { svc.Tick(); return !strings.Contains(cli("jobs", "--all"), "81234") }, 5*time.Second, 10*time.Millisecond)
 	gone := cli("explain", "81234")
@@ -179,3 +180,20 @@ func flagID(t *testing.T, url, reason string) string {
 }
 
 var httpGet = http.Get
+
+// keyed publishes a sample or job event as an agent does: with its
+// de-duplication key, which the aggregator checks against the body.
+func keyed(t *testing.T, nc *nats.Conn, subject string, data []byte) {
+	t.Helper()
+	var id string
+	if k, _ := wire.Peek(data); k == wire.KindSample {
+		var s report.Sample
+		require.NoError(t, wire.DecodeSample(data, &s))
+		id = bus.SampleID(s.Node, s.Seq)
+	} else {
+		var e report.JobEvent
+		require.NoError(t, wire.DecodeJobEvent(data, &e))
+		id = bus.JobEventID(&e)
+	}
+	require.NoError(t, nc.PublishMsg(&nats.Msg{Subject: subject, Data: data, Header: nats.Header{bus.MsgIDHeader: []string{id}}}))
+}

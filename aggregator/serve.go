@@ -12,6 +12,7 @@ import (
 
 	"sluice/pkg/aggregate"
 	"sluice/pkg/baseline"
+	"sluice/pkg/bus"
 	"sluice/pkg/coding"
 	"sluice/pkg/options"
 	"sluice/pkg/tracker"
@@ -24,6 +25,9 @@ const envPrefix = "SLUICE_AGGREGATOR_"
 // serveOptions are the options of "run", shared with the demo.
 type serveOptions struct {
 	natsURL, embedded, prefix, cluster   string
+	delivery, storeDir                   string
+	streamAge, streamDups                time.Duration
+	streamBytes                          int64
 	storePath, listen, cutsFile, logLvl  string
 	window, live, grace, tick            time.Duration
 	raiseAfter, clearAfter, maxJobSeries int
@@ -40,6 +44,11 @@ func (o *serveOptions) register(fs *flag.FlagSet) {
 	fs.StringVar(&o.embedded, "nats.embedded.listen", "127.0.0.1:4222", "host:port of the embedded broker (port 0: any free port)")
 	fs.StringVar(&o.prefix, "nats.prefix", "sluice", "first subject token of every message")
 	fs.StringVar(&o.cluster, "nats.cluster", "default", "cluster name, the second subject token")
+	fs.StringVar(&o.delivery, "nats.delivery", "stream", `"stream": read samples and job events from the broker's JetStream stream, acknowledged once saved; "core": plain NATS, at most once (what arrives while the aggregator is down, or what it had not saved when it died, is lost)`)
+	fs.StringVar(&o.storeDir, "nats.embedded.store-dir", "", "directory where the embedded broker keeps the stream (default: --store.path with .stream appended)")
+	fs.DurationVar(&o.streamAge, "stream.max-age", 24*time.Hour, "how long the stream keeps a message: the longest aggregator outage to ride out")
+	fs.Int64Var(&o.streamBytes, "stream.max-bytes", 8<<30, "the stream's size bound in bytes; the oldest messages go first")
+	fs.DurationVar(&o.streamDups, "stream.duplicates", 10*time.Minute, "how long the stream remembers a message id, so that a publish retried after a lost acknowledgement is stored once")
 	fs.StringVar(&o.storePath, "store.path", "/var/lib/sluice/aggregator.db", "bbolt state file")
 	fs.StringVar(&o.listen, "web.listen", "127.0.0.1:9713", "HTTP address for /metrics, /healthz and /api/v1")
 	fs.StringVar(&o.cutsFile, "cuts.file", "", "YAML file of per-node cut points overriding the defaults (metric: {elevated: N, critical: N})")
@@ -74,6 +83,8 @@ func (o *serveOptions) service(log *slog.Logger) (aggregate.Options, error) {
 	}
 	return aggregate.Options{
 		NATSURL: o.natsURL, EmbeddedListen: o.embedded, Prefix: o.prefix, Cluster: o.cluster,
+		Delivery: bus.Delivery(o.delivery), EmbeddedStoreDir: o.storeDir,
+		Stream:    bus.StreamOptions{MaxAge: o.streamAge, MaxBytes: o.streamBytes, Duplicates: o.streamDups},
 		StorePath: o.storePath, Listen: o.listen, TickEvery: o.tick, MaxJobSeries: o.maxJobSeries,
 		Logger: log, RecomputeEvery: o.baseEvery,
 		Baseline: baseline.Options{

@@ -51,6 +51,16 @@ type Options struct {
 	// EmbeddedListen is the embedded broker's host:port; empty means
 	// 127.0.0.1:4222. Use "127.0.0.1:0" for a free port.
 	EmbeddedListen string
+	// EmbeddedStoreDir is where the embedded broker keeps the stream;
+	// empty means StorePath with ".stream" appended. It is created if
+	// missing.
+	EmbeddedStoreDir string
+	// Delivery is how samples and job events arrive; empty means
+	// bus.Stream: read from the broker's stream and acknowledged only
+	// once saved.
+	Delivery bus.Delivery
+	// Stream bounds the stream (age, bytes, de-duplication window).
+	Stream bus.StreamOptions
 	// Prefix and Cluster name the subjects (see package bus).
 	Prefix, Cluster string
 	// StorePath is the bbolt file; required.
@@ -94,6 +104,7 @@ func (o Options) withDefaults() Options {
 	o.FlushEvery = cmp.Or(o.FlushEvery, time.Second)
 	o.RecomputeEvery = cmp.Or(o.RecomputeEvery, 10*time.Minute)
 	o.MaxJobSeries = cmp.Or(o.MaxJobSeries, 5000)
+	o.EmbeddedStoreDir = cmp.Or(o.EmbeddedStoreDir, o.StorePath+".stream")
 	if o.Logger == nil {
 		o.Logger = slog.New(slog.DiscardHandler)
 	}
@@ -115,8 +126,12 @@ type Service struct {
 	agents      map[string]model.AgentStatus // latest heartbeat per node
 	shares      export.ShareHistogram        // every CPU share the heartbeats gave
 	att         *flagging.Attention
-	flushErr    error  // the last flush's, nil once one succeeds
-	storeErrors uint64 // failed flushes
+	flushErr    error     // the last flush's, nil once one succeeds
+	storeErrors uint64    // failed flushes
+	committed   time.Time // when the last flush succeeded
+	// applied is the place in the stream of the latest message applied;
+	// a flush saves it and then acknowledges it.
+	applied ingest.Receipt
 
 	// pending and unreported hold what the last failed flush could not
 	// write; guarded by flushMu.
@@ -140,6 +155,9 @@ func New(opts Options) (*Service, error) {
 	}
 	subj, err := bus.NewSubjects(opts.Prefix, opts.Cluster)
 	if err != nil {
+		return nil, err
+	}
+	if opts.Delivery, err = bus.ParseDelivery(string(opts.Delivery)); err != nil {
 		return nil, err
 	}
 	tr, err := tracker.New(opts.Tracker)
@@ -207,7 +225,8 @@ func (s *Service) Run(ctx context.Context) error {
 	}
 	s.st = st
 	defer st.Close()
-	if err := s.restore(); err != nil {
+	from, err := s.restore()
+	if err != nil {
 		return err
 	}
 	nc, stopBroker, err := s.connect(ctx)
@@ -217,7 +236,7 @@ func (s *Service) Run(ctx context.Context) error {
 	defer stopBroker()
 	defer nc.Close()
 	s.conn.Store(nc)
-	sub, err := ingest.Subscribe(nc, s.subj, sink{s}, s.log)
+	sub, err := s.subscribe(ctx, nc, from)
 	if err != nil {
 		return err
 	}
@@ -254,39 +273,59 @@ func (s *Service) Run(ctx context.Context) error {
 
 // restore loads the state file: jobs, node sequences, baseline days,
 // silences and acknowledgements; then rebuilds every job's matcher from
-// its stored windows and learns the cut points.
-func (s *Service) restore() error {
+// its stored windows and learns the cut points. It returns the stream
+// sequence to read on from: one after the last one saved.
+func (s *Service) restore() (from uint64, err error) {
 	state, err := s.st.Load()
 	if err != nil {
-		return err
+		return 0, err
 	}
 	days, err := s.st.Days()
 	if err != nil {
-		return err
+		return 0, err
 	}
 	silences, err := s.st.Silences()
 	if err != nil {
-		return err
+		return 0, err
 	}
 	acks, err := s.st.Acks()
 	if err != nil {
-		return err
+		return 0, err
 	}
 	s.mu.Lock()
 	defer s.mu.Unlock()
 	if err := s.tr.Restore(state.Jobs, state.Nodes, state.Watermark); err != nil {
-		return fmt.Errorf("restore from %s: %w", s.opts.StorePath, err)
+		return 0, fmt.Errorf("restore from %s: %w", s.opts.StorePath, err)
 	}
 	if err := s.learn.load(days); err != nil {
-		return err
+		return 0, err
 	}
 	s.att = flagging.NewAttention(silences, acks)
 	if err := s.replayLocked(state.Jobs); err != nil {
-		return err
+		return 0, err
 	}
 	s.recomputeLocked()
-	s.log.Info("state restored", "jobs", len(state.Jobs), "nodes", len(state.Nodes), "watermark", state.Watermark, "baseline_days", len(days))
-	return nil
+	s.committed = s.opts.Now()
+	s.log.Info("state restored", "jobs", len(state.Jobs), "nodes", len(state.Nodes), "watermark", state.Watermark,
+		"baseline_days", len(days), "stream_seq", state.StreamSeq)
+	return state.StreamSeq + 1, nil
+}
+
+// subscribe reads samples and job events from the stream from stream
+// sequence from on (or from core NATS, when chosen), heartbeats from core
+// NATS.
+func (s *Service) subscribe(ctx context.Context, nc *nats.Conn, from uint64) (*ingest.Subscriber, error) {
+	if s.opts.Delivery == bus.Core {
+		return ingest.Subscribe(nc, s.subj, sink{s}, s.log)
+	}
+	sub, err := ingest.Consume(ctx, nc, s.subj, sink{s}, ingest.StreamOptions{Stream: s.opts.Stream, From: from}, s.log)
+	if err != nil && s.opts.NATSURL == "" {
+		return nil, fmt.Errorf("%w (the embedded broker keeps it in %s: set --nats.embedded.store-dir)", err, s.opts.EmbeddedStoreDir)
+	}
+	if err != nil {
+		return nil, fmt.Errorf("%w (or set --nats.delivery core to go without it)", err)
+	}
+	return sub, nil
 }
 
 // replayLocked rebuilds the pattern matchers of the restored jobs from
@@ -316,9 +355,13 @@ func (s *Service) connect(ctx context.Context) (*nats.Conn, func(), error) {
 	stop := func() {}
 	url := s.opts.NATSURL
 	if url == "" {
-		emb, err := broker.Start(broker.Options{Listen: s.opts.EmbeddedListen})
+		bo := broker.Options{Listen: s.opts.EmbeddedListen}
+		if s.opts.Delivery == bus.Stream {
+			bo.StoreDir = s.opts.EmbeddedStoreDir
+		}
+		emb, err := broker.Start(bo)
 		if err != nil {
-			return nil, nil, fmt.Errorf("%w (set --nats.url to use an external broker, or --nats.embedded.listen)", err)
+			return nil, nil, fmt.Errorf("%w (set --nats.url to use an external broker, --nats.embedded.listen, or --nats.embedded.store-dir)", err)
 		}
 		url, stop = emb.URL(), emb.Shutdown
 	}

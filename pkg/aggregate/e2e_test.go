@@ -18,6 +18,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"sluice/pkg/aggregate"
+	"sluice/pkg/bus"
 	"sluice/pkg/internal/natstest"
 	"sluice/pkg/jobstate"
 	"sluice/pkg/matcher"
@@ -119,6 +120,9 @@ func (r *rig) startService() {
 		TickEvery: time.Hour, FlushEvery: time.Hour, // the test steps the service itself
 		Tracker: tracker.Options{Window: time.Minute, Live: 30 * time.Second, Grace: step, RaiseAfter: 1, Patterns: r.lib},
 		Now:     r.clk.now,
+		// A short duplicate window lets the replay test store a sample a
+		// second time, as a retry after the window would be.
+		Stream: bus.StreamOptions{Duplicates: 200 * time.Millisecond},
 	})
 	require.NoError(r.t, err)
 	stop, err := svc.Start()
@@ -288,13 +292,19 @@ func TestRestartKeepsStateAndReplayChangesNothing(t *testing.T) {
 	after := r.jobs()
 	assert.Equal(t, before, after, "state survives a restart")
 
-	// Replay every sample ever sent: all duplicates, nothing changes.
+	// Replay every sample ever sent, past the stream's duplicate window
+	// and with each sample's own key: the stream stores them again, and
+	// the aggregator's (node, sequence) check drops them all.
 	r.sentMu.Lock()
 	replay := append([][]byte(nil), r.sent...)
 	r.sentMu.Unlock()
 	require.Len(t, replay, 9*3)
+	time.Sleep(300 * time.Millisecond)
 	for _, msg := range replay {
-		require.NoError(t, r.nc.Publish("sluice.default.sample.replay", msg))
+		var s report.Sample
+		require.NoError(t, wire.DecodeSample(msg, &s))
+		m := &nats.Msg{Subject: "sluice.default.sample.replay", Data: msg, Header: nats.Header{bus.MsgIDHeader: []string{bus.SampleID(s.Node, s.Seq)}}}
+		require.NoError(t, r.nc.PublishMsg(m))
 	}
 	require.NoError(t, r.nc.Flush())
 	require.Eventually(t, func() bool {
@@ -332,6 +342,19 @@ func TestMalformedMessagesAreCountedNotFatal(t *testing.T) {
 	r.advance(2) // still ingesting
 	m := r.scrape()
 	assert.Equal(t, 1.0, m["sluice_ingest_rejected_total"+key(map[string]string{"kind": "sample", "reason": "empty"})].value)
+
+	// A sample that decodes but has no de-duplication key, or another's,
+	// could be stored in place of a real one: refused and counted.
+	good := report.Sample{Node: "bw003", Seq: 999, Start: t0, End: t0.Add(step), Jobs: []string{"4102"}}
+	body := wire.AppendSample(nil, &good)
+	require.NoError(t, r.nc.Publish("sluice.default.sample.bw003", body))
+	forged := &nats.Msg{Subject: "sluice.default.sample.bw003", Data: body, Header: nats.Header{bus.MsgIDHeader: []string{bus.SampleID("bw003", 1000)}}}
+	require.NoError(t, r.nc.PublishMsg(forged))
+	require.NoError(t, r.nc.Flush())
+	require.Eventually(t, func() bool {
+		rej := r.svc.Snapshot().Ingest.Rejected
+		return rej["sample/no_key"] == 1 && rej["sample/bad_key"] == 1
+	}, 10*time.Second, 5*time.Millisecond)
 }
 
 func TestHeartbeatsBecomeAgentCost(t *testing.T) {

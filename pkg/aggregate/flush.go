@@ -14,20 +14,26 @@ type reported struct {
 	job   model.Summary
 }
 
-// flush writes what changed since the last flush in one transaction, then
-// reports the events. A failed write keeps the batch for the next try.
+// flush writes what changed since the last flush in one transaction, with
+// the place in the stream it covers, then acknowledges that place and
+// reports the events. A failed write keeps the batch for the next try and
+// acknowledges nothing.
 func (s *Service) flush() {
 	s.flushMu.Lock()
 	defer s.flushMu.Unlock()
 	s.mu.Lock()
 	s.collectLocked(&s.pending)
+	saved := s.applied
 	s.mu.Unlock()
 
+	s.pending.StreamSeq = saved.Seq
 	err := s.st.Apply(&s.pending)
 	s.mu.Lock()
 	s.flushErr = err
 	if err != nil {
 		s.storeErrors++
+	} else {
+		s.committed = s.opts.Now()
 	}
 	s.mu.Unlock()
 	if err != nil {
@@ -35,6 +41,12 @@ func (s *Service) flush() {
 		return
 	}
 	s.pending = store.Batch{}
+	// Only now is what the stream gave us up to here saved: acknowledge it,
+	// and with it every earlier message. A lost acknowledgement costs a
+	// redelivery, which the (node, sequence) check drops.
+	if err := saved.Ack(); err != nil {
+		s.log.Warn("stream acknowledgement not sent; the broker will deliver again", "seq", saved.Seq, "err", err)
+	}
 	if s.opts.OnEvent != nil {
 		for _, r := range s.unreported {
 			s.opts.OnEvent(r.event, r.job)

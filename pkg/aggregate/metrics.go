@@ -33,14 +33,17 @@ func (s *Service) Snapshot() export.Snapshot {
 	var in export.Ingest
 	if sub := s.sub.Load(); sub != nil {
 		c := sub.Counts()
-		in = export.Ingest{Accepted: c.Taken, Rejected: c.Refused, Duplicates: c.Duplicates, SlowConsumerDropped: c.SlowConsumerDropped}
+		in = export.Ingest{Accepted: c.Taken, Rejected: c.Refused, Duplicates: c.Duplicates, SlowConsumerDropped: c.SlowConsumerDropped,
+			StreamExpired: c.Expired, StreamPending: c.Pending}
 	} else {
 		in = export.NewIngest()
+		in.StreamPending = -1
 	}
 	s.mu.Lock()
 	defer s.mu.Unlock()
 	in.StoreErrors = s.storeErrors
 	now := s.opts.Now()
+	in.CommitAge = now.Sub(s.committed)
 	var running []model.Summary
 	for _, j := range s.tr.Summaries() {
 		if j.Running() {

@@ -13,18 +13,34 @@ import (
 // under the service lock.
 type sink struct{ s *Service }
 
-func (k sink) Sample(smp *report.Sample) error {
+func (k sink) Sample(smp *report.Sample, r ingest.Receipt) error {
 	k.s.mu.Lock()
 	err := k.s.tr.Sample(smp)
+	k.s.placeLocked(r)
 	k.s.mu.Unlock()
 	return refusal(err)
 }
 
-func (k sink) JobEvent(e *report.JobEvent) error {
+func (k sink) JobEvent(e *report.JobEvent, r ingest.Receipt) error {
 	k.s.mu.Lock()
 	err := k.s.tr.JobEvent(e)
+	k.s.placeLocked(r)
 	k.s.mu.Unlock()
 	return refusal(err)
+}
+
+func (k sink) Skipped(r ingest.Receipt) {
+	k.s.mu.Lock()
+	k.s.placeLocked(r)
+	k.s.mu.Unlock()
+}
+
+// placeLocked notes that everything up to r's place in the stream is
+// applied; the caller holds mu.
+func (s *Service) placeLocked(r ingest.Receipt) {
+	if r.Seq > s.applied.Seq {
+		s.applied = r
+	}
 }
 
 func (k sink) Heartbeat(hb *report.Heartbeat) error {

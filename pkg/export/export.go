@@ -56,11 +56,19 @@ type Ingest struct {
 	Duplicates          uint64            // samples already applied
 	SlowConsumerDropped uint64            // messages the client dropped because ingest fell behind
 	StoreErrors         uint64            // failed store writes
+	// StreamExpired counts stream messages the stream dropped (age, size)
+	// before the aggregator read them.
+	StreamExpired uint64
+	// StreamPending is the stream messages not yet read; negative when
+	// unknown (core NATS), and then not exported.
+	StreamPending int64
+	// CommitAge is the time since the last successful store write.
+	CommitAge time.Duration
 }
 
 // NewIngest returns zeroed counters with their maps made.
 func NewIngest() Ingest {
-	return Ingest{Accepted: map[string]uint64{}, Rejected: map[string]uint64{}}
+	return Ingest{Accepted: map[string]uint64{}, Rejected: map[string]uint64{}, StreamPending: -1}
 }
 
 // Clone copies the counters.
@@ -141,6 +149,9 @@ var (
 	descDupes     = prometheus.NewDesc(ns+"_ingest_duplicates_total", "Samples whose (node, sequence) had already been applied.", nil, nil)
 	descSlow      = prometheus.NewDesc(ns+"_ingest_slow_consumer_dropped_total", "Messages the NATS client dropped because ingest fell behind.", nil, nil)
 	descStoreErr  = prometheus.NewDesc(ns+"_store_write_errors_total", "Failed batched writes to the state file.", nil, nil)
+	descCommitAge = prometheus.NewDesc(ns+"_store_commit_age_seconds", "Time since the state file last took a batch: what a crash now would have the stream deliver again.", nil, nil)
+	descExpired   = prometheus.NewDesc(ns+"_ingest_stream_expired_total", "Stream messages the stream dropped (its age or byte bound) before the aggregator read them: samples lost.", nil, nil)
+	descPending   = prometheus.NewDesc(ns+"_ingest_stream_pending_messages", "Stream messages not yet read by the aggregator.", nil, nil)
 	descLag       = prometheus.NewDesc(ns+"_ingest_lag_seconds", "Wall-clock time minus the latest interval end seen in any sample.", nil, nil)
 	descNodes     = prometheus.NewDesc(ns+"_nodes_known", "Nodes that have sent at least one sample.", nil, nil)
 	descRunning   = prometheus.NewDesc(ns+"_jobs_running", "Running jobs, by their highest live-window level.", []string{"level"}, nil)
@@ -175,7 +186,7 @@ var (
 	descSrcInst      = prometheus.NewDesc(ns+"_agent_source_instances", "Instances of a source found at its last read on the node.", []string{"node", "source"}, nil)
 	descSrcBad       = prometheus.NewDesc(ns+"_agent_source_malformed_lines_total", "Counter lines a source skipped as malformed on the node since its agent started.", []string{"node", "source"}, nil)
 
-	allDescs = []*prometheus.Desc{descAccepted, descRejected, descDupes, descSlow, descStoreErr, descLag, descNodes, descRunning, descCutBytes, descCutOps, descPatInfo, descBaseWin, descBaseIdle, descBaseDays, descBaseAge, descBaseBad, descBroker, descJobBytes, descJobOps, descJobLevel, descJobNodes, descFlag, descFlagScore, descFlagSince, descPattern, descDropped,
+	allDescs = []*prometheus.Desc{descAccepted, descRejected, descDupes, descSlow, descStoreErr, descCommitAge, descExpired, descPending, descLag, descNodes, descRunning, descCutBytes, descCutOps, descPatInfo, descBaseWin, descBaseIdle, descBaseDays, descBaseAge, descBaseBad, descBroker, descJobBytes, descJobOps, descJobLevel, descJobNodes, descFlag, descFlagScore, descFlagSince, descPattern, descDropped,
 		descAgentSeen, descAgentCPU, descAgentShare, descAgentFleet, descAgentRSS, descAgentQueued, descAgentDropped, descSrcRead, descSrcUp, descSrcInst, descSrcBad}
 )
 
@@ -209,6 +220,11 @@ func (c *Collector) Collect(ch chan<- prometheus.Metric) {
 	counter(descDupes, s.Ingest.Duplicates)
 	counter(descSlow, s.Ingest.SlowConsumerDropped)
 	counter(descStoreErr, s.Ingest.StoreErrors)
+	gauge(descCommitAge, s.Ingest.CommitAge.Seconds())
+	counter(descExpired, s.Ingest.StreamExpired)
+	if s.Ingest.StreamPending >= 0 {
+		gauge(descPending, float64(s.Ingest.StreamPending))
+	}
 	if !s.Watermark.IsZero() {
 		gauge(descLag, s.Now.Sub(s.Watermark).Seconds())
 	}

@@ -66,6 +66,7 @@ func fixed() export.Snapshot {
 	in.Rejected["sample/duplicate"] = 3
 	in.Rejected["sample/truncated"] = 1
 	in.Duplicates = 3
+	in.StreamPending, in.StreamExpired, in.CommitAge = 12, 0, 400*time.Millisecond
 	agents := []model.AgentStatus{
 		{Node: "bw001", Version: "dev", LastSeen: t0, Interval: 5 * time.Second, CPUSeconds: 12.5, CPUShare: 0.0008, RSSBytes: 14 << 20,
 			Sources: []model.AgentSource{{Name: "lustre", Instances: 2, MicrosPerRead: 21.5, OK: true}}},

@@ -1,30 +1,40 @@
-// Package ingest takes the agents' messages off the bus: it subscribes to
-// samples, job events and heartbeats, decodes them with package wire, and
+// Package ingest takes the agents' messages off the bus: samples and job
+// events from the broker's stream (or, as an explicit choice, from core
+// NATS), heartbeats from core NATS. It decodes them with package wire and
 // hands their domain form (package report) to a Sink. It is the only room
 // of the aggregator that knows the wire format.
 //
 // # Basics
 //
-// [Subscribe] subscribes one callback per kind. Each callback owns its
-// decoder and its reused message, so decoding takes no lock; the Sink is
-// called once per message that decodes. Every message is counted: taken
-// (by kind), or refused by kind and reason, whether the wire format
-// refused it (wire.Reason) or the Sink did (a [Refusal]).
+// [Consume] reads the stream through the aggregator's durable pull
+// consumer, from the stream sequence after the last one the state file
+// saved, and hands every message to the Sink with its [Receipt]; the
+// aggregator acknowledges a receipt, and with it every earlier message,
+// once what they changed is saved. A message's de-duplication key (its
+// Nats-Msg-Id header, bus.SampleID or bus.JobEventID) must match its body.
+// [Subscribe] is the core NATS form: at most once, no receipts. Every
+// message is counted: taken (by kind), or refused by kind and reason,
+// whether the wire format refused it (wire.Reason), its key did (no_key,
+// bad_key), or the Sink did (a [Refusal]).
 //
 // # Caveats
 //
 // The Sink is called from NATS's callback goroutines, one per
-// subscription, so it must be safe for concurrent use.
+// subscription (one for the stream), so it must be safe for concurrent
+// use.
 package ingest
 
 import (
+	"context"
 	"errors"
 	"fmt"
 	"log/slog"
 	"maps"
 	"sync"
+	"time"
 
 	"github.com/nats-io/nats.go"
+	"github.com/nats-io/nats.go/jetstream"
 
 	"sluice/pkg/bus"
 	"sluice/pkg/report"
@@ -33,10 +43,13 @@ import (
 
 // Sink takes decoded messages. An error it returns refuses the message:
 // a [Refusal] is counted under its reason, any other error as "other".
+// Skipped is told the place of a stream message refused before it reached
+// the sink, so that it is acknowledged with the next commit.
 type Sink interface {
-	Sample(*report.Sample) error
-	JobEvent(*report.JobEvent) error
+	Sample(*report.Sample, Receipt) error
+	JobEvent(*report.JobEvent, Receipt) error
 	Heartbeat(*report.Heartbeat) error
+	Skipped(Receipt)
 }
 
 // Refusal is a Sink's refusal of a message, with the reason it is counted
@@ -60,6 +73,12 @@ type Counts struct {
 	// SlowConsumerDropped counts messages the NATS client dropped because
 	// the callbacks fell behind.
 	SlowConsumerDropped uint64
+	// Expired counts stream messages dropped by the stream's age or size
+	// bound before the aggregator read them.
+	Expired uint64
+	// Pending is the number of stream messages not yet delivered to the
+	// aggregator; -1 when unknown (core NATS, or the broker did not say).
+	Pending int64
 }
 
 // Subscriber is the aggregator's subscriptions and their counters.
@@ -68,56 +87,96 @@ type Subscriber struct {
 	log  *slog.Logger
 	subs []*nats.Subscription
 
+	// The stream's: its consumer's subscription, and the stream decoder
+	// and reused sample of the one goroutine that handles its messages.
+	stream    jetstream.Stream
+	consuming jetstream.ConsumeContext
+	dec       wire.Decoder
+	smp       report.Sample
+
 	mu      sync.Mutex
 	taken   map[string]uint64
 	refused map[string]uint64
 	dupes   uint64
+	next    uint64 // the stream sequence expected next; 0 before the first
+	expired uint64
+}
+
+func newSubscriber(sink Sink, log *slog.Logger) *Subscriber {
+	return &Subscriber{sink: sink, log: log, taken: map[string]uint64{}, refused: map[string]uint64{}}
 }
 
 // Subscribe subscribes to every sample, job event and heartbeat under
-// subj and hands them to sink.
+// subj on core NATS and hands them to sink: the explicit choice of
+// at-most-once delivery.
 func Subscribe(nc *nats.Conn, subj bus.Subjects, sink Sink, log *slog.Logger) (*Subscriber, error) {
-	s := &Subscriber{sink: sink, log: log, taken: map[string]uint64{}, refused: map[string]uint64{}}
-	for subject, h := range map[string]nats.MsgHandler{
+	s := newSubscriber(sink, log)
+	return s, s.subscribe(nc, map[string]nats.MsgHandler{
 		subj.AllSamples(): s.onSample(),
 		subj.AllJobs():    s.onJobEvent(),
 		subj.AllBeats():   s.onHeartbeat(),
-	} {
+	})
+}
+
+// subscribeBeats subscribes to the heartbeats, which stay on core NATS:
+// each supersedes the last.
+func (s *Subscriber) subscribeBeats(nc *nats.Conn, subj bus.Subjects) error {
+	return s.subscribe(nc, map[string]nats.MsgHandler{subj.AllBeats(): s.onHeartbeat()})
+}
+
+// subscribe subscribes each subject's handler and waits until the broker
+// has taken the subscriptions.
+func (s *Subscriber) subscribe(nc *nats.Conn, handlers map[string]nats.MsgHandler) error {
+	for subject, h := range handlers {
 		sub, err := nc.Subscribe(subject, h)
 		if err != nil {
 			s.Drain()
-			return nil, fmt.Errorf("subscribe %s: %w", subject, err)
+			return fmt.Errorf("subscribe %s: %w", subject, err)
 		}
 		s.subs = append(s.subs, sub)
 		// Samples arrive in bursts from thousands of nodes; give the
 		// subscription room before the client drops (and counts) any.
 		if err := sub.SetPendingLimits(1<<20, 512<<20); err != nil {
 			s.Drain()
-			return nil, fmt.Errorf("pending limits on %s: %w", subject, err)
+			return fmt.Errorf("pending limits on %s: %w", subject, err)
 		}
 	}
 	if err := nc.Flush(); err != nil {
 		s.Drain()
-		return nil, fmt.Errorf("flush subscriptions: %w", err)
+		return fmt.Errorf("flush subscriptions: %w", err)
 	}
-	return s, nil
+	return nil
 }
 
 // Drain stops taking messages once those already received are handled.
 func (s *Subscriber) Drain() {
+	if s.consuming != nil {
+		s.consuming.Drain()
+		<-s.consuming.Closed()
+	}
 	for _, sub := range s.subs {
 		_ = sub.Drain()
 	}
 }
 
-// Counts returns the counters now.
+// Counts returns the counters now; on the stream it asks the broker how
+// many messages are still to be read (at most a second).
 func (s *Subscriber) Counts() Counts {
 	s.mu.Lock()
-	c := Counts{Taken: maps.Clone(s.taken), Refused: maps.Clone(s.refused), Duplicates: s.dupes}
+	c := Counts{Taken: maps.Clone(s.taken), Refused: maps.Clone(s.refused), Duplicates: s.dupes, Expired: s.expired, Pending: -1}
 	s.mu.Unlock()
 	for _, sub := range s.subs {
 		if n, err := sub.Dropped(); err == nil {
 			c.SlowConsumerDropped += uint64(n)
+		}
+	}
+	if s.stream != nil {
+		ctx, cancel := context.WithTimeout(context.Background(), time.Second)
+		defer cancel()
+		if ci, err := s.stream.Consumer(ctx, ConsumerName); err == nil {
+			if info, err := ci.Info(ctx); err == nil {
+				c.Pending = int64(info.NumPending)
+			}
 		}
 	}
 	return c
@@ -131,7 +190,7 @@ func (s *Subscriber) onSample() nats.MsgHandler {
 			s.count(wire.KindSample, wire.Reason(err), err)
 			return
 		}
-		s.count(wire.KindSample, "", s.sink.Sample(&smp))
+		s.count(wire.KindSample, "", s.sink.Sample(&smp, Receipt{}))
 	}
 }
 
@@ -142,7 +201,7 @@ func (s *Subscriber) onJobEvent() nats.MsgHandler {
 			s.count(wire.KindJobEvent, wire.Reason(err), err)
 			return
 		}
-		s.count(wire.KindJobEvent, "", s.sink.JobEvent(&ev))
+		s.count(wire.KindJobEvent, "", s.sink.JobEvent(&ev, Receipt{}))
 	}
 }
 

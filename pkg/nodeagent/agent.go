@@ -32,6 +32,8 @@ import (
 	"strings"
 	"time"
 
+	"github.com/nats-io/nats.go"
+
 	"sluice/pkg/bus"
 	"sluice/pkg/delta"
 	"sluice/pkg/jobstate"
@@ -63,6 +65,10 @@ type Config struct {
 	NATSURL string
 	// Prefix and Cluster name the subjects (see package bus).
 	Prefix, Cluster string
+	// Delivery is how samples and job events travel; empty means
+	// bus.Stream (JetStream: a sample leaves the queue only once the
+	// stream has stored it).
+	Delivery bus.Delivery
 	// Jitter is the width of the window in which this node's sampling
 	// phase lies: each node samples at a stable offset into the interval
 	// derived from its name, so thousands of nodes do not publish in the
@@ -91,19 +97,21 @@ type Config struct {
 
 // Agent is a configured node agent.
 type Agent struct {
-	cfg    Config
-	subj   bus.Subjects
-	log    *slog.Logger
-	jobs   *jobstate.Dir
-	deltas map[string]*delta.Differ // per source kind
-	costs  map[string]*cost
-	seq    uint64    // the last sequence number a sample took
-	saved  uint64    // the highest one the sequence file allows (see saveSeq)
-	last   time.Time // end of the previous interval; zero before the first read
-	queue  *queue
-	buf    []byte
-	recs   recordCache
-	insts  []delta.Instance // reused by Collect
+	cfg     Config
+	subj    bus.Subjects
+	log     *slog.Logger
+	jobs    *jobstate.Dir
+	deltas  map[string]*delta.Differ // per source kind
+	costs   map[string]*cost
+	seq     uint64    // the last sequence number a sample took
+	saved   uint64    // the highest one the sequence file allows (see saveSeq)
+	last    time.Time // end of the previous interval; zero before the first read
+	queue   *queue
+	pub     publisher // over pubConn, made on first use
+	pubConn *nats.Conn
+	buf     []byte
+	recs    recordCache
+	insts   []delta.Instance // reused by Collect
 	// disagreed holds the jobs already logged as known to only one of
 	// hooks and cgroups.
 	disagreed map[string]bool
@@ -161,6 +169,9 @@ func New(cfg Config) (*Agent, error) {
 	}
 	subj, err := bus.NewSubjects(cfg.Prefix, cfg.Cluster)
 	if err != nil {
+		return nil, fmt.Errorf("agent: %w", err)
+	}
+	if cfg.Delivery, err = bus.ParseDelivery(string(cfg.Delivery)); err != nil {
 		return nil, fmt.Errorf("agent: %w", err)
 	}
 	jobs, err := jobstate.Open(JobsDir(cfg.StateDir))

@@ -27,6 +27,9 @@ type HookConfig struct {
 	NATSURL string
 	// Prefix and Cluster name the subjects.
 	Prefix, Cluster string
+	// Delivery is how the event travels; empty means bus.Stream (it
+	// counts as published once the stream has stored it).
+	Delivery bus.Delivery
 	// Timeout bounds the publish; zero means 2 seconds. A prolog must not
 	// hold up a job because the broker is away.
 	Timeout time.Duration
@@ -108,13 +111,20 @@ func publishEvent(ctx context.Context, cfg HookConfig, e report.JobEvent) bool {
 		return false
 	}
 	defer nc.Close()
-	if err := nc.Publish(subj.Job(cfg.Node), wire.AppendJobEvent(nil, &e)); err != nil {
+	d, err := bus.ParseDelivery(string(cfg.Delivery))
+	if err != nil {
+		log.Warn("job event not published", "err", err)
+		return false
+	}
+	pub, err := newPublisher(nc, d, subj)
+	if err != nil {
 		log.Warn("job event left for the agent to publish", "job", e.Job, "err", err)
 		return false
 	}
-	fctx, cancel := context.WithTimeout(ctx, timeout)
+	pctx, cancel := context.WithTimeout(ctx, timeout)
 	defer cancel()
-	if err := nc.FlushWithContext(fctx); err != nil {
+	m := queued{subject: subj.Job(cfg.Node), id: bus.JobEventID(&e), data: wire.AppendJobEvent(nil, &e)}
+	if _, err := pub.deliver(pctx, []queued{m}); err != nil {
 		log.Warn("job event left for the agent to publish", "job", e.Job, "err", err)
 		return false
 	}

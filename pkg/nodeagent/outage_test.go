@@ -162,7 +162,7 @@ func runOutage(t *testing.T, queueLimit int, outage uint64) ([]uint64, uint64, u
 	srv.Shutdown()
 	down := persistedSeq(state)
 	waitFor(func() bool { return persistedSeq(state) >= down+outage }, "samples taken while the broker is down")
-	natstest.StartAt(t, u.Host)
+	natstest.StartAt(t, u.Host, srv.StoreDir())
 	c.resubscribed(t)
 	px.reopen()
 	last := persistedSeq(state)
@@ -226,6 +226,9 @@ func TestConnectionThatStopsAnsweringLosesNothing(t *testing.T) {
 		require.Equal(t, uint64(i+1), s, "every sample arrives, in order: %v", seqs)
 	}
 	assert.Zero(t, dropped)
+	stored, repeats := streamed(t, srv.URL())
+	assert.GreaterOrEqual(t, len(stored), int(last), "the stream holds every sample")
+	assert.Zero(t, repeats, "what was sent again after the freeze is stored once (its message id)")
 }
 
 // proxy forwards TCP connections to a target and can freeze: while frozen

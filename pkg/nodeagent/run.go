@@ -69,11 +69,11 @@ func (a *Agent) closeSources() {
 	}
 }
 
-// Step does one interval's work on nc: publish pending job events, take
-// and queue the sample, send the queue. Run calls it on every tick; tests
-// call it directly with a controlled clock.
+// Step does one interval's work on nc: queue pending job events, take and
+// queue the sample, deliver the queue. Run calls it on every tick; tests
+// call it directly with a controlled clock (nc nil: nothing is sent).
 func (a *Agent) Step(ctx context.Context, nc *nats.Conn) {
-	a.syncJobs(nc)
+	a.syncJobs()
 	s, ok, err := a.Collect(ctx)
 	if ctx.Err() != nil {
 		return // shutting down: the interval was cut short
@@ -88,45 +88,49 @@ func (a *Agent) Step(ctx context.Context, nc *nats.Conn) {
 			return
 		}
 		a.buf = wire.AppendSample(a.buf[:0], &s)
-		a.queue.push(a.subj.Sample(a.cfg.Node), append([]byte(nil), a.buf...))
+		a.queue.push(queued{subject: a.subj.Sample(a.cfg.Node), id: bus.SampleID(s.Node, s.Seq), data: append([]byte(nil), a.buf...)})
 	}
 	a.flush(nc)
 }
 
-// flush sends the queued messages and removes them once the broker has
-// answered a flush round trip, which it does only after it has taken
-// everything sent before it. Until then they stay queued and are sent
+// flush delivers the queued messages and removes those delivered: stored
+// by the stream (the default), or taken by the broker as a flush round
+// trip confirms (core NATS). Until then they stay queued and are sent
 // again at the next flush: a connection that died without being closed (a
 // broker host that crashed, a network that dropped) shows only when the
-// round trip fails, and what was published into it would be lost. The
-// round trip timing out also drops the connection, so that samples queue
-// until a new one is up. A message sent twice is harmless: the aggregator
-// drops a sample whose node and sequence it has applied, and job events
-// merge. A nil or disconnected connection leaves everything queued.
+// answer does not come, and what was published into it would be lost. No
+// answer in time also drops the connection, so that samples queue until a
+// new one is up. A message sent twice is harmless: the stream stores a
+// message id once, the aggregator drops a sample whose node and sequence
+// it has applied, and job events merge. A nil or disconnected connection
+// leaves everything queued.
 func (a *Agent) flush(nc *nats.Conn) {
-	if nc == nil || !nc.IsConnected() {
+	if nc == nil || !nc.IsConnected() || a.queue.len() == 0 {
 		return
 	}
-	n, err := a.queue.offer(func(subject string, data []byte) error { return nc.Publish(subject, data) })
-	if err == nil && n > 0 {
-		err = nc.FlushTimeout(flushTimeout)
+	if a.pubConn != nc {
+		pub, err := newPublisher(nc, a.cfg.Delivery, a.subj)
+		if err != nil {
+			a.log.Warn("cannot publish", "err", err)
+			return
+		}
+		a.pub, a.pubConn = pub, nc
 	}
+	ctx, cancel := context.WithTimeout(context.Background(), deliverTimeout)
+	defer cancel()
+	n, err := a.pub.deliver(ctx, a.queue.items)
+	a.queue.remove(n)
 	if err != nil {
-		a.log.Debug("publish deferred", "queued", a.queue.len(), "err", err)
-		if errors.Is(err, nats.ErrTimeout) {
+		a.log.Debug("delivery deferred", "queued", a.queue.len(), "err", err)
+		if isTimeout(err) {
 			_ = nc.ForceReconnect()
 		}
-		return
 	}
-	a.queue.remove(n)
 }
 
-// flushTimeout bounds the wait for the broker's answer to a flush.
-const flushTimeout = 2 * time.Second
-
-// syncJobs publishes the job events the hooks could not and removes
-// records whose end has been published and covered by a sample.
-func (a *Agent) syncJobs(nc *nats.Conn) {
+// syncJobs queues the job events the hooks could not publish and removes
+// records whose end has been queued and covered by a sample.
+func (a *Agent) syncJobs() {
 	for _, r := range a.records() {
 		if r.StartSent && (r.End.IsZero() || r.EndSent) && r.Running(a.last) {
 			continue // nothing to do
@@ -153,7 +157,7 @@ func (a *Agent) syncJobs(nc *nats.Conn) {
 
 func (a *Agent) queueEvent(r jobstate.Record, t report.EventType) {
 	e := EventOf(r, t, a.cfg.Node)
-	a.queue.push(a.subj.Job(a.cfg.Node), wire.AppendJobEvent(nil, &e))
+	a.queue.push(queued{subject: a.subj.Job(a.cfg.Node), id: bus.JobEventID(&e), data: wire.AppendJobEvent(nil, &e)})
 }
 
 // EventOf builds the job event for a record.

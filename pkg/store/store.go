@@ -9,7 +9,8 @@
 // through [Store.Apply], one transaction per [Batch]; the aggregator batches
 // a second's worth of changes into one. Records are JSON, keyed as:
 //
-//	meta     "schema" -> "1", "watermark" -> RFC 3339 time
+//	meta     "schema" -> "1", "watermark" -> RFC 3339 time,
+//	         "stream_seq" -> the last stream sequence whose changes are saved
 //	jobs     job id -> model.JobRecord
 //	windows  job id, 0x00, 8-byte big-endian index -> model.Window
 //	flags    flag id -> model.Flag
@@ -140,13 +141,16 @@ type Batch struct {
 	Flags     []model.Flag
 	Nodes     map[string]model.SeqRecord
 	Watermark time.Time
+	// StreamSeq, if not zero, is the last stream sequence whose changes
+	// the batch holds: after a crash the aggregator reads on from the next.
+	StreamSeq uint64
 	// Days are baseline days to write (a nil Day deletes the key).
 	Days map[baseline.Key]*baseline.Day
 }
 
 // Empty reports whether the batch would write nothing.
 func (b *Batch) Empty() bool {
-	return len(b.Jobs) == 0 && len(b.GoneJobs) == 0 && len(b.Windows) == 0 && len(b.Flags) == 0 && len(b.Nodes) == 0 && b.Watermark.IsZero() && len(b.Days) == 0
+	return len(b.Jobs) == 0 && len(b.GoneJobs) == 0 && len(b.Windows) == 0 && len(b.Flags) == 0 && len(b.Nodes) == 0 && b.Watermark.IsZero() && len(b.Days) == 0 && b.StreamSeq == 0
 }
 
 // Apply writes a batch in one transaction.
@@ -180,6 +184,11 @@ func (s *Store) Apply(b *Batch) error {
 		}
 		if err := putDays(tx, b.Days); err != nil {
 			return err
+		}
+		if b.StreamSeq > 0 {
+			if err := tx.Bucket(bucketMeta).Put([]byte("stream_seq"), binary.BigEndian.AppendUint64(nil, b.StreamSeq)); err != nil {
+				return err
+			}
 		}
 		if !b.Watermark.IsZero() {
 			return tx.Bucket(bucketMeta).Put([]byte("watermark"), []byte(b.Watermark.UTC().Format(time.RFC3339Nano)))
@@ -271,9 +280,12 @@ type State struct {
 	Jobs      []model.JobRecord
 	Nodes     map[string]model.SeqRecord
 	Watermark time.Time
+	// StreamSeq is the last stream sequence whose changes are saved; 0
+	// when none is.
+	StreamSeq uint64
 }
 
-// Load reads the jobs, node sequence sets and watermark.
+// Load reads the jobs, node sequence sets, watermark and stream position.
 func (s *Store) Load() (State, error) {
 	st := State{Nodes: map[string]model.SeqRecord{}}
 	err := s.db.View(func(tx *bolt.Tx) error {
@@ -309,6 +321,9 @@ func (s *Store) Load() (State, error) {
 				return fmt.Errorf("watermark %q: %w", v, err)
 			}
 			st.Watermark = wm
+		}
+		if v := tx.Bucket(bucketMeta).Get([]byte("stream_seq")); len(v) == 8 {
+			st.StreamSeq = binary.BigEndian.Uint64(v)
 		}
 		return nil
 	})
