@@ -252,6 +252,14 @@ func TestAgentsToMetricsExact(t *testing.T) {
 
 	// Live window: mean over the job's nodes of each node's rate.
 	assert.InDelta(t, r.expectRate(stormNodes, []string{"create"}, liveFrom, last), storm.Live[metric.Creates], 1e-9)
+	// Every sample counted once: the job's totals are exactly what its
+	// nodes' counter files advanced since the agents' first reading.
+	var creates uint64
+	for _, n := range stormNodes {
+		creates += r.totals[last][n]["create"] - r.totals[0][n]["create"]
+	}
+	require.Positive(t, creates)
+	assert.Equal(t, creates, storm.Totals[metric.Creates])
 	assert.InDelta(t, r.expectRate(stormNodes, []string{"getattr"}, liveFrom, last), storm.Live[metric.StatOps], 1e-9)
 	assert.InDelta(t, r.expectRate(stormNodes, []string{"unlink"}, liveFrom, last), storm.Live[metric.Removes], 1e-9)
 	assert.InDelta(t, r.expectRate([]string{"bw003"}, []string{"write_bytes.sum"}, liveFrom, last), writer.Live[metric.WriteBytes], 1e-6)

@@ -31,6 +31,7 @@ import (
 	"log/slog"
 	"maps"
 	"sync"
+	"sync/atomic"
 	"time"
 
 	"github.com/nats-io/nats.go"
@@ -87,10 +88,18 @@ type Subscriber struct {
 	log  *slog.Logger
 	subs []*nats.Subscription
 
-	// The stream's: its consumer's subscription, and the stream decoder
-	// and reused sample of the one goroutine that handles its messages.
+	// The stream's: its consumer's subscription, resets to read it again
+	// from a place passed over, and the decoder and reused sample of the
+	// one goroutine that handles its messages.
 	stream    jetstream.Stream
+	subj      bus.Subjects
+	opts      StreamOptions
+	ccMu      sync.Mutex // guards consuming and draining
 	consuming jetstream.ConsumeContext
+	draining  bool
+	resets    chan uint64   // buffered 1; resetting says one is on its way
+	done      chan struct{} // closed by Drain
+	resetting atomic.Bool
 	dec       wire.Decoder
 	smp       report.Sample
 
@@ -150,9 +159,14 @@ func (s *Subscriber) subscribe(nc *nats.Conn, handlers map[string]nats.MsgHandle
 
 // Drain stops taking messages once those already received are handled.
 func (s *Subscriber) Drain() {
-	if s.consuming != nil {
-		s.consuming.Drain()
-		<-s.consuming.Closed()
+	s.ccMu.Lock()
+	cc, already := s.consuming, s.draining
+	s.draining = true
+	s.ccMu.Unlock()
+	if cc != nil && !already {
+		cc.Drain()
+		<-cc.Closed()
+		close(s.done)
 	}
 	for _, sub := range s.subs {
 		_ = sub.Drain()

@@ -1,6 +1,7 @@
 package ingest
 
 import (
+	"cmp"
 	"context"
 	"errors"
 	"fmt"
@@ -54,6 +55,14 @@ const ConsumerName = "sluice-aggregator"
 // hands every message to sink with its receipt, in stream order, until
 // the returned subscriber is drained; heartbeats come on core NATS as
 // before. A stream that cannot be created stops it with an error saying so.
+//
+// The consumer acknowledges all: a receipt acknowledges every earlier
+// message too. So a message that never reached the aggregator (in flight
+// on a connection that broke) must not be passed over: when a message
+// comes after a gap, a gap the stream still holds is read again from its
+// start (the consumer is reset there; what was applied already is dropped
+// by the (node, sequence) check), and only what the stream no longer holds
+// is counted as lost.
 func Consume(ctx context.Context, nc *nats.Conn, subj bus.Subjects, sink Sink, o StreamOptions, log *slog.Logger) (*Subscriber, error) {
 	js, err := jetstream.New(nc)
 	if err != nil {
@@ -63,30 +72,78 @@ func Consume(ctx context.Context, nc *nats.Conn, subj bus.Subjects, sink Sink, o
 	if err != nil {
 		return nil, fmt.Errorf("create the stream %s on the broker at %s: %w (the broker needs JetStream, with room for the stream's bytes)", subj.StreamName(), nc.ConnectedUrlRedacted(), err)
 	}
-	cons, err := resetConsumer(ctx, js, st, subj, o)
-	if err != nil {
-		return nil, err
-	}
 	s := newSubscriber(sink, log)
-	s.stream, s.next = st, o.From
-	if err := s.subscribeBeats(nc, subj); err != nil {
+	s.stream, s.subj, s.opts = st, subj, o
+	s.resets, s.done = make(chan uint64, 1), make(chan struct{})
+	if err := s.consumeFrom(ctx, o.From); err != nil {
 		return nil, err
 	}
-	cc, err := cons.Consume(s.onStreamMsg, jetstream.PullMaxMessages(1000),
-		jetstream.ConsumeErrHandler(func(_ jetstream.ConsumeContext, err error) {
-			log.Warn("reading the stream", "err", err)
-		}))
-	if err != nil {
+	if err := s.subscribeBeats(nc, subj); err != nil {
 		s.Drain()
-		return nil, fmt.Errorf("read the stream %s: %w", subj.StreamName(), err)
+		return nil, err
 	}
-	s.consuming = cc
+	go s.resetLoop()
 	return s, nil
 }
 
-// resetConsumer makes the durable consumer afresh at o.From: whatever the
+// consumeFrom resets the durable consumer to seq and reads from it,
+// unless the subscriber is being drained.
+func (s *Subscriber) consumeFrom(ctx context.Context, seq uint64) error {
+	s.ccMu.Lock()
+	defer s.ccMu.Unlock()
+	if s.draining {
+		return nil
+	}
+	cons, err := resetConsumer(ctx, s.stream, s.subj, s.opts, seq)
+	if err != nil {
+		return err
+	}
+	s.mu.Lock()
+	s.next = seq
+	s.mu.Unlock()
+	cc, err := cons.Consume(s.onStreamMsg, jetstream.PullMaxMessages(1000),
+		jetstream.ConsumeErrHandler(func(_ jetstream.ConsumeContext, err error) {
+			s.log.Warn("reading the stream", "err", err)
+		}))
+	if err != nil {
+		return fmt.Errorf("read the stream %s: %w", s.subj.StreamName(), err)
+	}
+	s.consuming = cc
+	return nil
+}
+
+// resetLoop reads the stream again from each place onStreamMsg found
+// missing, until the subscriber is drained.
+func (s *Subscriber) resetLoop() {
+	for {
+		var seq uint64
+		select {
+		case <-s.done:
+			return
+		case seq = <-s.resets:
+		}
+		s.ccMu.Lock()
+		cc := s.consuming
+		s.ccMu.Unlock()
+		cc.Stop()
+		<-cc.Closed()
+		for {
+			ctx, cancel := context.WithTimeout(context.Background(), 10*time.Second)
+			err := s.consumeFrom(ctx, seq)
+			cancel()
+			if err == nil {
+				break
+			}
+			s.log.Warn("reading the stream again", "from", seq, "err", err)
+			time.Sleep(time.Second)
+		}
+		s.resetting.Store(false)
+	}
+}
+
+// resetConsumer makes the durable consumer afresh at from: whatever the
 // broker thinks the last reader had, the state file says where to go on.
-func resetConsumer(ctx context.Context, js jetstream.JetStream, st jetstream.Stream, subj bus.Subjects, o StreamOptions) (jetstream.Consumer, error) {
+func resetConsumer(ctx context.Context, st jetstream.Stream, subj bus.Subjects, o StreamOptions, from uint64) (jetstream.Consumer, error) {
 	if err := st.DeleteConsumer(ctx, ConsumerName); err != nil && !errors.Is(err, jetstream.ErrConsumerNotFound) {
 		return nil, fmt.Errorf("reset the consumer %s of stream %s: %w", ConsumerName, subj.StreamName(), err)
 	}
@@ -94,16 +151,13 @@ func resetConsumer(ctx context.Context, js jetstream.JetStream, st jetstream.Str
 		Durable:        ConsumerName,
 		Description:    "the Sluice aggregator; it acknowledges what its state file has saved",
 		AckPolicy:      jetstream.AckAllPolicy,
-		AckWait:        o.AckWait,
+		AckWait:        cmp.Or(o.AckWait, 30*time.Second),
 		MaxAckPending:  1 << 20,
 		FilterSubjects: []string{subj.AllSamples(), subj.AllJobs()},
 		DeliverPolicy:  jetstream.DeliverAllPolicy,
 	}
-	if cfg.AckWait == 0 {
-		cfg.AckWait = 30 * time.Second
-	}
-	if o.From > 1 {
-		cfg.DeliverPolicy, cfg.OptStartSeq = jetstream.DeliverByStartSequencePolicy, o.From
+	if from > 1 {
+		cfg.DeliverPolicy, cfg.OptStartSeq = jetstream.DeliverByStartSequencePolicy, from
 	}
 	cons, err := st.CreateConsumer(ctx, cfg)
 	if err != nil {
@@ -112,17 +166,24 @@ func resetConsumer(ctx context.Context, js jetstream.JetStream, st jetstream.Str
 	return cons, nil
 }
 
-// onStreamMsg takes one message of the stream: it counts the messages the
-// stream dropped before they were read (its age or byte bound), checks the
-// message's de-duplication key against its body, and hands it to the sink.
+// onStreamMsg takes one message of the stream: it checks nothing was
+// passed over before it, checks the message's de-duplication key against
+// its body, and hands it to the sink.
 func (s *Subscriber) onStreamMsg(m jetstream.Msg) {
+	if s.resetting.Load() {
+		return // the stream is being read again from an earlier place
+	}
 	meta, err := m.Metadata()
 	if err != nil {
 		s.log.Warn("stream message without metadata", "err", err)
 		return
 	}
 	r := Receipt{Seq: meta.Sequence.Stream, msg: m}
-	s.noteGap(r.Seq)
+	if again := s.passedOver(r.Seq); again > 0 {
+		s.resetting.Store(true)
+		s.resets <- again // buffered, and no other is on its way
+		return
+	}
 	data, id := m.Data(), m.Headers().Get(bus.MsgIDHeader)
 	k, err := wire.Peek(data)
 	switch {
@@ -182,15 +243,52 @@ func (s *Subscriber) refuseAt(k wire.Kind, reason string, err error, r Receipt) 
 	s.sink.Skipped(r)
 }
 
-// noteGap counts the messages between the one expected next and seq: the
-// stream dropped them (age or size bound) before the aggregator read them.
-func (s *Subscriber) noteGap(seq uint64) {
+// passedOver looks at the messages between the one expected next and
+// seq. Those the stream no longer holds (its age or size bound, or a
+// deletion) are counted as lost; the first it still holds is returned, to
+// be read again from there. 0 means nothing is missing.
+func (s *Subscriber) passedOver(seq uint64) uint64 {
+	s.mu.Lock()
+	next := s.next
+	s.mu.Unlock()
+	if next == 0 || seq <= next {
+		s.advance(seq)
+		return 0
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
+	defer cancel()
+	lost := uint64(0)
+	if info, err := s.stream.Info(ctx); err == nil && info.State.FirstSeq > next {
+		lost = min(info.State.FirstSeq, seq) - next
+		next += lost
+	}
+	for ; next < seq; next++ {
+		_, err := s.stream.GetMsg(ctx, next)
+		if err == nil || !errors.Is(err, jetstream.ErrMsgNotFound) {
+			s.countLost(lost, next)
+			return next // still there (or the broker cannot say): read it
+		}
+		lost++
+	}
+	s.countLost(lost, seq)
+	s.advance(seq)
+	return 0
+}
+
+func (s *Subscriber) countLost(n, before uint64) {
+	if n == 0 {
+		return
+	}
+	s.mu.Lock()
+	s.expired += n
+	s.mu.Unlock()
+	s.log.Warn("the stream no longer held messages before they were read", "lost", n, "before", before)
+}
+
+// advance notes seq as read.
+func (s *Subscriber) advance(seq uint64) {
 	s.mu.Lock()
 	defer s.mu.Unlock()
-	if s.next > 0 && seq > s.next {
-		s.expired += seq - s.next
-		s.log.Warn("the stream dropped messages before they were read", "from", s.next, "to", seq-1)
-	}
 	if seq >= s.next {
 		s.next = seq + 1
 	}

@@ -86,10 +86,13 @@ type Summary struct {
 	LiveGrades coding.Grades `json:"live_grades"`
 	// Signature is each metric's signature in compact text form
 	// (signature.Signature.Text), keyed by metric name.
-	Signature   map[string]string `json:"signature"`
-	Windows     int               `json:"windows"` // closed windows
-	LastWindow  *Window           `json:"last_window,omitempty"`
-	ActiveFlags []Flag            `json:"flags"`
+	Signature map[string]string `json:"signature"`
+	Windows   int               `json:"windows"` // closed windows
+	// Totals is everything the job did, per metric (bytes or operations),
+	// summed over its nodes, each sample counted once.
+	Totals      metric.Values `json:"totals"`
+	LastWindow  *Window       `json:"last_window,omitempty"`
+	ActiveFlags []Flag        `json:"flags"`
 	// PatternScores is each pattern's latest score for the job, for the
 	// patterns that matched it lately.
 	PatternScores map[string]float64 `json:"pattern_scores,omitempty"`

@@ -22,6 +22,8 @@ type JobRecord struct {
 	Closed     int       `json:"closed"`
 	LastWindow *Window   `json:"last_window,omitempty"`
 	LastSample time.Time `json:"last_sample,omitzero"`
+	// Totals is every value applied to the job, per metric.
+	Totals metric.Values `json:"totals"`
 	// LiveRates, LiveLevels and LiveNodes are the latest live evaluation.
 	LiveRates  metric.Rates  `json:"live_rates"`
 	LiveLevels coding.Levels `json:"live_levels"`

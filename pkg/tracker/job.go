@@ -28,6 +28,9 @@ type job struct {
 	closed     int
 	lastWindow *model.Window
 	lastSample time.Time
+	// totals is every value applied to the job, per metric: what it did,
+	// counted once.
+	totals metric.Values
 	// liveRates, liveLevels and liveNodes are the latest live evaluation.
 	liveRates  metric.Rates
 	liveLevels coding.Levels

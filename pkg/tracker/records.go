@@ -63,7 +63,7 @@ func (t *Tracker) Restore(jobs []model.JobRecord, nodes map[string]model.SeqReco
 func (j *job) record() model.JobRecord {
 	sig, _ := j.signature.MarshalBinary() // cannot fail
 	r := model.JobRecord{
-		Meta: j.meta, Closed: j.closed, LastSample: j.lastSample,
+		Meta: j.meta, Closed: j.closed, LastSample: j.lastSample, Totals: j.totals,
 		LiveRates: j.liveRates, LiveLevels: j.liveLevels, LiveNodes: j.liveNodes,
 		Streaks: j.streaks.Records(), FlagsRaised: j.flagsRaised, Finished: j.finished,
 		Live:      make(map[string][]model.SliceRecord, len(j.live)),
@@ -96,7 +96,7 @@ func (j *job) record() model.JobRecord {
 func jobOf(r *model.JobRecord) *job {
 	j := newJob(r.Meta)
 	j.meta.Nodes = slices.Clone(r.Meta.Nodes)
-	j.closed, j.lastSample = r.Closed, r.LastSample
+	j.closed, j.lastSample, j.totals = r.Closed, r.LastSample, r.Totals
 	j.liveRates, j.liveLevels, j.liveNodes = r.LiveRates, r.LiveLevels, r.LiveNodes
 	j.streaks = flagging.FromRecords(r.Streaks)
 	j.flagsRaised, j.finished = r.FlagsRaised, r.Finished

@@ -260,6 +260,7 @@ func (t *Tracker) apply(id string, s *report.Sample, v metric.Values) error {
 	secs := s.End.Sub(s.Start).Seconds()
 	j.addLive(s.Node, slice{end: s.End, seconds: secs, values: v})
 	j.addWindow(idx, s.Node, secs, v)
+	j.totals.Add(v)
 	if s.End.After(j.lastSample) {
 		j.lastSample = s.End
 	}

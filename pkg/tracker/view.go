@@ -39,6 +39,7 @@ func summarize(j *job) model.Summary {
 		LiveGrades:  j.signature.Live,
 		Signature:   make(map[string]string, metric.Count),
 		Windows:     j.closed,
+		Totals:      j.totals,
 		ActiveFlags: j.streaks.Active(),
 	}
 	if s.ActiveFlags == nil {
