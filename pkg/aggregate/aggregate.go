@@ -67,6 +67,9 @@ type Options struct {
 	StorePath string
 	// StoreLockTimeout bounds the wait for the store's lock; zero means 1s.
 	StoreLockTimeout time.Duration
+	// StoreBeforeApply is store.Options.BeforeApply: for tests of a
+	// failing disk.
+	StoreBeforeApply func() error
 	// Listen is the HTTP address; empty means 127.0.0.1:9713. Use
 	// "127.0.0.1:0" for a free port.
 	Listen string
@@ -219,7 +222,7 @@ func (s *Service) NATSURL() string { return s.natsURL }
 
 // Run serves until ctx ends. It returns an error if start-up fails.
 func (s *Service) Run(ctx context.Context) error {
-	st, err := store.Open(s.opts.StorePath, store.Options{LockTimeout: s.opts.StoreLockTimeout})
+	st, err := store.Open(s.opts.StorePath, store.Options{LockTimeout: s.opts.StoreLockTimeout, BeforeApply: s.opts.StoreBeforeApply})
 	if err != nil {
 		return err
 	}

@@ -3,11 +3,13 @@ package aggregate_test
 import (
 	"context"
 	"encoding/json"
+	"errors"
 	"io"
 	"net/http"
 	"path/filepath"
 	"strings"
 	"sync"
+	"sync/atomic"
 	"testing"
 	"time"
 
@@ -75,6 +77,8 @@ type rig struct {
 	sent   [][]byte // every sample message on the bus, recorded
 	sentMu sync.Mutex
 	lib    *matcher.Library // patterns the service matches; nil for none
+	// diskFails makes the service's state file writes fail while set.
+	diskFails atomic.Bool
 }
 
 func newRig(t *testing.T) *rig { return newRigWith(t, nil) }
@@ -123,6 +127,12 @@ func (r *rig) startService() {
 		// A short duplicate window lets the replay test store a sample a
 		// second time, as a retry after the window would be.
 		Stream: bus.StreamOptions{Duplicates: 200 * time.Millisecond},
+		StoreBeforeApply: func() error {
+			if r.diskFails.Load() {
+				return errors.New("input/output error (the test's failing disk)")
+			}
+			return nil
+		},
 	})
 	require.NoError(r.t, err)
 	stop, err := svc.Start()

@@ -71,12 +71,18 @@ var ErrSchema = errors.New("unsupported store schema")
 type Options struct {
 	// LockTimeout bounds the wait for the file lock; zero means 1 second.
 	LockTimeout time.Duration
+	// BeforeApply, if set, is asked before each batch is written; an error
+	// fails the write as a full or broken disk would, and nothing of the
+	// batch is kept. Tests use it: a disk that fails to order cannot be
+	// made on a shared test machine.
+	BeforeApply func() error
 }
 
 // Store is an open state file.
 type Store struct {
 	db   *bolt.DB
 	path string
+	opts Options
 }
 
 // Open opens or creates the file at path.
@@ -91,7 +97,7 @@ func Open(path string, opts Options) (*Store, error) {
 	if err != nil {
 		return nil, fmt.Errorf("open %s: %w", path, err)
 	}
-	s := &Store{db: db, path: path}
+	s := &Store{db: db, path: path, opts: opts}
 	if err := s.init(); err != nil {
 		db.Close()
 		return nil, err
@@ -156,6 +162,11 @@ func (b *Batch) Empty() bool {
 // Apply writes a batch in one transaction.
 func (s *Store) Apply(b *Batch) error {
 	err := s.db.Update(func(tx *bolt.Tx) error {
+		if s.opts.BeforeApply != nil {
+			if err := s.opts.BeforeApply(); err != nil {
+				return err
+			}
+		}
 		for i := range b.Jobs {
 			if err := putJob(tx, &b.Jobs[i]); err != nil {
 				return err
