@@ -101,7 +101,9 @@ func (s *Subscriber) consumeFrom(ctx context.Context, seq uint64) error {
 	s.mu.Lock()
 	s.next = seq
 	s.mu.Unlock()
-	cc, err := cons.Consume(s.onStreamMsg, jetstream.PullMaxMessages(1000),
+	// Short pulls and heartbeats: after a broker restart the consumer
+	// notices within seconds, not the default half minute.
+	cc, err := cons.Consume(s.onStreamMsg, jetstream.PullMaxMessages(1000), jetstream.PullExpiry(5*time.Second), jetstream.PullHeartbeat(2*time.Second),
 		jetstream.ConsumeErrHandler(func(_ jetstream.ConsumeContext, err error) {
 			s.log.Warn("reading the stream", "err", err)
 		}))

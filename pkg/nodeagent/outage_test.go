@@ -1,16 +1,13 @@
 package nodeagent_test
 
 import (
-	"bytes"
 	"context"
-	"net"
 	"net/url"
 	"os"
 	"path/filepath"
 	"strconv"
 	"strings"
 	"sync"
-	"sync/atomic"
 	"testing"
 	"time"
 
@@ -20,6 +17,7 @@ import (
 
 	"sluice/pkg/bus"
 	"sluice/pkg/internal/natstest"
+	"sluice/pkg/internal/proxytest"
 	"sluice/pkg/nodeagent"
 	"sluice/pkg/report"
 	"sluice/pkg/source"
@@ -142,8 +140,8 @@ func runOutage(t *testing.T, queueLimit int, outage uint64) ([]uint64, uint64, u
 	u, err := url.Parse(srv.URL())
 	require.NoError(t, err)
 	c := collect(t, srv.URL())
-	px := startProxy(t, u.Host)
-	state := runAgent(t, px.url(), queueLimit)
+	px := proxytest.Start(t, u.Host)
+	state := runAgent(t, px.NATSURL(), queueLimit)
 
 	waitFor := func(cond func() bool, what string) {
 		require.Eventually(t, cond, 20*time.Second, 10*time.Millisecond, what)
@@ -151,7 +149,7 @@ func runOutage(t *testing.T, queueLimit int, outage uint64) ([]uint64, uint64, u
 	waitFor(func() bool { s, _ := c.snapshot(); return len(s) >= 3 }, "first samples")
 	beat := []byte(bus.Subjects{Prefix: bus.DefaultPrefix, Cluster: bus.DefaultCluster}.Beat("bw007") + " ")
 	select {
-	case <-px.cutAt(beat):
+	case <-px.CutAt(beat):
 	case <-time.After(20 * time.Second):
 		require.FailNow(t, "the agent sent no heartbeat to be cut off at")
 	}
@@ -164,7 +162,7 @@ func runOutage(t *testing.T, queueLimit int, outage uint64) ([]uint64, uint64, u
 	waitFor(func() bool { return persistedSeq(state) >= down+outage }, "samples taken while the broker is down")
 	natstest.StartAt(t, u.Host, srv.StoreDir())
 	c.resubscribed(t)
-	px.reopen()
+	px.Reopen()
 	last := persistedSeq(state)
 	waitFor(func() bool { s, _ := c.snapshot(); return len(s) > 0 && s[len(s)-1] > last }, "catching up after the restart")
 	c.mu.Lock()
@@ -205,19 +203,19 @@ func TestOutageBeyondTheBoundDropsTheOldestAndSaysSo(t *testing.T) {
 func TestConnectionThatStopsAnsweringLosesNothing(t *testing.T) {
 	srv := natstest.Start(t)
 	c := collect(t, srv.URL())
-	px := startProxy(t, strings.TrimPrefix(srv.URL(), "nats://"))
-	state := runAgent(t, px.url(), 0)
+	px := proxytest.Start(t, strings.TrimPrefix(srv.URL(), "nats://"))
+	state := runAgent(t, px.NATSURL(), 0)
 
 	waitFor := func(cond func() bool, what string) {
 		require.Eventually(t, cond, 30*time.Second, 10*time.Millisecond, what)
 	}
 	waitFor(func() bool { s, _ := c.snapshot(); return len(s) >= 3 }, "first samples")
-	px.freeze(true)
+	px.Freeze(true)
 	frozenAt := persistedSeq(state)
 	// Long enough for the flush round trip to time out (2 s) and for
 	// samples to be taken meanwhile.
 	time.Sleep(3 * time.Second)
-	px.freeze(false)
+	px.Freeze(false)
 	last := persistedSeq(state)
 	require.Greater(t, last, frozenAt, "samples were taken while the network was frozen")
 	waitFor(func() bool { s, _ := c.snapshot(); return len(s) > 0 && s[len(s)-1] >= last }, "catching up")
@@ -229,119 +227,4 @@ func TestConnectionThatStopsAnsweringLosesNothing(t *testing.T) {
 	stored, repeats := streamed(t, srv.URL())
 	assert.GreaterOrEqual(t, len(stored), int(last), "the stream holds every sample")
 	assert.Zero(t, repeats, "what was sent again after the freeze is stored once (its message id)")
-}
-
-// proxy forwards TCP connections to a target and can freeze: while frozen
-// it drops every byte both ways but closes nothing, so neither end learns
-// that the other has stopped answering. It can also cut its client off at
-// a given point of what the client sends, and then refuse connections
-// until it reopens.
-type proxy struct {
-	ln     net.Listener
-	target string
-	frozen atomic.Bool
-
-	mu       sync.Mutex
-	marker   []byte        // cut at the first read from the client holding it
-	cut      chan struct{} // closed when the cut is made
-	refusing bool
-}
-
-func startProxy(t *testing.T, target string) *proxy {
-	ln, err := net.Listen("tcp", "127.0.0.1:0")
-	require.NoError(t, err)
-	p := &proxy{ln: ln, target: target}
-	t.Cleanup(func() { ln.Close() })
-	go p.serve()
-	return p
-}
-
-func (p *proxy) url() string    { return "nats://" + p.ln.Addr().String() }
-func (p *proxy) freeze(on bool) { p.frozen.Store(on) }
-
-// cutAt makes the proxy close the client's connection at the first read
-// from it that holds marker, without forwarding that read, and refuse
-// connections from then on until reopen. The channel is closed once the
-// cut is made.
-func (p *proxy) cutAt(marker []byte) <-chan struct{} {
-	p.mu.Lock()
-	defer p.mu.Unlock()
-	p.marker, p.cut = marker, make(chan struct{})
-	return p.cut
-}
-
-// reopen lets connections through again.
-func (p *proxy) reopen() {
-	p.mu.Lock()
-	defer p.mu.Unlock()
-	p.refusing = false
-}
-
-func (p *proxy) isRefusing() bool {
-	p.mu.Lock()
-	defer p.mu.Unlock()
-	return p.refusing
-}
-
-// cutting reports whether the client is to be cut off at data, and if so
-// makes the cut known and starts refusing.
-func (p *proxy) cutting(data []byte) bool {
-	p.mu.Lock()
-	defer p.mu.Unlock()
-	if p.marker == nil || !bytes.Contains(data, p.marker) {
-		return false
-	}
-	p.marker, p.refusing = nil, true
-	close(p.cut)
-	return true
-}
-
-func (p *proxy) serve() {
-	for {
-		client, err := p.ln.Accept()
-		if err != nil {
-			return
-		}
-		if p.isRefusing() {
-			client.Close()
-			continue
-		}
-		server, err := net.Dial("tcp", p.target)
-		if err != nil {
-			client.Close()
-			continue
-		}
-		go p.pump(server, client, true)
-		go p.pump(client, server, false)
-	}
-}
-
-// pump copies src to dst, dropping what it reads while frozen, and closes
-// both when either fails or, from the client (fromClient), when a read
-// holds the marker to cut at. The marker is looked for in each read with
-// the end of the one before, in case it is split between the two.
-func (p *proxy) pump(dst, src net.Conn, fromClient bool) {
-	defer dst.Close()
-	defer src.Close()
-	buf := make([]byte, 32<<10)
-	var prev []byte
-	for {
-		n, err := src.Read(buf)
-		if err != nil {
-			return
-		}
-		if p.frozen.Load() {
-			continue
-		}
-		if fromClient {
-			seen := append(prev, buf[:n]...)
-			if p.cutting(seen) {
-				return
-			}
-			prev = bytes.Clone(seen[max(0, len(seen)-64):])
-		}
-		if _, err := dst.Write(buf[:n]); err != nil {
-			return
-		}
-	}
 }

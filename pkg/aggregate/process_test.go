@@ -1,7 +1,8 @@
-package main
+package aggregate_test
 
 import (
 	"bytes"
+	"cmp"
 	"context"
 	"fmt"
 	"math/rand/v2"
@@ -16,9 +17,12 @@ import (
 	"testing"
 	"time"
 
+	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
 	"sluice/pkg/api"
+	"sluice/pkg/internal/natstest"
+	"sluice/pkg/internal/proxytest"
 	"sluice/pkg/mapping"
 	"sluice/pkg/metric"
 	"sluice/pkg/sim"
@@ -36,6 +40,10 @@ type crashRig struct {
 	aggCmd             *exec.Cmd
 	aggOut             *bytes.Buffer
 	agents             []*exec.Cmd
+	// aggBroker and agentBroker, when set, are the external broker as the
+	// aggregator and the agents reach it; unset, the aggregator runs its
+	// embedded broker and everyone reaches that.
+	aggBroker, agentBroker string
 }
 
 // crashScenario: two jobs of three and two nodes that create, stat and
@@ -55,14 +63,39 @@ func crashScenario() sim.Scenario {
 	}
 }
 
+// binaries holds the agent and aggregator built once for every test of
+// the package that runs them.
+var binaries struct {
+	once sync.Once
+	dir  string
+	err  error
+}
+
+// TestMain removes the built binaries after the tests.
+func TestMain(m *testing.M) {
+	code := m.Run()
+	if binaries.dir != "" {
+		os.RemoveAll(binaries.dir)
+	}
+	os.Exit(code)
+}
+
 func buildBinaries(t *testing.T) (agg, agent string) {
 	t.Helper()
-	dir := t.TempDir()
-	for _, b := range []string{"agent", "aggregator"} {
-		out, err := exec.Command("go", "build", "-o", filepath.Join(dir, b), "sluice/"+b).CombinedOutput()
-		require.NoError(t, err, "build %s: %s", b, out)
-	}
-	return filepath.Join(dir, "aggregator"), filepath.Join(dir, "agent")
+	binaries.once.Do(func() {
+		if binaries.dir, binaries.err = os.MkdirTemp("", "sluice-bin-"); binaries.err != nil {
+			return
+		}
+		for _, b := range []string{"agent", "aggregator"} {
+			out, err := exec.Command("go", "build", "-o", filepath.Join(binaries.dir, b), "sluice/"+b).CombinedOutput()
+			if err != nil {
+				binaries.err = fmt.Errorf("build %s: %w: %s", b, err, out)
+				return
+			}
+		}
+	})
+	require.NoError(t, binaries.err)
+	return filepath.Join(binaries.dir, "aggregator"), filepath.Join(binaries.dir, "agent")
 }
 
 func freePort(t *testing.T) int {
@@ -83,16 +116,23 @@ func newCrashRig(t *testing.T) *crashRig {
 	return r
 }
 
-func (r *crashRig) natsURL() string { return fmt.Sprintf("nats://127.0.0.1:%d", r.natsPort) }
-func (r *crashRig) webURL() string  { return fmt.Sprintf("http://127.0.0.1:%d", r.webPort) }
+// agentsURL is the broker as the agents and hooks reach it.
+func (r *crashRig) agentsURL() string {
+	return cmp.Or(r.agentBroker, fmt.Sprintf("nats://127.0.0.1:%d", r.natsPort))
+}
+func (r *crashRig) webURL() string { return fmt.Sprintf("http://127.0.0.1:%d", r.webPort) }
 
 // startAggregator starts the aggregator on the rig's files and ports and
 // waits until it answers.
 func (r *crashRig) startAggregator() {
 	r.aggOut = &bytes.Buffer{}
-	cmd := exec.Command(r.agg, "run", "--store.path", filepath.Join(r.dir, "aggregator.db"),
-		"--nats.embedded.listen", fmt.Sprintf("127.0.0.1:%d", r.natsPort), "--web.listen", fmt.Sprintf("127.0.0.1:%d", r.webPort),
-		"--window.length", "20s", "--window.live", "5s", "--window.grace", "1s", "--window.tick", "500ms", "--log.level", "warn")
+	broker := []string{"--nats.embedded.listen", fmt.Sprintf("127.0.0.1:%d", r.natsPort)}
+	if r.aggBroker != "" {
+		broker = []string{"--nats.url", r.aggBroker}
+	}
+	args := append([]string{"run", "--store.path", filepath.Join(r.dir, "aggregator.db"), "--web.listen", fmt.Sprintf("127.0.0.1:%d", r.webPort),
+		"--window.length", "20s", "--window.live", "5s", "--window.grace", "1s", "--window.tick", "500ms", "--log.level", "warn"}, broker...)
+	cmd := exec.Command(r.agg, args...)
 	cmd.Stdout, cmd.Stderr = r.aggOut, r.aggOut
 	require.NoError(r.t, cmd.Start())
 	r.aggCmd = cmd
@@ -117,7 +157,7 @@ func (r *crashRig) announce() {
 	for _, j := range r.sim.Scenario().Jobs {
 		for _, n := range j.Nodes {
 			out, err := exec.Command(r.agentBin, "job", "start", "--id", j.ID, "--node", n, "--nodes", strings.Join(j.Nodes, ","),
-				"--user", j.User, "--name", j.Name, "--state.dir", r.stateDir(n), "--nats.url", r.natsURL()).CombinedOutput()
+				"--user", j.User, "--name", j.Name, "--state.dir", r.stateDir(n), "--nats.url", r.agentsURL()).CombinedOutput()
 			require.NoError(r.t, err, "prolog of %s on %s: %s", j.ID, n, out)
 		}
 	}
@@ -129,7 +169,7 @@ func (r *crashRig) stateDir(node string) string { return filepath.Join(r.dir, "s
 func (r *crashRig) startAgents() {
 	for _, n := range r.sim.Scenario().Nodes {
 		cmd := exec.Command(r.agentBin, "run", "--node", n, "--interval", "200ms", "--jitter=-1s", "--sources", "lustre",
-			"--source.lustre.root", r.sim.LliteRoot(n), "--state.dir", r.stateDir(n), "--nats.url", r.natsURL(),
+			"--source.lustre.root", r.sim.LliteRoot(n), "--state.dir", r.stateDir(n), "--nats.url", r.agentsURL(),
 			"--jobs.from", "hooks", "--queue.limit", "100000", "--log.level", "warn")
 		cmd.Stderr = os.Stderr
 		require.NoError(r.t, cmd.Start())
@@ -230,20 +270,75 @@ func TestKilledAggregatorLosesNothing(t *testing.T) {
 	time.Sleep(2 * time.Second)
 	close(stop)
 	<-stepping
+	r.requireExact()
+}
+
+// requireExact waits until the aggregator's totals of every job equal
+// what its nodes' counter files advanced, and fails if they never do.
+func (r *crashRig) requireExact() {
+	t := r.t
 	for _, a := range r.agents {
 		require.NoError(t, a.Process.Signal(syscall.Signal(0)), "every agent still runs")
 	}
-	want := r.expected()
+	want, began := r.expected(), time.Now()
 	require.Positive(t, want["91001"][metric.Creates])
 	var got map[string]metric.Values
-	require.Eventually(t, func() bool {
+	ok := assert.Eventually(t, func() bool {
 		var err error
 		got, err = r.totals()
 		return err == nil && got["91001"] == want["91001"] && got["91002"] == want["91002"]
-	}, 60*time.Second, 200*time.Millisecond, "totals after the crashes")
+	}, 60*time.Second, 200*time.Millisecond, "totals")
+	if ok {
+		t.Logf("totals exact %s after the counter files stopped", time.Since(began).Round(100*time.Millisecond))
+		return
+	}
 	for id := range want {
 		for m := range metric.Count {
-			require.Equal(t, want[id][m], got[id][m], "job %s %s", id, m)
+			assert.Equal(t, want[id][m], got[id][m], "job %s %s", id, m)
 		}
+	}
+	t.Logf("aggregator's output:\n%s", r.aggOut)
+}
+
+// TestBrokerRestartLosesNothing runs an external broker (in the test
+// process, its stream on disk) that the aggregator and the agents reach
+// through two proxies, stops it while agents publish, starts it again on
+// its store, and lets the aggregator back before the agents, or after
+// them: in both orders every job's totals end exactly at what the counter
+// files advanced.
+func TestBrokerRestartLosesNothing(t *testing.T) {
+	if testing.Short() {
+		t.Skip("runs real agent and aggregator processes")
+	}
+	for _, aggregatorFirst := range []bool{true, false} {
+		t.Run(map[bool]string{true: "aggregator back first", false: "agents back first"}[aggregatorFirst], func(t *testing.T) {
+			store, listen := t.TempDir(), fmt.Sprintf("127.0.0.1:%d", freePort(t))
+			srv := natstest.StartAt(t, listen, store)
+			toAgg, toAgents := proxytest.Start(t, listen), proxytest.Start(t, listen)
+			r := newCrashRig(t)
+			r.aggBroker, r.agentBroker = toAgg.NATSURL(), toAgents.NATSURL()
+			r.startAggregator()
+			r.announce()
+			r.startAgents()
+			stop := make(chan struct{})
+			stepping := r.run(stop)
+			time.Sleep(7 * time.Second)
+			toAgg.Cut()
+			toAgents.Cut()
+			srv.Shutdown()
+			time.Sleep(2 * time.Second) // the agents queue meanwhile
+			natstest.StartAt(t, listen, store)
+			first, second := toAgg, toAgents
+			if !aggregatorFirst {
+				first, second = toAgents, toAgg
+			}
+			first.Reopen()
+			time.Sleep(3 * time.Second)
+			second.Reopen()
+			time.Sleep(3 * time.Second)
+			close(stop)
+			<-stepping
+			r.requireExact()
+		})
 	}
 }
