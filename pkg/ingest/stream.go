@@ -101,6 +101,9 @@ func (s *Subscriber) consumeFrom(ctx context.Context, seq uint64) error {
 	s.mu.Lock()
 	s.next = seq
 	s.mu.Unlock()
+	// The reader before it is closed: from here on, messages are the new
+	// reader's, and the first ones may come before Consume returns.
+	s.resetting.Store(false)
 	// Short pulls and heartbeats: after a broker restart the consumer
 	// notices within seconds, not the default half minute.
 	cc, err := cons.Consume(s.onStreamMsg, jetstream.PullMaxMessages(1000), jetstream.PullExpiry(5*time.Second), jetstream.PullHeartbeat(2*time.Second),
@@ -139,7 +142,6 @@ func (s *Subscriber) resetLoop() {
 			s.log.Warn("reading the stream again", "from", seq, "err", err)
 			time.Sleep(time.Second)
 		}
-		s.resetting.Store(false)
 	}
 }
 
