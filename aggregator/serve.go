@@ -31,7 +31,7 @@ type serveOptions struct {
 	storePath, listen, cutsFile, logLvl  string
 	window, live, grace, tick            time.Duration
 	raiseAfter, clearAfter, maxJobSeries int
-	baseDays                             int
+	baseDays, keepDays                   int
 	baseMin                              uint64
 	baseElevated, baseCritical           float64
 	baseEvery                            time.Duration
@@ -50,6 +50,7 @@ func (o *serveOptions) register(fs *flag.FlagSet) {
 	fs.Int64Var(&o.streamBytes, "stream.max-bytes", 8<<30, "the stream's size bound in bytes; the oldest messages go first")
 	fs.DurationVar(&o.streamDups, "stream.duplicates", 10*time.Minute, "how long the stream remembers a message id, so that a publish retried after a lost acknowledgement is stored once")
 	fs.StringVar(&o.storePath, "store.path", "/var/lib/sluice/aggregator.db", "bbolt state file")
+	fs.IntVar(&o.keepDays, "store.keep-days", 30, "days the state file keeps an ended job's windows, signature, flags and acknowledgements (deleted hourly after that)")
 	fs.StringVar(&o.listen, "web.listen", "127.0.0.1:9713", "HTTP address for /metrics, /healthz and /api/v1")
 	fs.StringVar(&o.cutsFile, "cuts.file", "", "YAML file of per-node cut points overriding the defaults (metric: {elevated: N, critical: N})")
 	fs.StringVar(&o.logLvl, "log.level", "info", "log level: debug, info, warn or error")
@@ -86,7 +87,7 @@ func (o *serveOptions) service(log *slog.Logger) (aggregate.Options, error) {
 		Delivery: bus.Delivery(o.delivery), EmbeddedStoreDir: o.storeDir,
 		Stream:    bus.StreamOptions{MaxAge: o.streamAge, MaxBytes: o.streamBytes, Duplicates: o.streamDups},
 		StorePath: o.storePath, Listen: o.listen, TickEvery: o.tick, MaxJobSeries: o.maxJobSeries,
-		Logger: log, RecomputeEvery: o.baseEvery,
+		Logger: log, RecomputeEvery: o.baseEvery, KeepEnded: time.Duration(o.keepDays) * 24 * time.Hour,
 		Baseline: baseline.Options{
 			Days: o.baseDays, MinWindows: o.baseMin,
 			ElevatedQuantile: o.baseElevated, CriticalQuantile: o.baseCritical,

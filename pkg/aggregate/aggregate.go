@@ -88,6 +88,13 @@ type Options struct {
 	// FlushEvery is how often changes are written to the store; zero
 	// means 1 second.
 	FlushEvery time.Duration
+	// KeepEnded is how long the state file keeps what it holds of an
+	// ended job (windows, signature, flags, acknowledgements); zero means
+	// 30 days. It must be longer than the tracker's KeepEnded.
+	KeepEnded time.Duration
+	// PruneEvery is how often what is older than KeepEnded is deleted;
+	// zero means 1 hour (and once shortly after start-up).
+	PruneEvery time.Duration
 	// MaxJobSeries caps the per-job series on /metrics (jobs are taken most
 	// severe first while their series fit); zero means 5000.
 	MaxJobSeries int
@@ -107,6 +114,8 @@ func (o Options) withDefaults() Options {
 	o.FlushEvery = cmp.Or(o.FlushEvery, time.Second)
 	o.RecomputeEvery = cmp.Or(o.RecomputeEvery, 10*time.Minute)
 	o.MaxJobSeries = cmp.Or(o.MaxJobSeries, 5000)
+	o.KeepEnded = cmp.Or(o.KeepEnded, 30*24*time.Hour)
+	o.PruneEvery = cmp.Or(o.PruneEvery, time.Hour)
 	o.EmbeddedStoreDir = cmp.Or(o.EmbeddedStoreDir, o.StorePath+".stream")
 	if o.Logger == nil {
 		o.Logger = slog.New(slog.DiscardHandler)
@@ -135,6 +144,12 @@ type Service struct {
 	// applied is the place in the stream of the latest message applied;
 	// a flush saves it and then acknowledges it.
 	applied ingest.Receipt
+	// rebuilding is set from a restart until the stream has been read
+	// again up to the place saved, to sum the open windows again; windows
+	// are not closed meanwhile (see tickLocked).
+	rebuilding bool
+	rebuilt    chan struct{} // closed when rebuilding ends
+	pruned     store.Pruned  // totals since start-up
 
 	// pending and unreported hold what the last failed flush could not
 	// write; guarded by flushMu.
@@ -167,19 +182,23 @@ func New(opts Options) (*Service, error) {
 	if err != nil {
 		return nil, err
 	}
+	if keep := tr.Options().KeepEnded; opts.KeepEnded <= keep {
+		return nil, fmt.Errorf("the state file keeps ended jobs for %s, not longer than the %s they stay listed (--store.keep-ended)", opts.KeepEnded, keep)
+	}
 	learn, err := newLearner(opts.Baseline, tr.Options().Cuts)
 	if err != nil {
 		return nil, err
 	}
 	return &Service{
-		opts:   opts,
-		subj:   subj,
-		log:    opts.Logger,
-		tr:     tr,
-		learn:  learn,
-		agents: map[string]model.AgentStatus{},
-		att:    flagging.NewAttention(nil, nil),
-		ready:  make(chan struct{}),
+		opts:    opts,
+		subj:    subj,
+		log:     opts.Logger,
+		tr:      tr,
+		learn:   learn,
+		agents:  map[string]model.AgentStatus{},
+		att:     flagging.NewAttention(nil, nil),
+		ready:   make(chan struct{}),
+		rebuilt: make(chan struct{}),
 	}, nil
 }
 
@@ -213,6 +232,25 @@ func (s *Service) Start() (stop func() error, err error) {
 // Ready is closed once the service is subscribed and serving HTTP.
 func (s *Service) Ready() <-chan struct{} { return s.ready }
 
+// Rebuilt is closed once the open windows are summed again after a
+// restart (at once when there was nothing to sum): from then on the live
+// and open windows are what they were before it.
+func (s *Service) Rebuilt() <-chan struct{} { return s.rebuilt }
+
+// endRebuildLocked ends the rebuild; the caller holds mu.
+func (s *Service) endRebuildLocked() {
+	if s.rebuilding {
+		s.tr.EndRebuild()
+		s.rebuilding = false
+		s.log.Info("open windows summed again from the stream")
+	}
+	select {
+	case <-s.rebuilt:
+	default:
+		close(s.rebuilt)
+	}
+}
+
 // HTTPAddr is the address the HTTP server listens on, once Ready.
 func (s *Service) HTTPAddr() string { return s.httpAddr }
 
@@ -228,6 +266,10 @@ func (s *Service) Run(ctx context.Context) error {
 	}
 	s.st = st
 	defer st.Close()
+	if m := st.Migrated(); m != nil {
+		s.log.Warn("state file migrated from schema 1; the running jobs' open windows start afresh",
+			"backup", m.Backup, "records", m.Records, "running_jobs", m.Running)
+	}
 	from, err := s.restore()
 	if err != nil {
 		return err
@@ -266,7 +308,7 @@ func (s *Service) Run(ctx context.Context) error {
 	defer cancel()
 	_ = srv.Shutdown(shutCtx)
 	s.mu.Lock()
-	s.tr.Tick()
+	s.tickLocked()
 	s.mu.Unlock()
 	s.flush()
 	s.mu.Lock()
@@ -276,52 +318,62 @@ func (s *Service) Run(ctx context.Context) error {
 
 // restore loads the state file: jobs, node sequences, baseline days,
 // silences and acknowledgements; then rebuilds every job's matcher from
-// its stored windows and learns the cut points. It returns the stream
-// sequence to read on from: one after the last one saved.
-func (s *Service) restore() (from uint64, err error) {
+// its stored windows and learns the cut points. It returns where to read
+// the stream from: where the samples of the open windows begin, up to the
+// place saved, to sum them again (see rebuilding).
+func (s *Service) restore() (ingest.StreamOptions, error) {
+	var from ingest.StreamOptions
 	state, err := s.st.Load()
 	if err != nil {
-		return 0, err
+		return from, err
 	}
 	days, err := s.st.Days()
 	if err != nil {
-		return 0, err
+		return from, err
 	}
 	silences, err := s.st.Silences()
 	if err != nil {
-		return 0, err
+		return from, err
 	}
 	acks, err := s.st.Acks()
 	if err != nil {
-		return 0, err
+		return from, err
 	}
 	s.mu.Lock()
 	defer s.mu.Unlock()
 	if err := s.tr.Restore(state.Jobs, state.Nodes, state.Watermark); err != nil {
-		return 0, fmt.Errorf("restore from %s: %w", s.opts.StorePath, err)
+		return from, fmt.Errorf("restore from %s: %w", s.opts.StorePath, err)
 	}
 	if err := s.learn.load(days); err != nil {
-		return 0, err
+		return from, err
 	}
 	s.att = flagging.NewAttention(silences, acks)
 	if err := s.replayLocked(state.Jobs); err != nil {
-		return 0, err
+		return from, err
 	}
 	s.recomputeLocked()
 	s.committed = s.opts.Now()
+	from = ingest.StreamOptions{Stream: s.opts.Stream, From: state.StreamSeq + 1, Saved: state.StreamSeq}
+	if r := state.ReplayFrom; r > 0 && r <= state.StreamSeq {
+		from.From = r
+	}
+	s.rebuilding = s.opts.Delivery == bus.Stream && from.From <= from.Saved
+	if !s.rebuilding {
+		s.endRebuildLocked()
+	}
 	s.log.Info("state restored", "jobs", len(state.Jobs), "nodes", len(state.Nodes), "watermark", state.Watermark,
-		"baseline_days", len(days), "stream_seq", state.StreamSeq)
-	return state.StreamSeq + 1, nil
+		"baseline_days", len(days), "stream_seq", state.StreamSeq, "open_windows_from", from.From)
+	return from, nil
 }
 
 // subscribe reads samples and job events from the stream from stream
 // sequence from on (or from core NATS, when chosen), heartbeats from core
 // NATS.
-func (s *Service) subscribe(ctx context.Context, nc *nats.Conn, from uint64) (*ingest.Subscriber, error) {
+func (s *Service) subscribe(ctx context.Context, nc *nats.Conn, from ingest.StreamOptions) (*ingest.Subscriber, error) {
 	if s.opts.Delivery == bus.Core {
 		return ingest.Subscribe(nc, s.subj, sink{s}, s.log)
 	}
-	sub, err := ingest.Consume(ctx, nc, s.subj, sink{s}, ingest.StreamOptions{Stream: s.opts.Stream, From: from}, s.log)
+	sub, err := ingest.Consume(ctx, nc, s.subj, sink{s}, from, s.log)
 	if err != nil && s.opts.NATSURL == "" {
 		return nil, fmt.Errorf("%w (the embedded broker keeps it in %s: set --nats.embedded.store-dir)", err, s.opts.EmbeddedStoreDir)
 	}
@@ -394,16 +446,21 @@ func (s *Service) loop(ctx context.Context) {
 	tick := time.NewTicker(s.opts.TickEvery)
 	flush := time.NewTicker(s.opts.FlushEvery)
 	learn := time.NewTicker(s.opts.RecomputeEvery)
+	prune := time.NewTimer(time.Minute) // then every PruneEvery
 	defer tick.Stop()
 	defer flush.Stop()
 	defer learn.Stop()
+	defer prune.Stop()
 	for {
 		select {
 		case <-ctx.Done():
 			return
+		case <-prune.C:
+			s.prune(ctx)
+			prune.Reset(s.opts.PruneEvery)
 		case <-tick.C:
 			s.mu.Lock()
-			s.tr.Tick()
+			s.tickLocked()
 			s.mu.Unlock()
 		case <-flush.C:
 			s.flush()
@@ -419,7 +476,16 @@ func (s *Service) loop(ctx context.Context) {
 // to step the service without waiting for the timers.
 func (s *Service) Tick() {
 	s.mu.Lock()
-	s.tr.Tick()
+	s.tickLocked()
 	s.mu.Unlock()
 	s.flush()
+}
+
+// tickLocked ticks the tracker, unless the open windows are still being
+// summed again after a restart: a window closed now would miss samples.
+// The caller holds mu.
+func (s *Service) tickLocked() {
+	if !s.rebuilding {
+		s.tr.Tick()
+	}
 }

@@ -137,6 +137,11 @@ func (r *rig) startService() {
 	require.NoError(r.t, err)
 	stop, err := svc.Start()
 	require.NoError(r.t, err, "aggregator did not start")
+	select {
+	case <-svc.Rebuilt():
+	case <-time.After(30 * time.Second):
+		r.t.Fatal("the open windows were not summed again within 30 s")
+	}
 	r.svc = svc
 	r.stop = func() { require.NoError(r.t, stop()) }
 	r.t.Cleanup(r.stop)

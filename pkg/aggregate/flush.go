@@ -24,9 +24,9 @@ func (s *Service) flush() {
 	s.mu.Lock()
 	s.collectLocked(&s.pending)
 	saved := s.applied
+	s.pending.StreamSeq, s.pending.ReplayFrom = saved.Seq, s.tr.ReplayFrom()
 	s.mu.Unlock()
 
-	s.pending.StreamSeq = saved.Seq
 	err := s.st.Apply(&s.pending)
 	s.mu.Lock()
 	s.flushErr = err

@@ -34,7 +34,7 @@ func (s *Service) Snapshot() export.Snapshot {
 	if sub := s.sub.Load(); sub != nil {
 		c := sub.Counts()
 		in = export.Ingest{Accepted: c.Taken, Rejected: c.Refused, Duplicates: c.Duplicates, SlowConsumerDropped: c.SlowConsumerDropped,
-			StreamExpired: c.Expired, StreamPending: c.Pending}
+			StreamExpired: c.Expired, StreamPending: c.Pending, Rebuilt: c.Rebuilt, RebuildMissing: c.RebuildMissing}
 	} else {
 		in = export.NewIngest()
 		in.StreamPending = -1
@@ -42,6 +42,11 @@ func (s *Service) Snapshot() export.Snapshot {
 	s.mu.Lock()
 	defer s.mu.Unlock()
 	in.StoreErrors = s.storeErrors
+	if s.st != nil {
+		in.StoreWritten = uint64(s.st.Written())
+	}
+	in.Pruned = map[string]uint64{"jobs": uint64(s.pruned.Jobs), "windows": uint64(s.pruned.Windows),
+		"flags": uint64(s.pruned.Flags), "acknowledgements": uint64(s.pruned.Acks)}
 	now := s.opts.Now()
 	in.CommitAge = now.Sub(s.committed)
 	var running []model.Summary

@@ -15,7 +15,7 @@ type sink struct{ s *Service }
 
 func (k sink) Sample(smp *report.Sample, r ingest.Receipt) error {
 	k.s.mu.Lock()
-	err := k.s.tr.Sample(smp)
+	err := k.s.tr.SampleAt(smp, r.Seq)
 	k.s.placeLocked(r)
 	k.s.mu.Unlock()
 	return refusal(err)
@@ -27,6 +27,21 @@ func (k sink) JobEvent(e *report.JobEvent, r ingest.Receipt) error {
 	k.s.placeLocked(r)
 	k.s.mu.Unlock()
 	return refusal(err)
+}
+
+// Rebuild sums a sample applied before the restart into the open windows
+// again.
+func (k sink) Rebuild(smp *report.Sample, r ingest.Receipt) {
+	k.s.mu.Lock()
+	k.s.tr.Rebuild(smp, r.Seq)
+	k.s.mu.Unlock()
+}
+
+// CaughtUp ends the rebuild: windows close again.
+func (k sink) CaughtUp() {
+	k.s.mu.Lock()
+	defer k.s.mu.Unlock()
+	k.s.endRebuildLocked()
 }
 
 func (k sink) Skipped(r ingest.Receipt) {

@@ -64,11 +64,19 @@ type Ingest struct {
 	StreamPending int64
 	// CommitAge is the time since the last successful store write.
 	CommitAge time.Duration
+	// Rebuilt counts the samples read again after a restart to sum the
+	// open windows again; RebuildMissing those the stream no longer held.
+	Rebuilt, RebuildMissing uint64
+	// StoreWritten is the bytes written to the state file since start-up.
+	StoreWritten uint64
+	// Pruned counts what was deleted of ended jobs past their retention,
+	// by kind (jobs, windows, flags, acknowledgements).
+	Pruned map[string]uint64
 }
 
 // NewIngest returns zeroed counters with their maps made.
 func NewIngest() Ingest {
-	return Ingest{Accepted: map[string]uint64{}, Rejected: map[string]uint64{}, StreamPending: -1}
+	return Ingest{Accepted: map[string]uint64{}, Rejected: map[string]uint64{}, Pruned: map[string]uint64{}, StreamPending: -1}
 }
 
 // Clone copies the counters.
@@ -76,6 +84,7 @@ func (in Ingest) Clone() Ingest {
 	c := in
 	c.Accepted = copyCounts(in.Accepted)
 	c.Rejected = copyCounts(in.Rejected)
+	c.Pruned = copyCounts(in.Pruned)
 	return c
 }
 
@@ -151,6 +160,10 @@ var (
 	descStoreErr  = prometheus.NewDesc(ns+"_store_write_errors_total", "Failed batched writes to the state file.", nil, nil)
 	descCommitAge = prometheus.NewDesc(ns+"_store_commit_age_seconds", "Time since the state file last took a batch: what a crash now would have the stream deliver again.", nil, nil)
 	descExpired   = prometheus.NewDesc(ns+"_ingest_stream_expired_total", "Stream messages the stream dropped (its age or byte bound) before the aggregator read them: samples lost.", nil, nil)
+	descRebuilt   = prometheus.NewDesc(ns+"_ingest_rebuild_samples_total", "Samples read again from the stream after a restart to sum the open windows again (the state file keeps them small).", nil, nil)
+	descRebuildNo = prometheus.NewDesc(ns+"_ingest_rebuild_missing_total", "Samples to read again after a restart that the stream no longer held: the open windows of that moment miss them.", nil, nil)
+	descWritten   = prometheus.NewDesc(ns+"_store_written_bytes_total", "Bytes written to the state file: the pages its commits wrote, and a meta page each.", nil, nil)
+	descPruned    = prometheus.NewDesc(ns+"_store_pruned_total", "What was deleted of ended jobs past the state file's retention, by kind: jobs, windows, flags, acknowledgements.", []string{"kind"}, nil)
 	descPending   = prometheus.NewDesc(ns+"_ingest_stream_pending_messages", "Stream messages not yet read by the aggregator.", nil, nil)
 	descLag       = prometheus.NewDesc(ns+"_ingest_lag_seconds", "Wall-clock time minus the latest interval end seen in any sample.", nil, nil)
 	descNodes     = prometheus.NewDesc(ns+"_nodes_known", "Nodes that have sent at least one sample.", nil, nil)
@@ -186,7 +199,7 @@ var (
 	descSrcInst      = prometheus.NewDesc(ns+"_agent_source_instances", "Instances of a source found at its last read on the node.", []string{"node", "source"}, nil)
 	descSrcBad       = prometheus.NewDesc(ns+"_agent_source_malformed_lines_total", "Counter lines a source skipped as malformed on the node since its agent started.", []string{"node", "source"}, nil)
 
-	allDescs = []*prometheus.Desc{descAccepted, descRejected, descDupes, descSlow, descStoreErr, descCommitAge, descExpired, descPending, descLag, descNodes, descRunning, descCutBytes, descCutOps, descPatInfo, descBaseWin, descBaseIdle, descBaseDays, descBaseAge, descBaseBad, descBroker, descJobBytes, descJobOps, descJobLevel, descJobNodes, descFlag, descFlagScore, descFlagSince, descPattern, descDropped,
+	allDescs = []*prometheus.Desc{descAccepted, descRejected, descDupes, descSlow, descStoreErr, descCommitAge, descExpired, descRebuilt, descRebuildNo, descWritten, descPruned, descPending, descLag, descNodes, descRunning, descCutBytes, descCutOps, descPatInfo, descBaseWin, descBaseIdle, descBaseDays, descBaseAge, descBaseBad, descBroker, descJobBytes, descJobOps, descJobLevel, descJobNodes, descFlag, descFlagScore, descFlagSince, descPattern, descDropped,
 		descAgentSeen, descAgentCPU, descAgentShare, descAgentFleet, descAgentRSS, descAgentQueued, descAgentDropped, descSrcRead, descSrcUp, descSrcInst, descSrcBad}
 )
 
@@ -222,6 +235,12 @@ func (c *Collector) Collect(ch chan<- prometheus.Metric) {
 	counter(descStoreErr, s.Ingest.StoreErrors)
 	gauge(descCommitAge, s.Ingest.CommitAge.Seconds())
 	counter(descExpired, s.Ingest.StreamExpired)
+	counter(descRebuilt, s.Ingest.Rebuilt)
+	counter(descRebuildNo, s.Ingest.RebuildMissing)
+	counter(descWritten, s.Ingest.StoreWritten)
+	for _, kind := range []string{"jobs", "windows", "flags", "acknowledgements"} {
+		counter(descPruned, s.Ingest.Pruned[kind], kind)
+	}
 	if s.Ingest.StreamPending >= 0 {
 		gauge(descPending, float64(s.Ingest.StreamPending))
 	}

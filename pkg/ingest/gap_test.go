@@ -33,6 +33,8 @@ func (p *places) Sample(_ *report.Sample, r Receipt) error {
 func (p *places) JobEvent(*report.JobEvent, Receipt) error { return nil }
 func (p *places) Heartbeat(*report.Heartbeat) error        { return nil }
 func (p *places) Skipped(Receipt)                          {}
+func (p *places) Rebuild(*report.Sample, Receipt)          {}
+func (p *places) CaughtUp()                                {}
 func (p *places) seen() []uint64 {
 	p.mu.Lock()
 	defer p.mu.Unlock()

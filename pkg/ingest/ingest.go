@@ -46,11 +46,19 @@ import (
 // a [Refusal] is counted under its reason, any other error as "other".
 // Skipped is told the place of a stream message refused before it reached
 // the sink, so that it is acknowledged with the next commit.
+//
+// After a restart on the stream, Rebuild is given the samples at or
+// before the last place saved, from where the open windows begin
+// (StreamOptions.From), so that the sink can sum them again; CaughtUp is
+// called once, when those are done (at once if there are none), before
+// the first message after the place saved.
 type Sink interface {
 	Sample(*report.Sample, Receipt) error
 	JobEvent(*report.JobEvent, Receipt) error
 	Heartbeat(*report.Heartbeat) error
 	Skipped(Receipt)
+	Rebuild(*report.Sample, Receipt)
+	CaughtUp()
 }
 
 // Refusal is a Sink's refusal of a message, with the reason it is counted
@@ -77,6 +85,9 @@ type Counts struct {
 	// Expired counts stream messages dropped by the stream's age or size
 	// bound before the aggregator read them.
 	Expired uint64
+	// Rebuilt counts the samples read again after a restart to sum the
+	// open windows again; RebuildMissing those the stream no longer held.
+	Rebuilt, RebuildMissing uint64
 	// Pending is the number of stream messages not yet delivered to the
 	// aggregator; -1 when unknown (core NATS, or the broker did not say).
 	Pending int64
@@ -109,6 +120,14 @@ type Subscriber struct {
 	dupes   uint64
 	next    uint64 // the stream sequence expected next; 0 before the first
 	expired uint64
+	rebuilt uint64
+	missing uint64 // of the messages to read again
+
+	// saved is the last stream sequence the sink had saved when reading
+	// began; caughtUp says the messages up to it are done. Only the
+	// stream's goroutine touches them once it runs.
+	saved    uint64
+	caughtUp bool
 }
 
 func newSubscriber(sink Sink, log *slog.Logger) *Subscriber {
@@ -177,7 +196,8 @@ func (s *Subscriber) Drain() {
 // many messages are still to be read (at most a second).
 func (s *Subscriber) Counts() Counts {
 	s.mu.Lock()
-	c := Counts{Taken: maps.Clone(s.taken), Refused: maps.Clone(s.refused), Duplicates: s.dupes, Expired: s.expired, Pending: -1}
+	c := Counts{Taken: maps.Clone(s.taken), Refused: maps.Clone(s.refused), Duplicates: s.dupes, Expired: s.expired,
+		Rebuilt: s.rebuilt, RebuildMissing: s.missing, Pending: -1}
 	s.mu.Unlock()
 	for _, sub := range s.subs {
 		if n, err := sub.Dropped(); err == nil {

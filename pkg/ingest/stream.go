@@ -38,9 +38,13 @@ func (r Receipt) Ack() error {
 type StreamOptions struct {
 	// Stream bounds the stream, which Consume creates or updates.
 	Stream bus.StreamOptions
-	// From is the stream sequence to read from: one after the last one
-	// saved; 0 reads the stream from its start.
+	// From is the stream sequence to read from: where the samples the
+	// open windows had summed begin, or one after Saved; 0 reads the
+	// stream from its start.
 	From uint64
+	// Saved is the last stream sequence whose changes the state file
+	// holds: messages up to it go to Sink.Rebuild.
+	Saved uint64
 	// AckWait is how long the broker waits for an acknowledgement before
 	// it delivers a message again; zero means 30 seconds. It must be well
 	// over the commit interval.
@@ -73,9 +77,13 @@ func Consume(ctx context.Context, nc *nats.Conn, subj bus.Subjects, sink Sink, o
 		return nil, fmt.Errorf("create the stream %s on the broker at %s: %w (the broker needs JetStream, with room for the stream's bytes)", subj.StreamName(), nc.ConnectedUrlRedacted(), err)
 	}
 	s := newSubscriber(sink, log)
-	s.stream, s.subj, s.opts = st, subj, o
+	s.stream, s.subj, s.opts = st, subj, fitTo(st.CachedInfo().State, o, log)
+	s.saved = s.opts.Saved
 	s.resets, s.done = make(chan uint64, 1), make(chan struct{})
-	if err := s.consumeFrom(ctx, o.From); err != nil {
+	if s.opts.From > s.saved {
+		s.catchUp()
+	}
+	if err := s.consumeFrom(ctx, s.opts.From); err != nil {
 		return nil, err
 	}
 	if err := s.subscribeBeats(nc, subj); err != nil {
@@ -84,6 +92,30 @@ func Consume(ctx context.Context, nc *nats.Conn, subj bus.Subjects, sink Sink, o
 	}
 	go s.resetLoop()
 	return s, nil
+}
+
+// fitTo checks the places the state file saved against what the stream
+// holds. A stream whose last message is before the place saved is not
+// the one the state file was read from (deleted and made again): it is
+// read from its start, and nothing is summed again.
+func fitTo(st jetstream.StreamState, o StreamOptions, log *slog.Logger) StreamOptions {
+	if o.Saved > st.LastSeq {
+		log.Warn("the stream ends before the place the state file saved: it was made again; reading it from its start",
+			"stream_last", st.LastSeq, "saved", o.Saved)
+		o.From, o.Saved = 0, 0
+	}
+	if o.From == 0 {
+		o.From = o.Saved + 1
+	}
+	return o
+}
+
+// catchUp tells the sink the messages to read again are done.
+func (s *Subscriber) catchUp() {
+	if !s.caughtUp {
+		s.caughtUp = true
+		s.sink.CaughtUp()
+	}
 }
 
 // consumeFrom resets the durable consumer to seq and reads from it,
@@ -189,6 +221,11 @@ func (s *Subscriber) onStreamMsg(m jetstream.Msg) {
 		return
 	}
 	data, id := m.Data(), m.Headers().Get(bus.MsgIDHeader)
+	if r.Seq <= s.saved && !s.caughtUp {
+		s.rebuild(data, r)
+		return
+	}
+	s.catchUp()
 	k, err := wire.Peek(data)
 	switch {
 	case err != nil:
@@ -199,6 +236,21 @@ func (s *Subscriber) onStreamMsg(m jetstream.Msg) {
 		s.streamJobEvent(data, id, r)
 	default:
 		s.refuseAt(k, "wrong_stream", fmt.Errorf("a %s message in the stream", k), r)
+	}
+}
+
+// rebuild hands a sample saved before the restart to the sink to sum
+// again; other messages at or before the place saved need nothing. The
+// key was checked when the message was first taken.
+func (s *Subscriber) rebuild(data []byte, r Receipt) {
+	if k, err := wire.Peek(data); err == nil && k == wire.KindSample && s.dec.DecodeSample(data, &s.smp) == nil {
+		s.sink.Rebuild(&s.smp, r)
+		s.mu.Lock()
+		s.rebuilt++
+		s.mu.Unlock()
+	}
+	if r.Seq == s.saved {
+		s.catchUp()
 	}
 }
 
@@ -279,14 +331,25 @@ func (s *Subscriber) passedOver(seq uint64) uint64 {
 	return 0
 }
 
+// countLost counts n messages the stream no longer held, the last of
+// them just before before: those after the place saved as lost samples,
+// those at or before it as missing from the rebuild of the open windows.
 func (s *Subscriber) countLost(n, before uint64) {
 	if n == 0 {
 		return
 	}
+	first := before - n
+	missing := min(n, s.saved+1-min(first, s.saved+1))
 	s.mu.Lock()
-	s.expired += n
+	s.expired += n - missing
+	s.missing += missing
 	s.mu.Unlock()
-	s.log.Warn("the stream no longer held messages before they were read", "lost", n, "before", before)
+	if missing > 0 {
+		s.log.Warn("the stream no longer held samples to read again: the open windows miss them", "missing", missing, "before", before)
+	}
+	if n > missing {
+		s.log.Warn("the stream no longer held messages before they were read", "lost", n-missing, "before", before)
+	}
 }
 
 // advance notes seq as read.

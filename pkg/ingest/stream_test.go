@@ -25,6 +25,23 @@ type recorder struct {
 	seqs    []uint64 // sample sequence numbers
 	places  []uint64 // stream sequences, of every message
 	skipped []uint64
+	rebuilt []uint64 // sample sequence numbers given to Rebuild
+	// caughtUp is how many messages Sample, JobEvent and Skipped had been
+	// given when CaughtUp was called; -1 until then.
+	caughtUp int
+	calls    int // CaughtUp calls
+}
+
+func (r *recorder) Rebuild(s *report.Sample, _ ingest.Receipt) {
+	r.mu.Lock()
+	defer r.mu.Unlock()
+	r.rebuilt = append(r.rebuilt, s.Seq)
+}
+
+func (r *recorder) CaughtUp() {
+	r.mu.Lock()
+	defer r.mu.Unlock()
+	r.caughtUp, r.calls = len(r.places), r.calls+1
 }
 
 func (r *recorder) Sample(s *report.Sample, at ingest.Receipt) error {
@@ -73,9 +90,14 @@ func publish(t *testing.T, nc *nats.Conn, n int) {
 
 func consume(t *testing.T, nc *nats.Conn, from uint64) (*ingest.Subscriber, *recorder) {
 	t.Helper()
+	return consumeWith(t, nc, ingest.StreamOptions{From: from})
+}
+
+func consumeWith(t *testing.T, nc *nats.Conn, o ingest.StreamOptions) (*ingest.Subscriber, *recorder) {
+	t.Helper()
 	subj, _ := bus.NewSubjects("", "")
-	rec := &recorder{}
-	sub, err := ingest.Consume(context.Background(), nc, subj, rec, ingest.StreamOptions{From: from}, slog.New(slog.DiscardHandler))
+	rec := &recorder{caughtUp: -1}
+	sub, err := ingest.Consume(context.Background(), nc, subj, rec, o, slog.New(slog.DiscardHandler))
 	require.NoError(t, err)
 	t.Cleanup(sub.Drain)
 	return sub, rec
@@ -142,4 +164,76 @@ func TestKeyMustMatchBody(t *testing.T) {
 	c := sub.Counts()
 	assert.Equal(t, uint64(1), c.Refused["sample/no_key"])
 	assert.Equal(t, uint64(2), c.Refused["sample/bad_key"])
+}
+
+// TestSavedMessagesAreReadAgainToRebuild: after a restart, the messages
+// from where the open windows begin up to the place saved go to Rebuild,
+// then CaughtUp is called once, before the first message after it.
+func TestSavedMessagesAreReadAgainToRebuild(t *testing.T) {
+	srv := natstest.Start(t)
+	nc := natstest.Connect(t, srv.URL())
+	publish(t, nc, 10)
+	sub, rec := consumeWith(t, nc, ingest.StreamOptions{From: 3, Saved: 6})
+	require.Eventually(t, func() bool { return rec.seen() == 4 }, 10*time.Second, 5*time.Millisecond)
+	rec.mu.Lock()
+	defer rec.mu.Unlock()
+	assert.Equal(t, []uint64{3, 4, 5, 6}, rec.rebuilt)
+	assert.Equal(t, []uint64{7, 8, 9, 10}, rec.seqs)
+	assert.Equal(t, 1, rec.calls)
+	assert.Equal(t, 0, rec.caughtUp, "caught up before the first message after the place saved")
+	assert.Equal(t, uint64(4), sub.Counts().Rebuilt)
+}
+
+// TestNothingToRebuildCatchesUpAtOnce: with the open windows beginning
+// after the place saved, nothing is read again.
+func TestNothingToRebuildCatchesUpAtOnce(t *testing.T) {
+	srv := natstest.Start(t)
+	nc := natstest.Connect(t, srv.URL())
+	publish(t, nc, 4)
+	_, rec := consumeWith(t, nc, ingest.StreamOptions{From: 5, Saved: 4})
+	rec.mu.Lock()
+	defer rec.mu.Unlock()
+	assert.Equal(t, 1, rec.calls)
+	assert.Empty(t, rec.rebuilt)
+}
+
+// TestStreamMadeAgainIsReadFromItsStart: a stream that ends before the
+// place the state file saved is not the one it was read from; reading it
+// from the saved place would pass over everything in it.
+func TestStreamMadeAgainIsReadFromItsStart(t *testing.T) {
+	srv := natstest.Start(t)
+	nc := natstest.Connect(t, srv.URL())
+	publish(t, nc, 3)
+	_, rec := consumeWith(t, nc, ingest.StreamOptions{From: 90, Saved: 120})
+	require.Eventually(t, func() bool { return rec.seen() == 3 }, 10*time.Second, 5*time.Millisecond)
+	rec.mu.Lock()
+	defer rec.mu.Unlock()
+	assert.Equal(t, []uint64{1, 2, 3}, rec.seqs)
+	assert.Empty(t, rec.rebuilt)
+}
+
+// TestMissingSavedMessagesAreNotCountedAsLost: messages to read again
+// that the stream dropped were applied before the restart; they are
+// counted apart from samples lost.
+func TestMissingSavedMessagesAreNotCountedAsLost(t *testing.T) {
+	srv := natstest.Start(t)
+	nc := natstest.Connect(t, srv.URL())
+	publish(t, nc, 10)
+	js, err := jetstream.New(nc)
+	require.NoError(t, err)
+	st, err := js.Stream(context.Background(), "SLUICE_DEFAULT")
+	require.NoError(t, err)
+	for _, seq := range []uint64{4, 5, 6, 7} {
+		require.NoError(t, st.DeleteMsg(context.Background(), seq))
+	}
+	sub, rec := consumeWith(t, nc, ingest.StreamOptions{From: 2, Saved: 5})
+	require.Eventually(t, func() bool { return rec.seen() == 3 }, 10*time.Second, 5*time.Millisecond)
+	c := sub.Counts()
+	assert.Equal(t, uint64(2), c.RebuildMissing, "4 and 5 were saved")
+	assert.Equal(t, uint64(2), c.Expired, "6 and 7 were not")
+	rec.mu.Lock()
+	defer rec.mu.Unlock()
+	assert.Equal(t, []uint64{2, 3}, rec.rebuilt)
+	assert.Equal(t, []uint64{8, 9, 10}, rec.seqs)
+	assert.Equal(t, 1, rec.calls)
 }

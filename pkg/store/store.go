@@ -1,52 +1,57 @@
-// Package store keeps the aggregator's state in one bbolt file: jobs (with
-// their open windows, so a restart resumes mid-window), closed windows,
-// flags and each node's applied sequence numbers.
+// Package store keeps the aggregator's state in one bbolt file: jobs,
+// closed windows, flags, each node's applied sequence numbers, the
+// baseline's days, silences and acknowledgements.
 //
 // # Basics
 //
 // [Open] takes the file lock with a timeout, so a second aggregator on the
 // same file fails fast with [ErrLocked] instead of hanging. Writes go
 // through [Store.Apply], one transaction per [Batch]; the aggregator batches
-// a second's worth of changes into one. Records are JSON, keyed as:
+// a second's worth of changes into one. Each record is binary, led by its
+// record version (records.go); a batch writes only what changed: a job's
+// small record, a window once when it closes, the node shards that
+// changed. Keys:
 //
-//	meta     "schema" -> "1", "watermark" -> RFC 3339 time,
-//	         "stream_seq" -> the last stream sequence whose changes are saved
-//	jobs     job id -> model.JobRecord
-//	windows  job id, 0x00, 8-byte big-endian index -> model.Window
-//	flags    flag id -> model.Flag
-//	nodes    node -> model.SeqRecord
+//	meta       "schema" -> "2", "watermark" -> time,
+//	           "stream_seq" -> the last stream sequence whose changes are saved,
+//	           "replay_from" -> where the stream is read again from after a
+//	           restart, to sum the open windows again
+//	jobs       job id -> model.JobRecord
+//	windows    job id, 0x00, 8-byte big-endian index -> model.Window
+//	flags      job id, 0x00, 4-byte big-endian number -> model.Flag
+//	nodes      2-byte shard -> the sequence sets of the nodes hashed to it
 //	signatures job id -> signature.Signature in its binary form
-//	baseline origin, "/", YYYY-MM-DD -> baseline.Day in its binary form
-//	silences silence id -> model.Silence
-//	acks     flag id -> model.Ack
+//	baseline   origin, "/", YYYY-MM-DD -> baseline.Day in its binary form
+//	silences   silence id -> model.Silence
+//	acks       job id, 0x00, 4-byte number (the flag's) -> model.Ack
+//	ended      8-byte big-endian end (Unix ns), job id -> nothing: the
+//	           finished jobs, oldest first, for [Store.Prune]
 //
 // # Caveats
 //
 // Values returned by the read methods are decoded copies; nothing refers to
-// memory bbolt owns after a transaction ends. The schema version is checked
-// on open: a file from a newer schema is refused rather than misread.
+// memory bbolt owns after a transaction ends. A file of schema 1 (JSON
+// records) is migrated on open, after a copy of it is kept beside it; a
+// file of a newer schema is refused rather than misread.
 package store
 
 import (
 	"encoding/binary"
-	"encoding/json"
 	"errors"
 	"fmt"
-	"slices"
 	"strings"
+	"sync/atomic"
 	"time"
 
 	bolt "go.etcd.io/bbolt"
 	bolterr "go.etcd.io/bbolt/errors"
 
 	"sluice/pkg/baseline"
-	"sluice/pkg/coding"
 	"sluice/pkg/model"
-	"sluice/pkg/signature"
 )
 
 // SchemaVersion is the layout version this package reads and writes.
-const SchemaVersion = "1"
+const SchemaVersion = "2"
 
 var (
 	bucketMeta    = []byte("meta")
@@ -58,7 +63,13 @@ var (
 	bucketDays    = []byte("baseline")
 	bucketSilence = []byte("silences")
 	bucketAcks    = []byte("acks")
-	allBuckets    = [][]byte{bucketMeta, bucketJobs, bucketWindows, bucketFlags, bucketNodes, bucketSigs, bucketDays, bucketSilence, bucketAcks}
+	bucketEnded   = []byte("ended")
+	allBuckets    = [][]byte{bucketMeta, bucketJobs, bucketWindows, bucketFlags, bucketNodes, bucketSigs, bucketDays, bucketSilence, bucketAcks, bucketEnded}
+
+	keySchema     = []byte("schema")
+	keyWatermark  = []byte("watermark")
+	keyStreamSeq  = []byte("stream_seq")
+	keyReplayFrom = []byte("replay_from")
 )
 
 // ErrLocked means another process holds the file.
@@ -80,17 +91,21 @@ type Options struct {
 
 // Store is an open state file.
 type Store struct {
-	db   *bolt.DB
-	path string
-	opts Options
+	db       *bolt.DB
+	path     string
+	opts     Options
+	commits  atomic.Int64
+	migrated *Migration
 }
 
-// Open opens or creates the file at path.
+// Open opens or creates the file at path, migrating a file of schema 1.
 func Open(path string, opts Options) (*Store, error) {
 	if opts.LockTimeout == 0 {
 		opts.LockTimeout = time.Second
 	}
-	db, err := bolt.Open(path, 0o600, &bolt.Options{Timeout: opts.LockTimeout})
+	// The freelist is not written with each commit but rebuilt on open:
+	// with a commit every second it would be a page or more each time.
+	db, err := bolt.Open(path, 0o600, &bolt.Options{Timeout: opts.LockTimeout, NoFreelistSync: true, FreelistType: bolt.FreelistMapType})
 	if errors.Is(err, bolterr.ErrTimeout) {
 		return nil, fmt.Errorf("open %s: %w (waited %s; is another aggregator running on it?)", path, ErrLocked, opts.LockTimeout)
 	}
@@ -106,28 +121,52 @@ func Open(path string, opts Options) (*Store, error) {
 }
 
 func (s *Store) init() error {
+	var schema string
+	err := s.db.View(func(tx *bolt.Tx) error {
+		if meta := tx.Bucket(bucketMeta); meta != nil {
+			schema = string(meta.Get(keySchema))
+		}
+		return nil
+	})
+	switch {
+	case err != nil:
+		return fmt.Errorf("%s: %w", s.path, err)
+	case schema == "1":
+		m, err := s.migrateSchema1()
+		if err != nil {
+			return fmt.Errorf("%s: migrate from schema 1: %w", s.path, err)
+		}
+		s.migrated = &m
+	case schema != "" && schema != SchemaVersion:
+		return fmt.Errorf("%s: %w %q (this build reads %q and migrates \"1\")", s.path, ErrSchema, schema, SchemaVersion)
+	}
 	return s.db.Update(func(tx *bolt.Tx) error {
 		for _, b := range allBuckets {
 			if _, err := tx.CreateBucketIfNotExists(b); err != nil {
 				return fmt.Errorf("create bucket %s: %w", b, err)
 			}
 		}
-		meta := tx.Bucket(bucketMeta)
-		switch v := meta.Get([]byte("schema")); {
-		case v == nil:
-			return meta.Put([]byte("schema"), []byte(SchemaVersion))
-		case string(v) != SchemaVersion:
-			return fmt.Errorf("%s: %w %q (this build reads %q)", s.path, ErrSchema, v, SchemaVersion)
-		}
-		return nil
+		return tx.Bucket(bucketMeta).Put(keySchema, []byte(SchemaVersion))
 	})
 }
+
+// Migrated says what opening the file migrated, or nil if nothing.
+func (s *Store) Migrated() *Migration { return s.migrated }
 
 // Close releases the file.
 func (s *Store) Close() error { return s.db.Close() }
 
 // Path is the file's path.
 func (s *Store) Path() string { return s.path }
+
+// Written is the bytes the store has written to the file since it was
+// opened: the pages its transactions allocated and one meta page per
+// commit. The operating system may write less (pages written twice in a
+// flush interval) or more (its own metadata).
+func (s *Store) Written() int64 {
+	st := s.db.Stats()
+	return st.TxStats.GetPageAlloc() + s.commits.Load()*int64(s.db.Info().PageSize)
+}
 
 // Check runs bbolt's consistency check and returns the first problem.
 func (s *Store) Check() error {
@@ -137,6 +176,15 @@ func (s *Store) Check() error {
 		}
 		return nil
 	})
+}
+
+// update runs fn in a write transaction and counts the commit.
+func (s *Store) update(fn func(*bolt.Tx) error) error {
+	if err := s.db.Update(fn); err != nil {
+		return err
+	}
+	s.commits.Add(1)
+	return nil
 }
 
 // Batch is a set of changes written in one transaction.
@@ -150,6 +198,11 @@ type Batch struct {
 	// StreamSeq, if not zero, is the last stream sequence whose changes
 	// the batch holds: after a crash the aggregator reads on from the next.
 	StreamSeq uint64
+	// ReplayFrom, written with StreamSeq, is the first stream sequence of
+	// the samples the open windows and live windows have summed: a
+	// restarted aggregator reads the stream again from there to sum them
+	// again. Zero: nothing to read again.
+	ReplayFrom uint64
 	// Days are baseline days to write (a nil Day deletes the key).
 	Days map[baseline.Key]*baseline.Day
 }
@@ -161,48 +214,16 @@ func (b *Batch) Empty() bool {
 
 // Apply writes a batch in one transaction.
 func (s *Store) Apply(b *Batch) error {
-	err := s.db.Update(func(tx *bolt.Tx) error {
+	err := s.update(func(tx *bolt.Tx) error {
 		if s.opts.BeforeApply != nil {
 			if err := s.opts.BeforeApply(); err != nil {
 				return err
 			}
 		}
-		for i := range b.Jobs {
-			if err := putJob(tx, &b.Jobs[i]); err != nil {
+		for _, put := range []func(*bolt.Tx, *Batch) error{putJobs, putWindows, putFlags, putBatchNodes, putBatchDays, putMeta} {
+			if err := put(tx, b); err != nil {
 				return err
 			}
-		}
-		for _, id := range b.GoneJobs {
-			if err := tx.Bucket(bucketJobs).Delete([]byte(id)); err != nil {
-				return err
-			}
-		}
-		for i := range b.Windows {
-			w := &b.Windows[i]
-			if err := putJSON(tx.Bucket(bucketWindows), windowKey(w.Job, w.Index), w); err != nil {
-				return err
-			}
-		}
-		for i := range b.Flags {
-			if err := putJSON(tx.Bucket(bucketFlags), []byte(b.Flags[i].ID), &b.Flags[i]); err != nil {
-				return err
-			}
-		}
-		for n, seqs := range b.Nodes {
-			if err := putJSON(tx.Bucket(bucketNodes), []byte(n), &seqs); err != nil {
-				return err
-			}
-		}
-		if err := putDays(tx, b.Days); err != nil {
-			return err
-		}
-		if b.StreamSeq > 0 {
-			if err := tx.Bucket(bucketMeta).Put([]byte("stream_seq"), binary.BigEndian.AppendUint64(nil, b.StreamSeq)); err != nil {
-				return err
-			}
-		}
-		if !b.Watermark.IsZero() {
-			return tx.Bucket(bucketMeta).Put([]byte("watermark"), []byte(b.Watermark.UTC().Format(time.RFC3339Nano)))
 		}
 		return nil
 	})
@@ -210,6 +231,84 @@ func (s *Store) Apply(b *Batch) error {
 		return fmt.Errorf("store %s: apply batch: %w", s.path, err)
 	}
 	return nil
+}
+
+func putJobs(tx *bolt.Tx, b *Batch) error {
+	for i := range b.Jobs {
+		if err := putJob(tx, &b.Jobs[i]); err != nil {
+			return err
+		}
+	}
+	for _, id := range b.GoneJobs {
+		if err := tx.Bucket(bucketJobs).Delete([]byte(id)); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// putJob writes a job's record, its signature apart when it changed, and
+// a finished job's place in the ended index. Signatures of forgotten jobs
+// stay, like their windows, until Prune.
+func putJob(tx *bolt.Tx, j *model.JobRecord) error {
+	id := j.Meta.ID
+	if err := tx.Bucket(bucketJobs).Put([]byte(id), encodeJob(j)); err != nil {
+		return fmt.Errorf("put job %q: %w", id, err)
+	}
+	if j.Signature != nil {
+		if err := tx.Bucket(bucketSigs).Put([]byte(id), j.Signature); err != nil {
+			return fmt.Errorf("put signature of %q: %w", id, err)
+		}
+	}
+	if j.Finished {
+		return tx.Bucket(bucketEnded).Put(endedKey(j.Meta.End, id), nil)
+	}
+	return nil
+}
+
+func putWindows(tx *bolt.Tx, b *Batch) error {
+	for i := range b.Windows {
+		w := &b.Windows[i]
+		if err := tx.Bucket(bucketWindows).Put(windowKey(w.Job, w.Index), encodeWindow(w)); err != nil {
+			return fmt.Errorf("put window %d of %q: %w", w.Index, w.Job, err)
+		}
+	}
+	return nil
+}
+
+func putFlags(tx *bolt.Tx, b *Batch) error {
+	for i := range b.Flags {
+		f := &b.Flags[i]
+		key, err := flagKey(f.ID)
+		if err != nil {
+			return err
+		}
+		if err := tx.Bucket(bucketFlags).Put(key, encodeFlagRecord(f)); err != nil {
+			return fmt.Errorf("put flag %s: %w", f.ID, err)
+		}
+	}
+	return nil
+}
+
+func putBatchNodes(tx *bolt.Tx, b *Batch) error { return putNodes(tx, b.Nodes) }
+func putBatchDays(tx *bolt.Tx, b *Batch) error  { return putDays(tx, b.Days) }
+
+func putMeta(tx *bolt.Tx, b *Batch) error {
+	meta := tx.Bucket(bucketMeta)
+	if b.StreamSeq > 0 {
+		if err := meta.Put(keyStreamSeq, binary.BigEndian.AppendUint64(nil, b.StreamSeq)); err != nil {
+			return err
+		}
+		if err := meta.Put(keyReplayFrom, binary.BigEndian.AppendUint64(nil, b.ReplayFrom)); err != nil {
+			return err
+		}
+	}
+	if b.Watermark.IsZero() {
+		return nil
+	}
+	e := enc{}
+	e.time(b.Watermark)
+	return meta.Put(keyWatermark, e.b)
 }
 
 func dayKey(k baseline.Key) []byte { return []byte(string(k.Origin) + "/" + k.Day.String()) }
@@ -249,256 +348,6 @@ func (s *Store) Days() (map[baseline.Key]*baseline.Day, error) {
 				return fmt.Errorf("baseline day %q: %w", k, err)
 			}
 			out[baseline.Key{Origin: baseline.Origin(origin), Day: dk}] = d
-			return nil
-		})
-	})
-	if err != nil {
-		return nil, fmt.Errorf("store %s: %w", s.path, err)
-	}
-	return out, nil
-}
-
-// putJob writes a job's record and, apart, its signature. Signatures of
-// forgotten jobs stay, like their windows.
-func putJob(tx *bolt.Tx, j *model.JobRecord) error {
-	key := []byte(j.Meta.ID)
-	if err := putJSON(tx.Bucket(bucketJobs), key, j); err != nil {
-		return err
-	}
-	if j.Signature == nil {
-		return nil
-	}
-	return tx.Bucket(bucketSigs).Put(key, j.Signature)
-}
-
-func putJSON(b *bolt.Bucket, key []byte, v any) error {
-	data, err := json.Marshal(v)
-	if err != nil {
-		return fmt.Errorf("encode record %q: %w", key, err)
-	}
-	return b.Put(key, data)
-}
-
-func windowKey(job string, idx int) []byte {
-	k := make([]byte, 0, len(job)+9)
-	k = append(k, job...)
-	k = append(k, 0)
-	return binary.BigEndian.AppendUint64(k, uint64(idx))
-}
-
-// State is everything a restarting aggregator loads.
-type State struct {
-	Jobs      []model.JobRecord
-	Nodes     map[string]model.SeqRecord
-	Watermark time.Time
-	// StreamSeq is the last stream sequence whose changes are saved; 0
-	// when none is.
-	StreamSeq uint64
-}
-
-// Load reads the jobs, node sequence sets, watermark and stream position.
-func (s *Store) Load() (State, error) {
-	st := State{Nodes: map[string]model.SeqRecord{}}
-	err := s.db.View(func(tx *bolt.Tx) error {
-		err := tx.Bucket(bucketJobs).ForEach(func(k, v []byte) error {
-			var j model.JobRecord
-			if err := json.Unmarshal(v, &j); err != nil {
-				return fmt.Errorf("job %q: %w", k, err)
-			}
-			j.Upgrade()
-			if err := loadSignature(tx, &j); err != nil {
-				return err
-			}
-			st.Jobs = append(st.Jobs, j)
-			return nil
-		})
-		if err != nil {
-			return err
-		}
-		err = tx.Bucket(bucketNodes).ForEach(func(k, v []byte) error {
-			var n model.SeqRecord
-			if err := json.Unmarshal(v, &n); err != nil {
-				return fmt.Errorf("node %q: %w", k, err)
-			}
-			st.Nodes[string(k)] = n
-			return nil
-		})
-		if err != nil {
-			return err
-		}
-		if v := tx.Bucket(bucketMeta).Get([]byte("watermark")); v != nil {
-			wm, err := time.Parse(time.RFC3339Nano, string(v))
-			if err != nil {
-				return fmt.Errorf("watermark %q: %w", v, err)
-			}
-			st.Watermark = wm
-		}
-		if v := tx.Bucket(bucketMeta).Get([]byte("stream_seq")); len(v) == 8 {
-			st.StreamSeq = binary.BigEndian.Uint64(v)
-		}
-		return nil
-	})
-	if err != nil {
-		return State{}, fmt.Errorf("store %s: load: %w", s.path, err)
-	}
-	return st, nil
-}
-
-// loadSignature reads a job's signature, or rebuilds it from the job's
-// stored windows when the file has none (written before signatures were
-// kept): both give the same signature.
-func loadSignature(tx *bolt.Tx, j *model.JobRecord) error {
-	if b := tx.Bucket(bucketSigs).Get([]byte(j.Meta.ID)); b != nil {
-		var sig signature.Signature
-		if err := sig.UnmarshalBinary(b); err != nil {
-			return fmt.Errorf("signature of job %q: %w", j.Meta.ID, err)
-		}
-		j.Signature = slices.Clone(b)
-		return nil
-	}
-	ws, err := windowsOf(tx, j.Meta.ID)
-	if err != nil {
-		return err
-	}
-	sig := signature.Build(gradesOf(ws))
-	j.Signature, _ = sig.MarshalBinary() // cannot fail
-	return nil
-}
-
-func gradesOf(ws []model.Window) []coding.Grades {
-	gs := make([]coding.Grades, len(ws))
-	for i, w := range ws {
-		gs[i] = w.Grades
-	}
-	return gs
-}
-
-// Signature rebuilds a job's signature from its stored windows.
-func (s *Store) Signature(job string) (signature.Signature, error) {
-	ws, err := s.Windows(job)
-	if err != nil {
-		return signature.Signature{}, err
-	}
-	return signature.Build(gradesOf(ws)), nil
-}
-
-// Windows returns a job's closed windows in index order.
-func (s *Store) Windows(job string) ([]model.Window, error) {
-	var ws []model.Window
-	err := s.db.View(func(tx *bolt.Tx) error {
-		var err error
-		ws, err = windowsOf(tx, job)
-		return err
-	})
-	if err != nil {
-		return nil, fmt.Errorf("store %s: windows of %s: %w", s.path, job, err)
-	}
-	return ws, nil
-}
-
-func windowsOf(tx *bolt.Tx, job string) ([]model.Window, error) {
-	var ws []model.Window
-	prefix := append([]byte(job), 0)
-	c := tx.Bucket(bucketWindows).Cursor()
-	for k, v := c.Seek(prefix); k != nil && len(k) == len(prefix)+8 && string(k[:len(prefix)]) == string(prefix); k, v = c.Next() {
-		var w model.Window
-		if err := json.Unmarshal(v, &w); err != nil {
-			return nil, fmt.Errorf("window %q: %w", k, err)
-		}
-		ws = append(ws, w)
-	}
-	return ws, nil
-}
-
-// Flags returns every stored flag, active and cleared, for every job,
-// ordered by id.
-func (s *Store) Flags() ([]model.Flag, error) {
-	var fs []model.Flag
-	err := s.db.View(func(tx *bolt.Tx) error {
-		return tx.Bucket(bucketFlags).ForEach(func(k, v []byte) error {
-			var f model.Flag
-			if err := json.Unmarshal(v, &f); err != nil {
-				return fmt.Errorf("flag %q: %w", k, err)
-			}
-			fs = append(fs, f)
-			return nil
-		})
-	})
-	if err != nil {
-		return nil, fmt.Errorf("store %s: flags: %w", s.path, err)
-	}
-	return fs, nil
-}
-
-// PutSilence stores a silence.
-func (s *Store) PutSilence(sl model.Silence) error {
-	err := s.db.Update(func(tx *bolt.Tx) error { return putJSON(tx.Bucket(bucketSilence), []byte(sl.ID), &sl) })
-	if err != nil {
-		return fmt.Errorf("store %s: silence: %w", s.path, err)
-	}
-	return nil
-}
-
-// DeleteSilence removes a silence; a missing one is not an error.
-func (s *Store) DeleteSilence(id string) error {
-	err := s.db.Update(func(tx *bolt.Tx) error { return tx.Bucket(bucketSilence).Delete([]byte(id)) })
-	if err != nil {
-		return fmt.Errorf("store %s: silence: %w", s.path, err)
-	}
-	return nil
-}
-
-// Silences returns every stored silence, expired ones included.
-func (s *Store) Silences() ([]model.Silence, error) {
-	var out []model.Silence
-	err := s.db.View(func(tx *bolt.Tx) error {
-		return tx.Bucket(bucketSilence).ForEach(func(k, v []byte) error {
-			var sl model.Silence
-			if err := json.Unmarshal(v, &sl); err != nil {
-				return fmt.Errorf("silence %q: %w", k, err)
-			}
-			out = append(out, sl)
-			return nil
-		})
-	})
-	if err != nil {
-		return nil, fmt.Errorf("store %s: %w", s.path, err)
-	}
-	return out, nil
-}
-
-// HasFlag reports whether a flag with this id was ever stored.
-func (s *Store) HasFlag(id string) (bool, error) {
-	var found bool
-	err := s.db.View(func(tx *bolt.Tx) error {
-		found = tx.Bucket(bucketFlags).Get([]byte(id)) != nil
-		return nil
-	})
-	if err != nil {
-		return false, fmt.Errorf("store %s: %w", s.path, err)
-	}
-	return found, nil
-}
-
-// PutAck stores an acknowledgement.
-func (s *Store) PutAck(a model.Ack) error {
-	err := s.db.Update(func(tx *bolt.Tx) error { return putJSON(tx.Bucket(bucketAcks), []byte(a.Flag), &a) })
-	if err != nil {
-		return fmt.Errorf("store %s: ack: %w", s.path, err)
-	}
-	return nil
-}
-
-// Acks returns every stored acknowledgement, by flag id.
-func (s *Store) Acks() (map[string]model.Ack, error) {
-	out := map[string]model.Ack{}
-	err := s.db.View(func(tx *bolt.Tx) error {
-		return tx.Bucket(bucketAcks).ForEach(func(k, v []byte) error {
-			var a model.Ack
-			if err := json.Unmarshal(v, &a); err != nil {
-				return fmt.Errorf("ack %q: %w", k, err)
-			}
-			out[string(k)] = a
 			return nil
 		})
 	})

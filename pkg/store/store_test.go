@@ -1,6 +1,7 @@
 package store_test
 
 import (
+	"fmt"
 	"path/filepath"
 	"testing"
 	"time"
@@ -11,7 +12,6 @@ import (
 
 	"sluice/pkg/baseline"
 	"sluice/pkg/coding"
-	"sluice/pkg/internal/fixture"
 	"sluice/pkg/internal/storetest"
 	"sluice/pkg/metric"
 	"sluice/pkg/model"
@@ -24,55 +24,87 @@ func TestRoundTrip(t *testing.T) {
 	s := storetest.MustOpen(t)
 	job := model.JobRecord{
 		Meta:   model.JobMeta{ID: "81234", User: "dorvane", Nodes: []string{"bw007", "bw008"}, Start: t0, Announced: true},
-		Live:   map[string][]model.SliceRecord{"bw007": {{End: t0.Add(5 * time.Second), Seconds: 5, Values: metric.Values{metric.Creates: 12500}}}},
-		Open:   map[int]model.OpenRecord{0: {Nodes: map[string]model.AccumRecord{"bw007": {Seconds: 5, Values: metric.Values{metric.Creates: 12500}}}}},
-		Closed: 0,
+		Closed: 2, LastSample: t0.Add(125 * time.Second), Unevaluated: true,
 	}
-	job.LiveRates[metric.Creates] = 2500
+	job.Totals[metric.Creates] = 1 << 40
+	job.LiveRates[metric.Creates] = 2500.125
 	job.LiveLevels[metric.Creates] = coding.Critical
-	flag := model.Flag{ID: "81234-1", Job: "81234", Reason: model.HighRateOf(metric.Creates), Metric: metric.Creates, Level: coding.Critical, Value: 2500, Cut: 1000, Since: t0, Raised: t0}
-	job.Streaks = map[model.Reason]model.StreakRecord{flag.Reason: {Above: 3, Since: t0, Score: 1, Flag: &flag}}
-	job.FlagsRaised = 1
-	w0 := model.Window{Job: "81234", Index: 0, Start: t0, End: t0.Add(time.Minute), Nodes: 2}
+	job.LiveNodes = 2
+	flag := model.Flag{ID: "81234-1", Job: "81234", Reason: model.HighRateOf(metric.Creates), Metric: metric.Creates, Level: coding.Critical,
+		Value: 2500, Peak: 3100.5, Cut: 1000, Nodes: 2, Severity: model.SeverityWarning, Summary: "creates above the critical cut on 2 nodes", Since: t0, Raised: t0.Add(time.Second)}
+	storm := model.Flag{ID: "81234-2", Job: "81234", Reason: model.PatternOf("metadata_storm"), Metric: metric.Creates, Pattern: "metadata_storm",
+		Title: "Metadata storm", Score: 2.0 / 3, Severity: model.SeverityCritical, Advice: "Ask the user about file-per-task output.",
+		Drivers: []model.Driver{{Metric: metric.Creates, Rate: 2500, Level: coding.Critical, Grade: 6, Elevated: 100, Critical: 1000}}, Since: t0, Raised: t0}
+	job.Streaks = map[model.Reason]model.StreakRecord{
+		flag.Reason:                    {Above: 3, Since: t0, Score: 1, Flag: &flag},
+		storm.Reason:                   {Above: 2, Below: 1, Since: t0, Score: 2.0 / 3, Flag: &storm},
+		model.HighRateOf(metric.Opens): {Above: 1, Since: t0.Add(time.Minute), Score: 1},
+	}
+	job.FlagsRaised = 2
+	w0 := model.Window{Job: "81234", Index: 0, Start: t0, End: t0.Add(time.Minute), Nodes: 2, BusiestShare: 0.75, NodeSpread: 0.5}
+	w0.Rates[metric.Creates], w0.Levels[metric.Creates], w0.Grades[metric.Creates] = 2500, coding.Critical, 6
 	w1 := model.Window{Job: "81234", Index: 1, Start: t0.Add(time.Minute), End: t0.Add(2 * time.Minute), Nodes: 2}
 	other := model.Window{Job: "812340", Index: 0, Start: t0, End: t0.Add(time.Minute), Nodes: 1}
-	seqs := model.SeqRecord{High: 42, Bits: make([]uint64, 64)}
-	seqs.Bits[0] = 0b1011
+	seqs := model.SeqRecord{High: 42, Span: 4096, Applied: []model.SeqRange{{First: 40, Last: 42}, {First: 1, Last: 38}}}
 
 	require.NoError(t, s.Apply(&store.Batch{
 		Jobs:      []model.JobRecord{job},
 		Windows:   []model.Window{w1, other, w0},
-		Flags:     []model.Flag{flag},
-		Nodes:     map[string]model.SeqRecord{"bw007": seqs},
-		Watermark: t0.Add(5 * time.Second),
+		Flags:     []model.Flag{flag, storm},
+		Nodes:     map[string]model.SeqRecord{"bw007": seqs, "bw008": {High: 3, Span: 4096, Applied: []model.SeqRange{{First: 1, Last: 3}}}},
+		Watermark: t0.Add(5 * time.Second), StreamSeq: 9001, ReplayFrom: 8700,
 	}))
 	st, err := s.Load()
 	require.NoError(t, err)
 	require.Len(t, st.Jobs, 1)
-	assert.Equal(t, job.Meta.ID, st.Jobs[0].Meta.ID)
-	assert.True(t, st.Jobs[0].Meta.Start.Equal(t0))
-	assert.Equal(t, job.LiveRates, st.Jobs[0].LiveRates)
-	assert.Equal(t, job.LiveLevels, st.Jobs[0].LiveLevels)
-	assert.Equal(t, job.Open[0].Nodes["bw007"], st.Jobs[0].Open[0].Nodes["bw007"])
-	assert.Equal(t, job.Streaks, st.Jobs[0].Streaks)
-	assert.Equal(t, 1, st.Jobs[0].FlagsRaised)
+	want := job
+	want.LastWindow = &w1
+	want.Signature = st.Jobs[0].Signature // built from the windows: none was written
+	assert.Equal(t, want, st.Jobs[0])
 	assert.Equal(t, seqs, st.Nodes["bw007"])
+	assert.Len(t, st.Nodes, 2)
 	assert.True(t, st.Watermark.Equal(t0.Add(5*time.Second)))
+	assert.Equal(t, uint64(9001), st.StreamSeq)
+	assert.Equal(t, uint64(8700), st.ReplayFrom)
 
 	ws, err := s.Windows("81234")
 	require.NoError(t, err)
 	require.Len(t, ws, 2, "windows of job 812340 must not leak into 81234's")
-	assert.Equal(t, []int{0, 1}, []int{ws[0].Index, ws[1].Index})
+	assert.Equal(t, w0, ws[0])
 
 	fs, err := s.Flags()
 	require.NoError(t, err)
-	require.Len(t, fs, 1)
-	assert.Equal(t, flag.ID, fs[0].ID)
+	assert.Equal(t, []model.Flag{flag, storm}, fs)
+	for id, want := range map[string]bool{"81234-1": true, "81234-3": false, "81234": false, "-1": false, "81234-01": false} {
+		got, err := s.HasFlag(id)
+		require.NoError(t, err)
+		assert.Equal(t, want, got, id)
+	}
 
 	require.NoError(t, s.Apply(&store.Batch{GoneJobs: []string{"81234"}}))
 	st, err = s.Load()
 	require.NoError(t, err)
 	assert.Empty(t, st.Jobs)
+}
+
+// TestShardsKeepEveryNode writes many nodes' sequence sets in batches, as
+// the commits do (each batch only the nodes that changed), and reads
+// every node's latest back.
+func TestShardsKeepEveryNode(t *testing.T) {
+	s := storetest.MustOpen(t)
+	want := map[string]model.SeqRecord{}
+	for round := range 5 {
+		changed := map[string]model.SeqRecord{}
+		for n := round; n < 3000; n += 1 + round {
+			rec := model.SeqRecord{High: uint64(100*round + n + 1), Span: 4096, Applied: []model.SeqRange{{First: 1, Last: uint64(100*round + n + 1)}}}
+			changed[fmt.Sprintf("kx%04d", n)] = rec
+			want[fmt.Sprintf("kx%04d", n)] = rec
+		}
+		require.NoError(t, s.Apply(&store.Batch{Nodes: changed}))
+	}
+	st, err := s.Load()
+	require.NoError(t, err)
+	assert.Equal(t, want, st.Nodes)
 }
 
 func TestSecondOpenerFailsFast(t *testing.T) {
@@ -125,31 +157,4 @@ func TestBaselineDaysRoundTrip(t *testing.T) {
 	require.NoError(t, err)
 	assert.Len(t, got, 1)
 	assert.Contains(t, got, live)
-}
-
-// TestJobOfSchemaOneIsUpgraded reads a job record as the state file held
-// it before the raise-and-clear state moved into one map (testdata/store):
-// the high-rate flag on creates and the metadata_storm flag come back as
-// streaks, by reason, with their counts and flags.
-func TestJobOfSchemaOneIsUpgraded(t *testing.T) {
-	s := storetest.MustOpen(t)
-	require.NoError(t, s.PutRaw("jobs", "81234", fixture.Read(t, "store", "job_v1.json")))
-	st, err := s.Load()
-	require.NoError(t, err)
-	require.Len(t, st.Jobs, 1)
-	j := st.Jobs[0]
-	assert.Nil(t, j.LegacyRates)
-	assert.Nil(t, j.LegacyPatterns)
-	require.Len(t, j.Streaks, 2)
-	rate := j.Streaks[model.HighRateOf(metric.Creates)]
-	require.NotNil(t, rate.Flag)
-	assert.Equal(t, model.HighRateOf(metric.Creates), rate.Flag.Reason, `"critical:creates" is read as high_rate:creates`)
-	assert.Equal(t, model.SeverityWarning, rate.Flag.Severity)
-	assert.Positive(t, rate.Above)
-	storm := j.Streaks[model.PatternOf("metadata_storm")]
-	require.NotNil(t, storm.Flag)
-	assert.Equal(t, model.SeverityCritical, storm.Flag.Severity)
-	assert.Equal(t, "metadata_storm", storm.Flag.Pattern)
-	assert.InDelta(t, 2.0/3, storm.Score, 1e-9)
-	assert.NotEmpty(t, j.Signature, "a missing signature is rebuilt from the windows (none here: an empty one)")
 }

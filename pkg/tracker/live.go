@@ -2,6 +2,7 @@ package tracker
 
 import (
 	"fmt"
+	"slices"
 
 	"sluice/pkg/coding"
 	"sluice/pkg/flagging"
@@ -16,14 +17,24 @@ func (t *Tracker) evaluate(j *job) {
 	from := j.lastSample.Add(-t.opts.Live)
 	var sum metric.Rates
 	n := 0
-	for node, slices := range j.live {
-		keep := slices[:0]
+	j.liveFirst = 0
+	// Nodes in name order: the sum of their rates is then the same to the
+	// last bit in every run, a restarted one included.
+	t.scratch = t.scratch[:0]
+	for node := range j.live {
+		t.scratch = append(t.scratch, node)
+	}
+	slices.Sort(t.scratch)
+	for _, node := range t.scratch {
+		kept := j.live[node]
+		keep := kept[:0]
 		var a accum
-		for _, s := range slices {
+		for _, s := range kept {
 			if s.end.After(from) {
 				keep = append(keep, s)
 				a.seconds += s.seconds
 				a.values.Add(s.values)
+				j.liveFirst = lowestPos(j.liveFirst, s.pos)
 			}
 		}
 		if len(keep) == 0 {

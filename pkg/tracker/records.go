@@ -47,43 +47,36 @@ func (t *Tracker) Restore(jobs []model.JobRecord, nodes map[string]model.SeqReco
 				return fmt.Errorf("signature of job %q: %w", j.meta.ID, err)
 			}
 		}
+		if jobs[i].Evaluated {
+			j.signature.SetLive(jobs[i].LiveGrades)
+		}
 		t.jobs[j.meta.ID] = j
 	}
-	for n, s := range nodes {
-		if want := (t.opts.DedupeSpan + 63) / 64; len(s.Bits) != want {
-			return fmt.Errorf("node %s: dedupe span of %d bits on file, %d configured", n, len(s.Bits)*64, want*64)
+	for n, r := range nodes {
+		s, err := seqSetOf(r, t.opts.DedupeSpan)
+		if err != nil {
+			return fmt.Errorf("node %s: %w", n, err)
 		}
-		t.nodes[n] = seqSetOf(s)
+		t.nodes[n] = s
 	}
 	t.watermark = watermark
 	return nil
 }
 
 // record is the job as the state file keeps it; it shares nothing with j.
+// It carries the signature only when windows were added to it since the
+// last record.
 func (j *job) record() model.JobRecord {
-	sig, _ := j.signature.MarshalBinary() // cannot fail
 	r := model.JobRecord{
-		Meta: j.meta, Closed: j.closed, LastSample: j.lastSample, Totals: j.totals,
+		Meta: j.meta, Closed: j.closed, ClosedAt: j.closedAt, LastSample: j.lastSample, Totals: j.totals,
 		LiveRates: j.liveRates, LiveLevels: j.liveLevels, LiveNodes: j.liveNodes,
 		Streaks: j.streaks.Records(), FlagsRaised: j.flagsRaised, Finished: j.finished,
-		Live:      make(map[string][]model.SliceRecord, len(j.live)),
-		Open:      make(map[int]model.OpenRecord, len(j.open)),
-		Signature: sig,
+		Unevaluated: j.dirty, LiveGrades: j.signature.Live, Evaluated: j.signature.HasLive,
 	}
 	r.Meta.Nodes = slices.Clone(j.meta.Nodes)
-	for n, ss := range j.live {
-		recs := make([]model.SliceRecord, len(ss))
-		for i, s := range ss {
-			recs[i] = model.SliceRecord{End: s.end, Seconds: s.seconds, Values: s.values}
-		}
-		r.Live[n] = recs
-	}
-	for idx, w := range j.open {
-		o := model.OpenRecord{Nodes: make(map[string]model.AccumRecord, len(w.nodes))}
-		for n, a := range w.nodes {
-			o.Nodes[n] = model.AccumRecord{Seconds: a.seconds, Values: a.values}
-		}
-		r.Open[idx] = o
+	if j.signed {
+		r.Signature, _ = j.signature.MarshalBinary() // cannot fail
+		j.signed = false
 	}
 	if j.lastWindow != nil {
 		w := *j.lastWindow
@@ -92,28 +85,16 @@ func (j *job) record() model.JobRecord {
 	return r
 }
 
-// jobOf rebuilds a job from its record.
+// jobOf rebuilds a job from its record; its open windows and live window
+// start empty, for Rebuild to fill.
 func jobOf(r *model.JobRecord) *job {
 	j := newJob(r.Meta)
 	j.meta.Nodes = slices.Clone(r.Meta.Nodes)
-	j.closed, j.lastSample, j.totals = r.Closed, r.LastSample, r.Totals
+	j.closed, j.closedAt, j.lastSample, j.totals = r.Closed, r.ClosedAt, r.LastSample, r.Totals
 	j.liveRates, j.liveLevels, j.liveNodes = r.LiveRates, r.LiveLevels, r.LiveNodes
 	j.streaks = flagging.FromRecords(r.Streaks)
-	j.flagsRaised, j.finished = r.FlagsRaised, r.Finished
-	for n, recs := range r.Live {
-		ss := make([]slice, len(recs))
-		for i, s := range recs {
-			ss[i] = slice{end: s.End, seconds: s.Seconds, values: s.Values}
-		}
-		j.live[n] = ss
-	}
-	for idx, o := range r.Open {
-		w := newOpenWindow()
-		for n, a := range o.Nodes {
-			w.add(n, a.Seconds, a.Values)
-		}
-		j.open[idx] = w
-	}
+	j.flagsRaised, j.finished, j.dirty = r.FlagsRaised, r.Finished, r.Unevaluated
+
 	if r.LastWindow != nil {
 		w := *r.LastWindow
 		j.lastWindow = &w

@@ -142,6 +142,12 @@ type Tracker struct {
 	watermark time.Time
 	counters  Counters
 
+	// rebuilt holds, while a restart sums the open windows again, each
+	// node's numbers summed so far (see Rebuild).
+	rebuilt map[string]*seqSet
+	scratch []string // node names, reused by evaluate
+	lastPos uint64   // the stream position of the latest sample applied
+
 	events     []Event
 	dirtyJobs  map[string]struct{}
 	dirtyNodes map[string]struct{}
@@ -159,6 +165,7 @@ func New(opts Options) (*Tracker, error) {
 		coding:     coding.Seed(opts.Cuts),
 		jobs:       make(map[string]*job),
 		nodes:      make(map[string]*seqSet),
+		rebuilt:    make(map[string]*seqSet),
 		dirtyJobs:  make(map[string]struct{}),
 		dirtyNodes: make(map[string]struct{}),
 	}, nil
@@ -183,11 +190,16 @@ func (t *Tracker) Watermark() time.Time { return t.watermark }
 // Nodes is the number of nodes that have sent samples.
 func (t *Tracker) Nodes() int { return len(t.nodes) }
 
-// Sample applies one sample. Applying the same (node, seq) twice returns
-// ErrDuplicate and changes nothing.
-func (t *Tracker) Sample(s *report.Sample) error {
-	if s.Node == "" || s.End.Before(s.Start) || s.End.Sub(s.Start) > t.opts.Window {
-		return fmt.Errorf("%w: node %q %s..%s", ErrBadInterval, s.Node, s.Start, s.End)
+// Sample applies one sample whose place in a stream is not known (see
+// SampleAt).
+func (t *Tracker) Sample(s *report.Sample) error { return t.SampleAt(s, 0) }
+
+// SampleAt applies one sample, pos being its place in the stream (0: not
+// known). Applying the same (node, seq) twice returns ErrDuplicate and
+// changes nothing.
+func (t *Tracker) SampleAt(s *report.Sample, pos uint64) error {
+	if err := t.checkInterval(s); err != nil {
+		return err
 	}
 	seqs := t.nodes[s.Node]
 	if seqs == nil {
@@ -202,6 +214,7 @@ func (t *Tracker) Sample(s *report.Sample) error {
 	}
 	seqs.mark(s.Seq)
 	t.dirtyNodes[s.Node] = struct{}{}
+	t.lastPos = max(t.lastPos, pos)
 	t.counters.Applied++
 	if s.End.After(t.watermark) {
 		t.watermark = s.End
@@ -212,11 +225,18 @@ func (t *Tracker) Sample(s *report.Sample) error {
 	}
 	var late error
 	for _, a := range attributions(s) {
-		if err := t.apply(a.job, s, a.values); err != nil {
+		if err := t.apply(a.job, s, a.values, pos); err != nil {
 			late = err
 		}
 	}
 	return late
+}
+
+func (t *Tracker) checkInterval(s *report.Sample) error {
+	if s.Node == "" || s.End.Before(s.Start) || s.End.Sub(s.Start) > t.opts.Window {
+		return fmt.Errorf("%w: node %q %s..%s", ErrBadInterval, s.Node, s.Start, s.End)
+	}
+	return nil
 }
 
 type attribution struct {
@@ -241,7 +261,7 @@ func attributions(s *report.Sample) []attribution {
 	return out
 }
 
-func (t *Tracker) apply(id string, s *report.Sample, v metric.Values) error {
+func (t *Tracker) apply(id string, s *report.Sample, v metric.Values, pos uint64) error {
 	j := t.jobs[id]
 	if j == nil {
 		if len(t.jobs) >= t.opts.MaxJobs {
@@ -250,16 +270,11 @@ func (t *Tracker) apply(id string, s *report.Sample, v metric.Values) error {
 		}
 		j = t.newJob(model.JobMeta{ID: id, Start: s.Start})
 	}
-	if j.meta.Ended() && s.End.After(j.meta.End.Add(t.opts.Grace)) {
-		return fmt.Errorf("%w: job %s ended %s, sample ends %s", ErrLate, id, j.meta.End, s.End)
+	idx, err := t.windowFor(j, s)
+	if err != nil {
+		return err
 	}
-	idx := j.windowIndex(s.End, t.opts.Window)
-	if idx < j.closed {
-		return fmt.Errorf("%w: job %s window %d already closed", ErrLate, id, idx)
-	}
-	secs := s.End.Sub(s.Start).Seconds()
-	j.addLive(s.Node, slice{end: s.End, seconds: secs, values: v})
-	j.addWindow(idx, s.Node, secs, v)
+	j.place(idx, s.Node, slice{end: s.End, seconds: s.End.Sub(s.Start).Seconds(), values: v, pos: pos})
 	j.totals.Add(v)
 	if s.End.After(j.lastSample) {
 		j.lastSample = s.End
@@ -268,6 +283,20 @@ func (t *Tracker) apply(id string, s *report.Sample, v metric.Values) error {
 	t.dirtyJobs[id] = struct{}{}
 	t.closeWindows(j, j.lastSample)
 	return nil
+}
+
+// windowFor is the index of the window a sample counts in for job j, or
+// ErrLate when the job ended more than the grace before the sample or
+// the window is closed.
+func (t *Tracker) windowFor(j *job, s *report.Sample) (int, error) {
+	if j.meta.Ended() && s.End.After(j.meta.End.Add(t.opts.Grace)) {
+		return 0, fmt.Errorf("%w: job %s ended %s, sample ends %s", ErrLate, j.meta.ID, j.meta.End, s.End)
+	}
+	idx := j.windowIndex(s.End, t.opts.Window)
+	if idx < j.closed {
+		return 0, fmt.Errorf("%w: job %s window %d already closed", ErrLate, j.meta.ID, idx)
+	}
+	return idx, nil
 }
 
 func (t *Tracker) newJob(meta model.JobMeta) *job {

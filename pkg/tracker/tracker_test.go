@@ -1,7 +1,6 @@
 package tracker_test
 
 import (
-	"encoding/json"
 	"testing"
 	"time"
 
@@ -217,51 +216,61 @@ func TestSharedNodeUsesPerJobSplitWhenGiven(t *testing.T) {
 	assert.False(t, a.Announced)
 }
 
+// TestRestoreResumesExactly saves a tracker's records halfway through
+// (as the store keeps them: no open or live window sums), restores them
+// into a fresh tracker, sums the open windows again from the stream
+// positions ReplayFrom gives, and checks both trackers then agree.
 func TestRestoreResumesExactly(t *testing.T) {
 	opts := tracker.Options{Window: time.Minute, Live: 20 * time.Second, Grace: time.Second, RaiseAfter: 1}
 	a := newTracker(t, opts)
 	startJob(t, a, "3", "n1", "n2")
 	var samples []*report.Sample
-	for i := range 20 {
+	for i := range 40 {
 		from := time.Duration(i) * 5 * time.Second
 		for _, n := range []string{"n1", "n2"} {
 			samples = append(samples, sample(n, uint64(i+1), from, from+5*time.Second, []string{"3"}, vals(metric.Creates, 1000*(i%7), metric.WriteBytes, 1<<20*i)))
 		}
 	}
-	half := len(samples) / 2
-	for _, s := range samples[:half] {
-		require.NoError(t, a.Sample(s))
+	// Sample k (from 1) is node n1 or n2 of step (k-1)/2, ending at
+	// 5*((k-1)/2+1) s. Window 0 closed with sample 25 (60..65 s); the tick
+	// at sample 28 (65..70 s) kept the live window's samples ending after
+	// 50 s: from sample 21 on.
+	half := 30
+	for i, s := range samples[:half] {
+		require.NoError(t, a.SampleAt(s, uint64(i+1)))
+		if i+1 == 28 {
+			a.Tick()
+		}
 	}
-	a.Tick()
 	a.Drain()
-
-	// Round-trip the state through JSON, as the store does.
 	jobs, _ := a.DirtyJobs()
-	data, err := json.Marshal(jobs)
-	require.NoError(t, err)
-	var restored []model.JobRecord
-	require.NoError(t, json.Unmarshal(data, &restored))
-	for i := range restored {
-		restored[i].Signature = jobs[i].Signature // the store keeps it in a bucket of its own
-	}
-	nodes := a.DirtyNodes()
 	b := newTracker(t, opts)
-	require.NoError(t, b.Restore(restored, nodes, a.Watermark()))
+	require.NoError(t, b.Restore(jobs, a.DirtyNodes(), a.Watermark()))
+	from := a.ReplayFrom()
+	require.Equal(t, uint64(21), from, "the live window's first sample; window 1 begins at 25")
 
-	// Replaying the first half changes nothing; the second half gives both
+	for i := from; i <= uint64(half); i++ {
+		b.Rebuild(samples[i-1], i)
+	}
+	b.Rebuild(samples[half-1], uint64(half)) // a second copy is summed once
+	b.EndRebuild()
+	// The first half is applied already; the second half gives both
 	// trackers the same result.
 	for _, s := range samples[:half] {
 		assert.ErrorIs(t, b.Sample(s), tracker.ErrDuplicate)
 	}
-	for _, s := range samples[half:] {
-		require.NoError(t, a.Sample(s))
-		require.NoError(t, b.Sample(s))
+	for i, s := range samples[half:] {
+		require.NoError(t, a.SampleAt(s, uint64(half+i+1)))
+		require.NoError(t, b.SampleAt(s, uint64(half+i+1)))
 	}
 	a.Tick()
 	b.Tick()
 	sa, _ := a.Job("3")
 	sb, _ := b.Job("3")
 	assert.Equal(t, sa, sb)
+	ea, eb := a.Drain(), b.Drain()
+	require.Len(t, ea, 2, "windows 1 and 2 closed after the restart")
+	assert.Equal(t, ea, eb)
 }
 
 // TestOscillationRaisesAtMostOneFlag feeds a creates rate that crosses the

@@ -27,9 +27,10 @@ func (t *Tracker) closeWindows(j *job, now time.Time) {
 		}
 		w := t.windowOf(j.meta.ID, idx, start, end, j.open[idx])
 		j.signature.Append(w.Grades)
+		j.signed = true
 		t.matchWindow(j, &w)
 		delete(j.open, idx)
-		j.closed = idx + 1
+		j.closed, j.closedAt = idx+1, t.lastPos
 		j.lastWindow = &w
 		t.dirtyJobs[j.meta.ID] = struct{}{}
 		t.emit(Event{Kind: WindowClosed, Job: j.meta.ID, Window: &w})
